@@ -1,0 +1,1 @@
+# Package data: the lark grammar of the C subset tripcount reads.

@@ -1,0 +1,95 @@
+# Command line: subcommands, exit statuses, formats, snippets.
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+
+from conftest import INPUTS, ROOT
+
+FLUSH = os.path.join(INPUTS, "cli", "harbour_flush.c")
+
+
+def test_analyze_text_values(run_cli):
+    status, out, err = run_cli("analyze", FLUSH, "--at", "n=10")
+    assert status == 0, err
+    # triangle: 10*11/2 = 55 (OEIS A000217); every other index below 10: 5
+    assert "= 55" in out
+    assert "= 5" in out
+
+
+def test_analyze_json_shape(run_cli):
+    status, out, _ = run_cli("analyze", FLUSH, "--at", "n=10,m=10", "--format", "json")
+    assert status == 0
+    data = json.loads(out)
+    assert data["schema_version"] == 1
+    (f,) = data["files"]
+    assert f["path"] == FLUSH
+    nests = f["nests"]
+    assert [n["function"] for n in nests] == ["flush_basin", "basin_mean"]
+    tri = nests[0]
+    assert [lp["var"] for lp in tri["loops"]] == ["i", "j"]
+    assert tri["statements"][0]["count"]["value"] == 55
+    assert tri["loops"][0]["trips"]["value"] == 10
+    for d in f["diagnostics"]:
+        assert {"line", "column", "severity", "code", "message"} <= set(d)
+
+
+def test_formula_pieces_parse_with_sympy(run_cli):
+    import sympy
+
+    status, out, _ = run_cli("analyze", FLUSH, "--format", "json")
+    assert status == 0
+    data = json.loads(out)
+    stmt = data["files"][0]["nests"][0]["statements"][0]
+    assert stmt["count"]["value"] is None  # no --at
+    n = sympy.Symbol("n")
+    expr = sympy.sympify(stmt["count"]["pieces"][0]["expr"].replace("^", "**"), locals={"n": n})
+    # triangular numbers, OEIS A000217
+    assert sympy.expand(expr - n * (n + 1) / 2) == 0
+    assert stmt["count"]["degree"] == 2
+
+
+def test_usage_errors_exit_2(run_cli):
+    assert run_cli()[0] == 2
+    assert run_cli("analyze")[0] == 2
+    assert run_cli("analyze", "/no/such/file.c")[0] == 2
+    status, _, err = run_cli("analyze", FLUSH, "--at", "n=ten")
+    assert status == 2 and "integer" in err
+    assert run_cli("frobnicate")[0] == 2
+
+
+def test_snippet_code_and_stdin(run_cli):
+    code = "for (i = 0; i < n; i++) for (j = 0; j <= i; j++) s += a[i][j];"
+    status, out, _ = run_cli("analyze", "--code", code, "--at", "n=4", "--format", "json")
+    assert status == 0
+    f = json.loads(out)["files"][0]
+    assert f["path"] == "<code>"
+    assert f["nests"][0]["parameters"] == ["n"]
+    assert f["nests"][0]["statements"][0]["count"]["value"] == 10
+    status, out, _ = run_cli("analyze", "-", "--at", "n=4", "--format", "json",
+                             stdin="for (int i = 0;\n     i < n; i++)\n  x[i] = 0;\n")
+    assert status == 0
+    f = json.loads(out)["files"][0]
+    assert f["path"] == "<stdin>"
+    assert f["nests"][0]["statements"][0]["count"]["value"] == 4
+
+
+def test_snippet_not_c_exits_2(run_cli):
+    status, out, err = run_cli("analyze", "--code", "this is not C at all, is it?")
+    assert status == 2
+    assert "<code>:1:" in out + err
+
+
+def test_refusal_is_not_failure(run_cli):
+    status, out, _ = run_cli("analyze", FLUSH, "--format", "json")
+    assert status == 0
+    codes = [d["code"] for d in json.loads(out)["files"][0]["diagnostics"]]
+    assert codes == [] or all(c.startswith("TC") for c in codes)
+
+
+def test_python_dash_m_and_version():
+    r = subprocess.run([sys.executable, "-m", "tripcount", "--version"], capture_output=True, text=True, cwd=ROOT)
+    assert r.returncode == 0 and "tripcount" in r.stdout

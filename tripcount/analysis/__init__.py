@@ -1,0 +1,1 @@
+"""Analyses: counts, flops, footprint and balance of the modelled nests."""

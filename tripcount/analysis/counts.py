@@ -1,0 +1,215 @@
+# Analysis: execution counts of statements and trip counts of loops.
+#
+# For every statement the engine counts the integer points of its iteration
+# domain; for every loop, the points of the loop's own domain (total body
+# executions) and, with the outer loop variables turned into parameters, the
+# trips per entry of the loop. Values at the --at sizes come from the
+# formula, or from exact enumeration when the formula could not be had within
+# the limits (said in a diagnostic). With --verify every formula is compared
+# with enumeration at several sizes per piece.
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from fractions import Fraction
+
+import islpy as isl
+
+from tripcount import engine
+from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
+from tripcount.diagnostics import Diagnostic
+from tripcount.ir import Span
+from tripcount.model import Nest
+from tripcount.options import Options
+
+
+class FormulaLimit(Diagnostic):
+    """The engine hit a limit; the value at the given sizes is still exact."""
+
+    code = "TC301"
+    severity = "warning"
+    title = "formula-limit"
+    template = "no closed formula for {what}: {reason}; {fallback}"
+
+
+class VerifyMismatch(Diagnostic):
+    """--verify found a formula that disagrees with enumeration (a bug: please report)."""
+
+    code = "TC302"
+    severity = "error"
+    title = "verify-mismatch"
+    template = "formula for {what} gives {got} but enumeration counts {want} at {point}"
+
+
+class VerifyPassed(Diagnostic):
+    """--verify summary for one nest."""
+
+    code = "TC303"
+    severity = "note"
+    title = "verified"
+    template = "verified {n} formulas of this nest against enumeration at {points} parameter points"
+
+
+def context_for(s: isl.Set, context: isl.Set | None) -> isl.Set | None:
+    """The nest's assumptions restricted to the parameters of `s` (same parameter space)."""
+    if context is None:
+        return None
+    names = params_of(s)
+    ctx = context
+    for i in reversed(range(ctx.dim(isl.dim_type.param))):
+        if ctx.get_dim_name(isl.dim_type.param, i) not in names:
+            ctx = ctx.project_out(isl.dim_type.param, i, 1)
+    if ctx.dim(isl.dim_type.set) > 0:
+        ctx = ctx.params()
+    elif not ctx.get_space().is_params():
+        ctx = ctx.params()
+    return ctx.align_params(s.get_space().params())
+
+
+def limits_of(options: Options) -> engine.Limits:
+    """Engine limits from the options."""
+    return engine.Limits(time_s=options.time_limit, max_pieces=options.max_pieces)
+
+
+def params_of(s: isl.Set) -> list[str]:
+    """Parameter names of an isl set."""
+    return [s.get_dim_name(isl.dim_type.param, i) for i in range(s.dim(isl.dim_type.param))]
+
+
+def value_at(formula: engine.Piecewise | None, s: isl.Set, options: Options) -> int | Fraction | None:
+    """Exact value at the --at sizes: None unless every parameter of `s` is given."""
+    point = options.sizes(params_of(s))
+    if point is None:
+        return None
+    if formula is not None:
+        return _as_int(formula.evaluate(point))
+    return engine.enumerate_count(s, point)
+
+
+def _as_int(v: Fraction | int) -> int | Fraction:
+    if isinstance(v, Fraction) and v.denominator == 1:
+        return int(v)
+    return v
+
+
+def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
+              diags: list[Diagnostic]) -> Count:
+    """Count a set: formula plus value, with a diagnostic and fallback on limits."""
+    try:
+        formula = engine.count(s, context_for(s, nest.context), limits_of(options))
+    except engine.EngineLimit as exc:
+        v = None
+        fallback = "values below are exact enumerations at the given sizes"
+        try:
+            v = value_at(None, s, options)
+        except Exception:  # enumeration too can be out of reach; say so
+            fallback = "no value either"
+        if v is None and not options.at:
+            fallback = "give --at sizes for exact values"
+        diags.append(FormulaLimit(span, what=what, reason=str(exc), fallback=fallback))
+        return Count(value=v, formula=None, note="formula not available: " + str(exc))
+    return Count(value=value_at(formula, s, options), formula=formula)
+
+
+def outer_as_params(domain: isl.Set, n_outer: int) -> isl.Set:
+    """Move the first `n_outer` set dimensions of `domain` into the parameters."""
+    n_param = domain.dim(isl.dim_type.param)
+    return domain.move_dims(isl.dim_type.param, n_param, isl.dim_type.set, 0, n_outer)
+
+
+def analyze(result: NestResult, options: Options) -> None:
+    """Fill in statement counts and loop trip counts of one nest."""
+    nest = result.nest
+    diags = result.diagnostics
+    for loop in nest.loops:
+        if loop.domain is None:
+            result.loops.append(LoopResult(loop, Count(note="trip count unknown (refused)")))
+            continue
+        trips = count_set(loop.domain, nest, options, f"loop '{loop.var}'", loop.span, diags)
+        per_entry = None
+        if loop.depth > 0:
+            local = outer_as_params(loop.domain, loop.depth)
+            try:
+                pw = engine.count(local, context_for(local, nest.context), limits_of(options))
+                per_entry = Count(value=None, formula=pw)
+            except engine.EngineLimit:
+                per_entry = None
+        else:
+            per_entry = Count(value=trips.value, formula=trips.formula)
+        result.loops.append(LoopResult(loop, trips, per_entry))
+    for stmt in nest.statements:
+        if stmt.domain is None:
+            result.statements.append(StatementResult(stmt, Count(note="count unknown (refused)")))
+            continue
+        c = count_set(stmt.domain, nest, options, f"statement {stmt.id}", stmt.span, diags)
+        result.statements.append(StatementResult(stmt, c))
+    if options.verify:
+        verify(result, options)
+
+
+def verification_points(formula: engine.Piecewise, s: isl.Set, limit: int = 40) -> list[dict[str, int]]:
+    """Parameter points to check a formula at: a small grid plus a point in every piece."""
+    names = params_of(s)
+    points: list[dict[str, int]] = []
+    if not names:
+        return [{}]
+    grid = [-1, 0, 1, 2, 3, 5, 8]
+    import itertools
+
+    for combo in itertools.islice(itertools.product(grid, repeat=len(names)), limit):
+        points.append(dict(zip(names, combo)))
+    for piece in formula.pieces:
+        try:
+            dom = piece.domain
+            box = isl.Set.universe(dom.get_space())
+            for i in range(len(names)):
+                box = box.lower_bound_val(isl.dim_type.param, i, isl.Val.int_from_si(dom.get_ctx(), -4))
+                box = box.upper_bound_val(isl.dim_type.param, i, isl.Val.int_from_si(dom.get_ctx(), 24))
+            sample = dom.intersect(box).sample_point()
+            if sample.is_void():
+                continue
+            pt = {}
+            for i, n in enumerate(names):
+                pt[n] = int(sample.get_coordinate_val(isl.dim_type.param, i).to_python())
+            points.append(pt)
+        except Exception:  # a piece without a small sample is covered by the grid
+            continue
+    return points
+
+
+def verify(result: NestResult, options: Options) -> None:
+    """Compare every formula of the nest with enumeration (diagnostic per mismatch)."""
+    nest = result.nest
+    checked = 0
+    npoints = 0
+    items = [(f"loop '{lr.loop.var}'", lr.loop.domain, lr.trips, lr.loop.span) for lr in result.loops]
+    items += [(f"statement {sr.stmt.id}", sr.stmt.domain, sr.count, sr.stmt.span) for sr in result.statements]
+    for what, dom, cnt, span in items:
+        if dom is None or cnt.formula is None:
+            continue
+        checked += 1
+        pts = verification_points(cnt.formula, dom)
+        npoints += len(pts)
+        for pt in pts:
+            if not _in_context(nest.context, pt):
+                continue
+            want = engine.enumerate_count(dom, pt)
+            got = cnt.formula.evaluate(pt)
+            if got != want:
+                result.diagnostics.append(VerifyMismatch(span, what=what, got=got, want=want, point=_fmt_point(pt)))
+                break
+    if checked:
+        result.diagnostics.append(VerifyPassed(nest.span, n=checked, points=npoints))
+
+
+def _in_context(context: isl.Set, pt: Mapping[str, int]) -> bool:
+    s = context
+    for i in range(s.dim(isl.dim_type.param)):
+        name = s.get_dim_name(isl.dim_type.param, i)
+        if name in pt:
+            s = s.fix_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), pt[name]))
+    return not s.is_empty()
+
+
+def _fmt_point(pt: Mapping[str, int]) -> str:
+    return ", ".join(f"{k}={v}" for k, v in pt.items()) or "(no parameters)"

@@ -1,0 +1,247 @@
+# Entry point: `main(argv) -> int` is the single entry of the command line,
+# the console script, `python -m tripcount` and the pre-commit hook.
+#
+# Exit status: 0 analyzed (refusals are diagnostics, not failures),
+# 1 findings (`check` budgets, `--verify` mismatches), 2 usage errors,
+# unreadable input or tool errors.
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+from collections.abc import Sequence
+from typing import TextIO
+
+from tripcount import __version__
+from tripcount.config import Config, ConfigError, load_config, parse_bytes, parse_sizes
+from tripcount.options import Options
+
+EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+
+
+class UsageError(Exception):
+    """Bad command-line input (exit status 2)."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message: str) -> None:  # argparse would exit; we return a status instead
+        raise UsageError(message)
+
+
+def add_common(p: argparse.ArgumentParser) -> None:
+    """Options shared by `analyze` and `check`."""
+    p.add_argument("--at", metavar="N=64,M=32", action="append", default=[],
+                   help="sizes at which to give exact values (repeatable)")
+    p.add_argument("--assume", metavar="'N >= 16, M >= N'", action="append", default=[],
+                   help="assumptions on the parameters (affine comparisons, comma separated)")
+    p.add_argument("--format", choices=("text", "json", "sarif"), default="text", help="output format")
+    p.add_argument("-o", "--output", metavar="FILE", help="write the report to FILE instead of stdout")
+    p.add_argument("--time-limit", type=float, metavar="SECONDS", help="engine time limit per formula (default 20)")
+    p.add_argument("--max-pieces", type=int, metavar="K", help="cap on pieces of one formula (default 256)")
+    p.add_argument("--line-size", type=int, metavar="BYTES", help="cache line size (default: host, else 64)")
+    p.add_argument("--cache", action="append", default=[], metavar="L1=48KiB",
+                   help="cache level size overriding the host's (repeatable)")
+    p.add_argument("--elem-size", type=int, metavar="BYTES", help="element size of undeclared arrays")
+    p.add_argument("--solve-for", metavar="PARAM", help="parameter whose cache-fit threshold to solve for")
+    p.add_argument("--threads", type=int, metavar="P", help="threads for the balance model (default: host cores)")
+    p.add_argument("--work", choices=("statements", "flops"), help="work measure of the balance model")
+    p.add_argument("--parallel", action="append", type=int, default=[], metavar="LINE",
+                   help="treat the loop on LINE as '#pragma omp parallel for' (repeatable)")
+    p.add_argument("--no-cache", action="store_true", help="do not read or write the result cache")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser with its subcommands."""
+    p = _Parser(prog="tripcount", description="Exact trip counts, flops, working sets and thread balance "
+                "of affine C loop nests, as formulas in the size parameters.")
+    p.add_argument("--version", action="version", version=f"tripcount {__version__}")
+    sub = p.add_subparsers(dest="command", parser_class=_Parser)
+    a = sub.add_parser("analyze", help="report counts of every loop nest in C files or directories")
+    a.add_argument("paths", nargs="*", metavar="PATH", help="C files or directories ('-' reads stdin)")
+    a.add_argument("--code", metavar="C", help="analyze this C text (a file, a function body or bare loops)")
+    a.add_argument("--verify", action="store_true", help="re-check every formula by exact enumeration")
+    add_common(a)
+    c = sub.add_parser("check", help="pre-commit gate: budgets and baseline regressions")
+    c.add_argument("paths", nargs="*", metavar="FILE")
+    c.add_argument("--baseline", metavar="REV", help="git revision to compare with (default HEAD for staged files)")
+    add_common(c)
+    sub.add_parser("schema", help="print the JSON Schema of the JSON report")
+    s = sub.add_parser("serve", help="run the language server on stdio")
+    s.add_argument("--stdio", action="store_true", help="accepted for editor compatibility (stdio is the default)")
+    k = sub.add_parser("cache", help="manage the result cache")
+    k.add_argument("action", choices=("clear", "info"))
+    return p
+
+
+def options_from(args: argparse.Namespace, config: Config) -> Options:
+    """Merge configuration and command line into Options (the command line wins)."""
+    o = Options()
+    cfg = config.table
+    try:
+        at = cfg.get("at", {})
+        if isinstance(at, str):
+            o.at.update(parse_sizes(at))
+        elif isinstance(at, dict):
+            o.at.update({str(k): int(v) for k, v in at.items()})
+        for text in args.at:
+            o.at.update(parse_sizes(text))
+    except (ValueError, TypeError) as exc:
+        raise UsageError(f"--at: {exc}") from None
+    assumptions = []
+    if cfg.get("assume"):
+        a = cfg["assume"]
+        assumptions.extend(a if isinstance(a, list) else [a])
+    assumptions.extend(args.assume)
+    o.assume = ", ".join(str(x) for x in assumptions) or None
+    o.verify = bool(getattr(args, "verify", False))
+    o.time_limit = args.time_limit or float(cfg.get("time_limit", o.time_limit))
+    o.max_pieces = args.max_pieces or int(cfg.get("max_pieces", o.max_pieces))
+    o.line_size = args.line_size or int(cfg.get("line_size", 0)) or 0
+    caches = {str(k).upper(): parse_bytes(v) for k, v in cfg.get("caches", {}).items()}
+    try:
+        for text in args.cache:
+            name, _, size = text.partition("=")
+            caches[name.strip().upper()] = parse_bytes(size)
+    except ValueError as exc:
+        raise UsageError(f"--cache: {exc}") from None
+    o.caches = caches
+    o.elem_size = args.elem_size or cfg.get("elem_size")
+    o.solve_for = args.solve_for or cfg.get("solve_for")
+    o.threads = args.threads or cfg.get("threads")
+    o.work = args.work or cfg.get("work", o.work)
+    o.parallel_lines = tuple(args.parallel) + tuple(cfg.get("parallel", []))
+    o.imbalance_threshold = float(cfg.get("imbalance_threshold", o.imbalance_threshold))
+    o.peak_gflops = cfg.get("peak_gflops")
+    o.bandwidth_gbs = cfg.get("bandwidth_gbs")
+    if o.time_limit <= 0 or o.max_pieces <= 0:
+        raise UsageError("--time-limit and --max-pieces must be positive")
+    return o
+
+
+def open_output(path: str | None) -> TextIO:
+    """The output stream (stdout unless -o)."""
+    if path is None:
+        return sys.stdout
+    return open(path, "w", encoding="utf-8")
+
+
+def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr: TextIO) -> int:
+    """`tripcount analyze`."""
+    from tripcount.analysis.results import Report
+    from tripcount.pipeline import analyze_file, analyze_text, collect_paths
+    from tripcount.report import get_reporter
+
+    sources: list[tuple[str, str | None]] = []  # (path, text for snippets)
+    if args.code is not None:
+        sources.append(("<code>", args.code))
+    for p in args.paths:
+        if p == "-":
+            sources.append(("<stdin>", stdin.read()))
+    files = [p for p in args.paths if p != "-"]
+    if not sources and not files:
+        raise UsageError("nothing to analyze: give C files or directories, '-' for stdin, or --code 'C text'")
+    missing = [p for p in files if not os.path.exists(p)]
+    if missing:
+        stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
+        return EXIT_USAGE
+    config = load_config(files[0] if files else os.getcwd())
+    options = options_from(args, config)
+    results = []
+    for path, text in sources:
+        results.append(analyze_text(text or "", path, options, snippet=True))
+    paths = collect_paths(files)
+    if files and not paths:
+        stderr.write("tripcount: error: no .c or .h files under the given directories\n")
+        return EXIT_USAGE
+    for path in paths:
+        results.append(analyze_file(path, options))
+    report = Report(files=results, at=options.at, settings=settings_of(options))
+    out = open_output(args.output) if args.output else stdout
+    try:
+        get_reporter(args.format, out).write(report)
+    finally:
+        if args.output:
+            out.close()
+    status = EXIT_OK
+    for fr in results:
+        for d in fr.all_diagnostics():
+            if d.code in ("TC901",):
+                status = EXIT_USAGE
+            elif d.code == "TC302" and status == EXIT_OK:
+                status = EXIT_FINDINGS
+    if sources and all(not fr.nests for fr in results[: len(sources)]) and _not_c(results[: len(sources)]):
+        stderr.write("tripcount: error: the snippet could not be read as C (see the diagnostics above)\n")
+        status = EXIT_USAGE
+    return status
+
+
+def _not_c(results: list) -> bool:
+    """True when a snippet produced only syntax errors and nothing to analyze."""
+    for fr in results:
+        diags = fr.all_diagnostics()
+        if not any(d.code.startswith("TC1") for d in diags):
+            return False
+    return True
+
+
+def settings_of(options: Options) -> dict:
+    """The model assumptions that the report states."""
+    out: dict = {"assume": options.assume}
+    if options.caches:
+        out["caches"] = dict(options.caches)
+    return out
+
+
+def main(argv: Sequence[str] | None = None, stdin: TextIO | None = None,
+         stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
+    """Run tripcount with `argv` (without the program name); returns the exit status."""
+    stdin = stdin or sys.stdin
+    stdout = stdout or sys.stdout
+    stderr = stderr or sys.stderr
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        if args.command is None:
+            parser.print_help(stdout)
+            return EXIT_USAGE
+        if args.command == "analyze":
+            return run_analyze(args, stdin, stdout, stderr)
+        if args.command == "check":
+            from tripcount.check import run_check
+
+            return run_check(args, stdout, stderr)
+        if args.command == "schema":
+            from tripcount.report.schema import schema_text
+
+            stdout.write(schema_text())
+            return EXIT_OK
+        if args.command == "serve":
+            from tripcount.lsp import serve
+
+            return serve()
+        if args.command == "cache":
+            from tripcount.cache import run_cache_command
+
+            return run_cache_command(args.action, stdout)
+    except UsageError as exc:
+        stderr.write(f"tripcount: error: {exc}\n")
+        return EXIT_USAGE
+    except ConfigError as exc:
+        stderr.write(f"tripcount: error: {exc}\n")
+        return EXIT_USAGE
+    except ValueError as exc:  # bad --assume and similar input
+        stderr.write(f"tripcount: error: {exc}\n")
+        return EXIT_USAGE
+    except BrokenPipeError:
+        return EXIT_OK
+    except KeyboardInterrupt:
+        stderr.write("tripcount: interrupted\n")
+        return 130
+    return EXIT_USAGE
+
+
+def console_main() -> None:
+    """Console-script entry."""
+    sys.exit(main())

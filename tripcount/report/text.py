@@ -1,0 +1,187 @@
+# Text reporter: a readable per-nest report for a terminal.
+#
+# For every nest: the loop tree with each loop's trip count, each statement
+# with its execution count as a formula (generic case first, with its validity
+# condition in C syntax, the other pieces as edge cases) and its value at the
+# --at sizes; the sections of further analyses; then the diagnostics in
+# compiler style `path:line:col: severity: message`.
+
+from __future__ import annotations
+
+from typing import Any
+
+from tripcount import ir
+from tripcount.analysis.results import Count, FileResult, NestResult, Report
+from tripcount.report.base import Reporter
+
+
+def expr_text(e: ir.Expr | None) -> str:
+    """C text of an IR expression (for pragma clauses and labels)."""
+    if e is None:
+        return ""
+    if isinstance(e, ir.IntLit):
+        return str(e.value)
+    if isinstance(e, ir.FloatLit):
+        return e.text
+    if isinstance(e, ir.Name):
+        return e.name
+    if isinstance(e, ir.Unary):
+        return e.op + expr_text(e.operand)
+    if isinstance(e, ir.Binary):
+        return f"{expr_text(e.left)} {e.op} {expr_text(e.right)}"
+    if isinstance(e, ir.Call):
+        return f"{e.func}({', '.join(expr_text(a) for a in e.args)})"
+    if isinstance(e, ir.ArrayRef):
+        return e.array + "".join(f"[{expr_text(i)}]" for i in e.indices)
+    if isinstance(e, ir.Ternary):
+        return f"{expr_text(e.cond)} ? {expr_text(e.then)} : {expr_text(e.other)}"
+    if isinstance(e, ir.Cast):
+        return f"({e.type_name}){expr_text(e.operand)}"
+    if isinstance(e, ir.Opaque):
+        return e.text
+    return "?"
+
+
+def fmt_value(v: Any) -> str:
+    """An exact value with thousands separators."""
+    if v is None:
+        return "-"
+    if isinstance(v, int):
+        return f"{v:,}"
+    return str(v)
+
+
+def formula_lines(c: Count) -> tuple[str, list[str]]:
+    """Main formula text and the edge-case lines of a count."""
+    if c.formula is None:
+        return (c.note or "unknown"), []
+    pieces = list(c.formula.pieces)
+    if not pieces:
+        return "0", []
+    main = pieces[0]
+    head = main.poly.to_expr()
+    if main.when and main.when != "true":
+        head += f"   when {main.when}"
+    rest = [f"{p.poly.to_expr()}   when {p.when}" for p in pieces[1:]]
+    if main.when and main.when != "true":
+        rest.append("0 otherwise")
+    return head, rest
+
+
+class TextReporter(Reporter):
+    """Human-readable report."""
+
+    width = 100
+
+    def write(self, report: Report) -> None:
+        """Render all files, then a one-line summary."""
+        at = ", ".join(f"{k}={v}" for k, v in report.at.items())
+        n_nests = 0
+        for fr in report.files:
+            n_nests += len(fr.nests)
+            self.write_file(fr, at)
+        n_diag = sum(len(f.all_diagnostics()) for f in report.files)
+        self.stream.write(f"{len(report.files)} file(s), {n_nests} nest(s), {n_diag} diagnostic(s)"
+                          + (f"; values at {at}" if at else "; give --at N=... for values") + "\n")
+
+    def write_file(self, fr: FileResult, at: str) -> None:
+        """One file: its nests and diagnostics."""
+        w = self.stream.write
+        for nr in fr.nests:
+            self.write_nest(fr, nr)
+        for d in fr.all_diagnostics():
+            w(d.render() + "\n")
+        if fr.nests or fr.all_diagnostics():
+            w("\n")
+
+    def write_nest(self, fr: FileResult, nr: NestResult) -> None:
+        """One nest: header, loop tree with statements, extra sections."""
+        w = self.stream.write
+        n = nr.nest
+        params = ", ".join(n.params) if n.params else "none"
+        w(f"{fr.path}:{n.span.line}:{n.span.column}: nest in {n.function}()   parameters: {params}\n")
+        for name, text in n.symbolic.items():
+            w(f"    {name} stands for {text}\n")
+        by_parent: dict[int | None, list[int]] = {}
+        for lr in nr.loops:
+            by_parent.setdefault(lr.loop.parent, []).append(lr.loop.index)
+        stmts_in: dict[int | None, list[int]] = {}
+        for k, sr in enumerate(nr.statements):
+            owner = sr.stmt.loops[-1] if sr.stmt.loops else None
+            stmts_in.setdefault(owner, []).append(k)
+        loops = {lr.loop.index: lr for lr in nr.loops}
+
+        def row(left: str, value: str) -> None:
+            pad = max(1, self.width - len(left) - len(value))
+            w(left + " " * pad + value + "\n")
+
+        def walk(index: int, indent: int) -> None:
+            lr = loops[index]
+            loop = lr.loop
+            pre = "  " * indent
+            omp = ""
+            if loop.omp is not None:
+                omp = f"  [omp {loop.omp.directive}" + (f" schedule({loop.omp.schedule}" + (
+                    f", {expr_text(loop.omp.chunk)}" if loop.omp.chunk is not None else "") + ")"
+                    if loop.omp.schedule else "") + "]"
+            if lr.trips.formula is None and lr.trips.value is None:
+                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips: {lr.trips.note or 'unknown'}", "")
+            else:
+                head, _ = formula_lines(lr.trips)
+                per = ""
+                if loop.depth > 0 and lr.per_entry is not None and lr.per_entry.formula is not None:
+                    ph, _ = formula_lines(lr.per_entry)
+                    per = f" ({ph.split('   when')[0]} per entry)"
+                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips {head.split('   when')[0]}{per}",
+                    f"= {fmt_value(lr.trips.value)}" if lr.trips.value is not None else "")
+            for key, extra in lr.extras.items():
+                if hasattr(extra, "text_lines"):
+                    for line in extra.text_lines():
+                        w(f"{pre}    {line}\n")
+            for k in stmts_in.get(index, []):
+                stmt_rows(k, indent + 1)
+            for child in by_parent.get(index, []):
+                walk(child, indent + 1)
+
+        def stmt_rows(k: int, indent: int) -> None:
+            sr = nr.statements[k]
+            pre = "  " * indent
+            text = " ".join(sr.stmt.text.split())
+            if len(text) > 48:
+                text = text[:45] + "..."
+            head, rest = formula_lines(sr.count)
+            row(f"{pre}{sr.stmt.id} (line {sr.stmt.span.line}) {text}", "")
+            row(f"{pre}    runs {head}", f"= {fmt_value(sr.count.value)}" if sr.count.value is not None else "")
+            for line in rest:
+                w(f"{pre}      edge case: {line}\n")
+            for key, extra in sr.extras.items():
+                if hasattr(extra, "text_lines"):
+                    for line in extra.text_lines():
+                        w(f"{pre}    {line}\n")
+
+        for k in stmts_in.get(None, []):
+            stmt_rows(k, 1)
+        for root in by_parent.get(None, []):
+            walk(root, 1)
+        self.write_summary(nr)
+        for key, extra in nr.extras.items():
+            if hasattr(extra, "text_lines"):
+                for line in extra.text_lines():
+                    w(f"  {line}\n")
+        w("\n")
+
+    def write_summary(self, nr: NestResult) -> None:
+        """Degree of the dominant statement count and what doubling the sizes does."""
+        best = None
+        for sr in nr.statements:
+            f = sr.count.formula
+            if f is None or not f.pieces:
+                continue
+            d = f.degree()
+            if best is None or d > best[0]:
+                best = (d, sr, f)
+        if best is None or not nr.nest.params:
+            return
+        d, sr, f = best
+        self.stream.write(f"  work: degree {d} in the sizes (dominant {sr.stmt.id} ~ {f.leading()}); "
+                          f"doubling all sizes multiplies it by about {2 ** d}\n")
