@@ -108,7 +108,9 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
             fallback = "give --at sizes for exact values"
         diags.append(FormulaLimit(span, what=what, reason=str(exc), fallback=fallback))
         return Count(value=v, formula=None, note="formula not available: " + str(exc))
-    return Count(value=value_at(formula, s, options), formula=formula)
+    c = Count(value=value_at(formula, s, options), formula=formula)
+    c.locate(options.sizes(params_of(s)))
+    return c
 
 
 def outer_as_params(domain: isl.Set, n_outer: int) -> isl.Set:

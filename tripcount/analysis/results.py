@@ -43,6 +43,17 @@ class Count:
     formula: Any = None
     note: str | None = None
     exact: bool = True
+    at_piece: int | None = None  # index of the piece that holds at the --at sizes
+
+    def locate(self, point: dict[str, int] | None) -> None:
+        """Remember which piece of the formula holds at `point` (the --at sizes)."""
+        self.at_piece = None
+        if point is None or self.formula is None:
+            return
+        for k, piece in enumerate(self.formula.pieces):
+            if piece.contains(point):
+                self.at_piece = k
+                return
 
     def to_json(self) -> dict[str, Any]:
         """JSON form: value, pieces, degree, leading (and note when set)."""
@@ -53,6 +64,8 @@ class Count:
             out["pieces"] = None
         if self.note:
             out["note"] = self.note
+        if self.at_piece is not None:
+            out["at_piece"] = self.at_piece
         return out
 
 

@@ -52,20 +52,37 @@ def fmt_value(v: Any) -> str:
 
 
 def formula_lines(c: Count) -> tuple[str, list[str]]:
-    """Main formula text and the edge-case lines of a count."""
+    """Main formula text (with its condition) and the edge-case lines of a count.
+
+    The main piece is the generic one, unless --at sizes fall into another
+    piece: then that piece leads, so the formula shown is the one the value
+    on the same line comes from.
+    """
     if c.formula is None:
         return (c.note or "unknown"), []
     pieces = list(c.formula.pieces)
     if not pieces:
         return "0", []
-    main = pieces[0]
-    head = main.poly.to_expr()
-    if main.when and main.when != "true":
-        head += f"   when {main.when}"
-    rest = [f"{p.poly.to_expr()}   when {p.when}" for p in pieces[1:]]
-    if main.when and main.when != "true":
+    lead = c.at_piece if c.at_piece is not None else 0
+    order = [lead] + [k for k in range(len(pieces)) if k != lead]
+    def text(k: int) -> str:
+        p = pieces[k]
+        return p.poly.to_expr() + (f"   when {p.when}" if p.when and p.when != "true" else "")
+    head = text(lead)
+    rest = [text(k) for k in order[1:]]
+    if any(p.when and p.when != "true" for p in pieces):
         rest.append("0 otherwise")
     return head, rest
+
+
+def short_formula(c: Count) -> str:
+    """One-line formula for a loop row: the leading piece, marked when piecewise."""
+    head, rest = formula_lines(c)
+    expr, _, when = head.partition("   when ")
+    nonzero = [r for r in rest if r != "0 otherwise"]
+    if nonzero:
+        return f"{expr} (when {when}; {len(nonzero)} more case{'s' if len(nonzero) > 1 else ''})"
+    return expr
 
 
 class TextReporter(Reporter):
@@ -127,21 +144,26 @@ class TextReporter(Reporter):
             if lr.trips.formula is None and lr.trips.value is None:
                 row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips: {lr.trips.note or 'unknown'}", "")
             else:
-                head, _ = formula_lines(lr.trips)
+                head = short_formula(lr.trips)
                 per = ""
                 if loop.depth > 0 and lr.per_entry is not None and lr.per_entry.formula is not None:
-                    ph, _ = formula_lines(lr.per_entry)
-                    per = f" ({ph.split('   when')[0]} per entry)"
-                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips {head.split('   when')[0]}{per}",
+                    per = f" ({short_formula(lr.per_entry)} per entry)"
+                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips {head}{per}",
                     f"= {fmt_value(lr.trips.value)}" if lr.trips.value is not None else "")
             for key, extra in lr.extras.items():
                 if hasattr(extra, "text_lines"):
                     for line in extra.text_lines():
                         w(f"{pre}    {line}\n")
-            for k in stmts_in.get(index, []):
-                stmt_rows(k, indent + 1)
-            for child in by_parent.get(index, []):
-                walk(child, indent + 1)
+            # statements and inner loops in source order
+            items = [((nr.statements[k].stmt.span.line, nr.statements[k].stmt.span.column), 0, k)
+                     for k in stmts_in.get(index, [])]
+            items += [((loops[c].loop.span.line, loops[c].loop.span.column), 1, c)
+                      for c in by_parent.get(index, [])]
+            for _, kind, k in sorted(items):
+                if kind == 0:
+                    stmt_rows(k, indent + 1)
+                else:
+                    walk(k, indent + 1)
 
         def stmt_rows(k: int, indent: int) -> None:
             sr = nr.statements[k]

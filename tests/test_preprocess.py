@@ -1,0 +1,264 @@
+# Tests of tripcount/frontend/preprocess.py: tokens and their positions,
+# comments and continuations, directives, macro expansion (C11 6.10.3, from
+# memory: a macro is not re-expanded inside its own expansion; arguments are
+# expanded before substitution unless next to # or ##), conditionals, and the
+# pragma tokens handed to the parser.
+
+from __future__ import annotations
+
+import os
+
+from tripcount.frontend import preprocess as pp
+from tripcount.frontend.preprocess import SourceMap, char_value, int_value, preprocess, tokenize
+
+INPUTS = os.path.join(os.path.dirname(os.path.abspath(__file__)), "inputs", "frontend")
+
+
+def values(text: str) -> list[str]:
+    """The spellings of the preprocessed tokens."""
+    return [t.value for t in preprocess(text).tokens]
+
+
+def codes(text: str) -> list[str]:
+    return [d.code for d in preprocess(text).diagnostics]
+
+
+def pos(text: str, tok: pp.Tok) -> tuple[int, int, int, int]:
+    sm = SourceMap(text)
+    return sm.position(tok.start) + sm.position(tok.end)
+
+
+# ------------------------------------------------------------------ tokens
+def test_tokens_and_positions():
+    text = "for (i = 0; i <= n;\n\ti += 2) a[i] = .5e1f;"
+    toks = tokenize(text)
+    assert [t.value for t in toks] == [
+        "for", "(", "i", "=", "0", ";", "i", "<=", "n", ";", "i", "+=", "2", ")",
+        "a", "[", "i", "]", "=", ".5e1f", ";"]
+    assert [t.kind for t in toks[:5]] == ["id", "punct", "id", "punct", "num"]
+    plus = toks[11]
+    assert pos(text, plus) == (2, 4, 2, 6)  # a tab is one column; the end is exclusive
+
+
+def test_comments_are_dropped_and_positions_kept():
+    text = "a /* tide\n table */ = // note\n b;"
+    toks = tokenize(text)
+    assert [t.value for t in toks] == ["a", "=", "b", ";"]
+    assert pos(text, toks[1]) == (2, 11, 2, 12)
+    assert pos(text, toks[2]) == (3, 2, 3, 3)
+
+
+def test_line_continuation_maps_back_to_the_original():
+    text = "x = al\\\npha + 1;"
+    toks = tokenize(text)
+    assert [t.value for t in toks] == ["x", "=", "alpha", "+", "1", ";"]
+    assert pos(text, toks[2]) == (1, 5, 2, 4)
+    assert pos(text, toks[3]) == (2, 5, 2, 6)
+
+
+def test_crlf_line_endings():
+    text = "a = 1;\r\nb = 2;\r\n"
+    toks = tokenize(text)
+    assert pos(text, toks[4]) == (2, 1, 2, 2)
+
+
+def test_strings_chars_and_other_characters():
+    toks = tokenize("s = \"a \\\" b\"; c = 'x'; @ `")
+    assert [(t.kind, t.value) for t in toks if t.kind != "punct"] == [
+        ("id", "s"), ("str", '"a \\" b"'), ("id", "c"), ("chr", "'x'"), ("other", "@"),
+        ("other", "`")]
+
+
+def test_unterminated_comment():
+    pre = preprocess("int a;\n/* never closed\nint b;")
+    assert [t.value for t in pre.tokens] == ["int", "a", ";"]
+    assert [d.code for d in pre.diagnostics] == ["TC105"]
+    assert "2:1" in pre.diagnostics[0].message
+
+
+def test_source_map():
+    sm = SourceMap("ab\ncd\n")
+    assert sm.position(0) == (1, 1)
+    assert sm.position(3) == (2, 1)
+    assert sm.offset(2, 2) == 4
+    assert sm.offset(99, 1) == 6
+
+
+def test_literal_values():
+    # C11 6.4.4.1: hexadecimal, octal and suffixed integer constants
+    assert [int_value(s) for s in ["0x1F", "017", "10u", "7UL", "5ll", "0", "0b11"]] == \
+        [31, 15, 10, 7, 5, 0, 3]
+    assert int_value("09") is None
+    assert [char_value(s) for s in ["'a'", "'\\n'", "'\\0'", "'\\x41'", "L'b'"]] == \
+        [97, 10, 0, 65, 98]
+
+
+# ------------------------------------------------------------------ macros
+def test_object_and_function_like_macros_nest():
+    text = "#define N 64\n#define SQ(x) ((x) * (x))\n#define AREA SQ(N)\nv = AREA;"
+    assert values(text) == ["v", "=", "(", "(", "64", ")", "*", "(", "64", ")", ")", ";"]
+
+
+def test_expansion_carries_the_invocation_position():
+    text = "#define MIN(a, b) ((a) < (b) ? (a) : (b))\n  m = MIN(i, n);"
+    pre = preprocess(text)
+    expanded = pre.tokens[2:-1]
+    assert {pos(text, t) for t in expanded} == {(2, 7, 2, 16)}
+    assert pos(text, pre.tokens[0]) == (2, 3, 2, 4)
+
+
+def test_macro_is_not_expanded_inside_itself():
+    text = "#define SELF SELF + 1\nx = SELF;"
+    pre = preprocess(text)
+    assert [t.value for t in pre.tokens] == ["x", "=", "SELF", "+", "1", ";"]
+    assert [d.code for d in pre.diagnostics] == ["TC103"]
+    assert "'SELF'" in pre.diagnostics[0].message
+
+
+def test_mutual_recursion_stops():
+    text = "#define A B + 1\n#define B A * 2\nx = A;"
+    assert values(text) == ["x", "=", "A", "*", "2", "+", "1", ";"]
+
+
+def test_arguments_are_expanded_before_substitution():
+    text = "#define ID(x) x\n#define TWICE(x) ID(x) ID(x)\ny = ID(ID(3)) TWICE(ID(4));"
+    assert values(text) == ["y", "=", "3", "4", "4", ";"]
+
+
+def test_function_like_name_without_arguments_is_a_name():
+    text = "#define F(x) (x + 1)\nint F; y = F(2);"
+    assert values(text) == ["int", "F", ";", "y", "=", "(", "2", "+", "1", ")", ";"]
+
+
+def test_arguments_with_parentheses_and_commas():
+    text = "#define FST(a, b) a\nx = FST(f(1, 2), g(3));"
+    assert values(text) == ["x", "=", "f", "(", "1", ",", "2", ")", ";"]
+
+
+def test_stringify_paste_and_variadic():
+    text = ("#define STR(x) #x\n#define CAT(a, b) a ## b\n#define CALL(f, ...) f(__VA_ARGS__)\n"
+            "s = STR(tide  level); v = CAT(wave, 3); CALL(g, 1, 2);")
+    assert values(text) == ["s", "=", '"tide level"', ";", "v", "=", "wave3", ";",
+                            "g", "(", "1", ",", "2", ")", ";"]
+
+
+def test_undef_and_redefinition():
+    text = "#define N 1\na = N;\n#undef N\nb = N;\n#define N 2\nc = N;"
+    assert values(text) == ["a", "=", "1", ";", "b", "=", "N", ";", "c", "=", "2", ";"]
+
+
+def test_macros_are_recorded():
+    pre = preprocess("#define N 64\n#define IDX(i, j) ((i) * N + (j))\n#define E\n")
+    assert [(m.name, m.params, m.body) for m in pre.macros] == [
+        ("N", None, "64"), ("IDX", ("i", "j"), "((i) * N + (j))"), ("E", None, "")]
+    assert (pre.macros[1].span.line, pre.macros[1].span.column) == (2, 1)
+
+
+def test_multi_line_macro():
+    text = "#define SUM(a, b) \\\n   ((a) + \\\n    (b))\nx = SUM(1, 2);"
+    assert values(text) == ["x", "=", "(", "(", "1", ")", "+", "(", "2", ")", ")", ";"]
+
+
+def test_bad_macro_calls():
+    assert codes("#define F(a, b) a\nx = F(1);") == ["TC110"]
+    assert codes("#define F(a) a\nx = F(1;") == ["TC110"]
+    assert values("#define F(a) a\nx = F(1;") == ["x", "=", "F", "(", "1", ";"]
+
+
+def test_bad_define():
+    assert codes("#define\n#define (x) 1\n#define F(a b) a\n#undef\n") == \
+        ["TC109", "TC109", "TC109", "TC109"]
+
+
+def test_exponential_expansion_stops(monkeypatch):
+    monkeypatch.setattr(pp, "EXPANSION_FLOOR", 10_000)
+    lines = ["#define A0 x x"] + [f"#define A{k} A{k - 1} A{k - 1}" for k in range(1, 40)]
+    pre = preprocess("\n".join(lines) + "\ny = A39;")
+    assert [d.code for d in pre.diagnostics] == ["TC108"]
+    assert len(pre.tokens) < 20_000
+
+
+def test_deeply_nested_macro_arguments():
+    text = "#define F(x) (x)\ny = " + "F(" * 200 + "1" + ")" * 200 + ";"
+    pre = preprocess(text)
+    assert "TC108" in [d.code for d in pre.diagnostics]  # stops expanding, does not crash
+
+
+# ------------------------------------------------------------------ conditionals
+def test_if_zero_and_one():
+    assert values("#if 0\na;\n#else\nb;\n#endif\n#if 1\nc;\n#endif") == ["b", ";", "c", ";"]
+
+
+def test_elif_defined_and_expressions():
+    text = ("#define NB 64\n#if defined(NB) && NB > 32\nwide;\n#elif NB > 8\nmid;\n#else\nnarrow;\n"
+            "#endif\n#if !defined NB || (NB % 3 == 1) ? 1 : 0\nodd;\n#endif\n"
+            "#if UNKNOWN_NAME\nno;\n#elif (2 + 3) * 4 == 20 && -1 < 0\nyes;\n#endif")
+    assert values(text) == ["wide", ";", "odd", ";", "yes", ";"]
+
+
+def test_ifdef_ifndef_and_nesting():
+    text = ("#ifdef NO_SUCH\n#if 1\nx;\n#endif\n#else\ny;\n#endif\n"
+            "#ifndef GUARD\n#define GUARD\nz;\n#endif\n#ifndef GUARD\nw;\n#endif")
+    assert values(text) == ["y", ";", "z", ";"]
+
+
+def test_directives_in_inactive_branches_are_ignored():
+    text = "#if 0\n#define N 1\n#error no\n#pragma omp for\n#endif\nN;"
+    pre = preprocess(text)
+    assert [t.value for t in pre.tokens] == ["N", ";"]
+    assert pre.diagnostics == []
+
+
+def test_unevaluable_condition_takes_first_branch():
+    pre = preprocess('#if __has_include(<omp.h>)\na;\n#else\nb;\n#endif')
+    assert [t.value for t in pre.tokens] == ["a", ";"]
+    assert [d.code for d in pre.diagnostics] == ["TC113"]
+    assert "1:1" in pre.diagnostics[0].message
+
+
+def test_huge_values_are_not_computed():
+    pre = preprocess("#if (1 << 1000) || 7 * 100000000000000000000000000000000000000000\na;\n#endif")
+    assert [t.value for t in pre.tokens] == ["a", ";"]
+    assert [d.code for d in pre.diagnostics] == ["TC113"]
+
+
+def test_openmp_is_predefined():
+    assert values("#ifdef _OPENMP\nomp;\n#endif") == ["omp", ";"]
+
+
+def test_conditional_problems():
+    assert codes("#endif\n#else\n") == ["TC107", "TC107"]
+    pre = preprocess("#if 1\na;\n")
+    assert [d.code for d in pre.diagnostics] == ["TC106"]
+    assert [t.value for t in pre.tokens] == ["a", ";"]
+
+
+def test_include_ignored_error_reported():
+    pre = preprocess('#include <stdio.h>\n#include "velin.h"\n#error tide table missing\nx;')
+    assert [t.value for t in pre.tokens] == ["x", ";"]
+    assert [d.code for d in pre.diagnostics] == ["TC114"]
+    assert "tide table missing" in pre.diagnostics[0].message
+
+
+# ------------------------------------------------------------------ pragmas
+def test_omp_pragma_becomes_one_token():
+    text = "#define CH 8\n#pragma omp parallel for schedule(static, CH)\nfor (;;);\n#pragma GCC unroll 4\n"
+    pre = preprocess(text)
+    p = pre.tokens[0]
+    assert p.kind == "pragma"
+    assert p.value == "parallel for schedule(static, CH)"
+    assert [t.value for t in p.extra] == ["parallel", "for", "schedule", "(", "static", ",", "8", ")"]
+    assert pos(text, p) == (2, 1, 2, 46)
+    assert [t.value for t in pre.tokens[1:]] == ["for", "(", ";", ";", ")", ";"]
+
+
+def test_harbour_macros_file():
+    with open(os.path.join(INPUTS, "harbour_macros.c"), encoding="utf-8") as f:
+        text = f.read()
+    pre = preprocess(text)
+    names = [m.name for m in pre.macros]
+    assert names == ["NB", "HALF", "SQ", "IDX", "LOOP", "SELF", "LONG_SUM", "WIDE", "TIDE_TABLE",
+                     "TMP"]
+    assert "NB" in pre.defined and "TMP" not in pre.defined
+    assert [d.code for d in pre.diagnostics] == ["TC103"]
+    assert "never" not in [t.value for t in pre.tokens]

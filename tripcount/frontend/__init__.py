@@ -1,0 +1,120 @@
+# The front end: C source text -> ir.TranslationUnit.
+#
+# preprocess.py (comments, continuations, directives, macros; positions kept
+# in the original file) -> parser.py (scanner for function definitions, LALR
+# grammar from grammar/loops.lark, error recovery) -> build.py (callbacks that
+# build the IR). Nothing here raises on bad input: what cannot be read becomes
+# a diagnostic (codes TC100..TC189, see frontend/diagnostics.py) and the rest
+# of the file is read on.
+
+from __future__ import annotations
+
+import gc
+
+from tripcount import ir
+from tripcount.diagnostics import Diagnostic, InvalidEncoding
+from tripcount.frontend.build import Context
+from tripcount.frontend.diagnostics import (
+    BadDirective,
+    BadMacroCall,
+    ConditionNotEvaluated,
+    ErrorDirective,
+    ExpansionLimit,
+    FileTooLarge,
+    FrontEndError,
+    FunctionSkipped,
+    MacroRecursion,
+    NestingTooDeep,
+    OmpClauseProblem,
+    StrayDirective,
+    StrayPragma,
+    SyntaxProblem,
+    UnbalancedBraces,
+    UnterminatedComment,
+    UnterminatedConditional,
+)
+from tripcount.frontend.parser import UnitParser, engine
+from tripcount.frontend.preprocess import SourceMap
+from tripcount.frontend.preprocess import preprocess as _preprocess
+
+__all__ = [
+    "BadDirective", "BadMacroCall", "ConditionNotEvaluated", "ErrorDirective",
+    "ExpansionLimit", "FileTooLarge", "FrontEndError", "FunctionSkipped", "MacroRecursion", "NestingTooDeep",
+    "OmpClauseProblem", "StrayDirective", "StrayPragma", "SyntaxProblem",
+    "UnbalancedBraces", "UnterminatedComment", "UnterminatedConditional",
+    "decode", "parse_file", "parse_text",
+]
+
+
+def parse_text(text: str, path: str = "<input>",
+               snippet: bool = False) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
+    """Read C source text into IR.
+
+    With `snippet=True` the text may also be a function body or bare
+    statements; those become the body of a function named "<snippet>".
+    Diagnostics carry `path` and positions in `text`.
+    """
+    if text.startswith("\ufeff"):
+        text = text[1:]  # a byte-order mark is not a column anyone sees
+    eng = engine()
+    # Reading makes millions of small acyclic objects; the cycle collector
+    # would rescan them again and again (run time grows faster than the file),
+    # so it pauses while a file is read.
+    gc_was_enabled = gc.isenabled()
+    gc.disable()
+    macros: tuple[ir.Macro, ...] = ()
+    whole: ir.Span | None = None
+    try:
+        pre = _preprocess(text)
+        macros = tuple(pre.macros)
+        whole = pre.source.end_span()
+        diags: list[Diagnostic] = list(pre.diagnostics)
+        with eng.lock:
+            # the callbacks are shared by every parse; they read this file's context
+            eng.builder.ctx = Context(pre.source, diags)
+            try:
+                unit = UnitParser(pre, diags)
+                functions, globals_ = unit.parse_unit(snippet)
+            finally:
+                eng.builder.ctx = None
+    except Exception as exc:  # the tool never crashes on a file: report and read nothing
+        diags = [FrontEndError(ir.Span(1, 1, 1, 1), what=f"{type(exc).__name__}: {exc}")]
+        functions, globals_ = [], []
+    finally:
+        if gc_was_enabled:
+            gc.enable()
+    for dg in diags:
+        dg.with_path(path)
+    problems = tuple(ir.ParseProblem(dg.span, dg.message) for dg in diags
+                     if dg.severity in ("error", "warning"))
+    if whole is None:
+        whole = SourceMap(text).end_span()
+    tu = ir.TranslationUnit(whole, path, tuple(functions), tuple(globals_),
+                            macros, problems)
+    return tu, diags
+
+
+def decode(data: bytes) -> tuple[str, Diagnostic | None]:
+    """UTF-8 text of source bytes; invalid bytes become U+FFFD and one diagnostic."""
+    try:
+        return data.decode("utf-8"), None
+    except UnicodeDecodeError as exc:
+        before = data[:exc.start].decode("utf-8", errors="replace")
+        if before.startswith("\ufeff"):
+            before = before[1:]
+        line = before.count("\n") + 1
+        column = len(before) - (before.rfind("\n") + 1) + 1
+        diag = InvalidEncoding(ir.Span(line, column, line, column + 1),
+                               byte=f"0x{data[exc.start]:02x}")
+        return data.decode("utf-8", errors="replace"), diag
+
+
+def parse_file(path: str) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
+    """Read a C file into IR (OSError propagates; bad bytes are a diagnostic)."""
+    with open(path, "rb") as f:
+        data = f.read()
+    text, bad = decode(data)
+    tu, diags = parse_text(text, path=path)
+    if bad is not None:
+        diags.insert(0, bad.with_path(path))
+    return tu, diags

@@ -1,0 +1,784 @@
+# Stage 1 of the pipeline: the preprocessor.
+#
+# Turns source text into a list of tokens with positions in the user's
+# original file: line continuations are spliced, comments dropped, directives
+# obeyed (#define/#undef, #if-family, #include ignored), macros expanded, and
+# `#pragma omp ...` lines kept as single pragma tokens for the parser. Tokens
+# produced by a macro expansion carry the offsets of the macro invocation, so
+# every later stage points at what the user wrote. Nothing here raises on bad
+# input; problems become diagnostics and the text is read on.
+
+from __future__ import annotations
+
+import bisect
+import re
+from dataclasses import dataclass, field
+
+from tripcount import ir
+from tripcount.diagnostics import Diagnostic
+from tripcount.frontend import diagnostics as d
+
+# Macros every C compiler predefines that change which branch of common
+# #if tests is taken. _OPENMP is defined because tripcount reads OpenMP
+# pragmas: code guarded by `#ifdef _OPENMP` is the code that runs in parallel.
+PREDEFINED = {
+    "__STDC__": "1",
+    "__STDC_VERSION__": "201112L",
+    "__STDC_HOSTED__": "1",
+    "_OPENMP": "201511",
+}
+
+# Expansion budget: tokens produced by all expansions together, as a multiple
+# of the input size (plus a floor), and how deep macro arguments may nest.
+EXPANSION_FACTOR = 20
+EXPANSION_FLOOR = 2_000_000
+MAX_ARG_DEPTH = 64
+
+
+class SourceMap:
+    """The original text and its line starts: converts offsets to 1-based line/column."""
+
+    def __init__(self, text: str) -> None:
+        self.text = text
+        starts = [0]
+        find = text.find
+        i = find("\n")
+        while i >= 0:
+            starts.append(i + 1)
+            i = find("\n", i + 1)
+        self.line_starts = starts
+
+    def position(self, offset: int) -> tuple[int, int]:
+        """(line, column) of an offset; tabs count as one column."""
+        line = bisect.bisect_right(self.line_starts, offset)
+        return line, offset - self.line_starts[line - 1] + 1
+
+    def offset(self, line: int, column: int) -> int:
+        """The offset of a (line, column) position, clamped to the text."""
+        if line < 1:
+            return 0
+        if line > len(self.line_starts):
+            return len(self.text)
+        return max(0, min(self.line_starts[line - 1] + column - 1, len(self.text)))
+
+    def span(self, start: int, end: int) -> ir.Span:
+        """The span of the offsets [start, end)."""
+        a, b = self.position(start)
+        c, e = self.position(max(start, end))
+        return ir.Span(a, b, c, e)
+
+    def slice(self, span: ir.Span) -> str:
+        """The original text of a span."""
+        return self.text[self.offset(span.line, span.column):self.offset(span.end_line, span.end_column)]
+
+    def end_span(self) -> ir.Span:
+        """The span of the whole text."""
+        return self.span(0, len(self.text))
+
+
+class Tok:
+    """One preprocessing token.
+
+    kind: 'id', 'num', 'str', 'chr', 'punct', 'other' or 'pragma'. `start` and
+    `end` are offsets into the original text (for macro output: the
+    invocation). `hide` is the set of macro names not to expand again (C's
+    rule against recursive expansion). `bol` marks the first token of a line.
+    For a pragma token, `extra` holds its macro-expanded tokens after `omp`.
+    """
+
+    __slots__ = ("kind", "value", "start", "end", "hide", "bol", "space", "extra")
+
+    def __init__(self, kind: str, value: str, start: int, end: int, bol: bool = False,
+                 space: bool = False) -> None:
+        self.kind = kind
+        self.value = value
+        self.start = start
+        self.end = end
+        self.hide: frozenset[str] | None = None
+        self.bol = bol
+        self.space = space  # whitespace (or a comment) before this token
+        self.extra: list[Tok] | None = None
+
+    def copy_at(self, start: int, end: int, hide: frozenset[str] | None) -> Tok:
+        """This token's kind and spelling at another position."""
+        t = Tok(self.kind, self.value, start, end, False, self.space)
+        t.hide = hide
+        return t
+
+    def __repr__(self) -> str:
+        return f"Tok({self.kind}, {self.value!r}, {self.start}:{self.end})"
+
+
+_TOKEN_RE = re.compile(
+    r"""
+     (?P<nl>\n)
+    |(?P<ws>[ \t\r\f\v]+)
+    |(?P<lc>//[^\n]*)
+    |(?P<bc>/\*.*?\*/)
+    |(?P<ubc>/\*)
+    |(?P<num>\.?[0-9](?:[eEpP][+-]|[0-9A-Za-z_.])*)
+    |(?P<str>(?:u8|[uUL])?"(?:\\.|[^"\\\n])*")
+    |(?P<chr>(?:u8|[uUL])?'(?:\\.|[^'\\\n])*')
+    |(?P<id>[^\W\d][\w$]*|\$[\w$]*)
+    |(?P<punct>\.\.\.|<<=|>>=|->|\+\+|--|<<|>>|<=|>=|==|!=|&&|\|\||[-+*/%&|^]=|\#\#|[][(){};,:?~!=<>+\-*/%&|^.\#])
+    |(?P<other>.)
+    """,
+    re.X | re.S,
+)
+
+_SPLICE_RE = re.compile(r"\\[ \t]*\r?\n")
+
+
+class _Splices:
+    """Maps offsets in the spliced text (continuations removed) back to the original."""
+
+    def __init__(self, text: str) -> None:
+        self.cuts: list[int] = []  # spliced offsets where text was removed
+        self.removed: list[int] = []  # total removed up to and including that cut
+        parts: list[str] = []
+        last = 0
+        total = 0
+        for m in _SPLICE_RE.finditer(text):
+            parts.append(text[last:m.start()])
+            self.cuts.append(m.start() - total)
+            total += m.end() - m.start()
+            self.removed.append(total)
+            last = m.end()
+        parts.append(text[last:])
+        self.text = "".join(parts) if self.cuts else text
+
+    def start(self, s: int) -> int:
+        """Original offset of a token start at spliced offset `s`."""
+        k = bisect.bisect_right(self.cuts, s)
+        return s + (self.removed[k - 1] if k else 0)
+
+    def end(self, s: int) -> int:
+        """Original offset of an exclusive token end at spliced offset `s`."""
+        k = bisect.bisect_left(self.cuts, s)
+        return s + (self.removed[k - 1] if k else 0)
+
+
+def tokenize(text: str, diags: list[Diagnostic] | None = None,
+             smap: SourceMap | None = None) -> list[Tok]:
+    """Split source text into preprocessing tokens (comments and whitespace dropped)."""
+    sp = _Splices(text)
+    spliced = sp.text
+    mapped = bool(sp.cuts)
+    out: list[Tok] = []
+    append = out.append
+    bol = True
+    space = False
+    for m in _TOKEN_RE.finditer(spliced):
+        kind = m.lastgroup
+        if kind == "nl":
+            bol = True
+            space = True
+            continue
+        if kind == "ws" or kind == "lc" or kind == "bc":
+            space = True
+            continue
+        s, e = m.span()
+        if kind == "ubc":
+            if diags is not None and smap is not None:
+                line, col = smap.position(sp.start(s) if mapped else s)
+                diags.append(d.UnterminatedComment(ir.Span(line, col, line, col + 2),
+                                                   where=d.where(line, col)))
+            break
+        if mapped:
+            s, e = sp.start(s), sp.end(e)
+        append(Tok(kind, m.group(), s, e, bol, space))
+        bol = False
+        space = False
+    return out
+
+
+@dataclass
+class MacroDef:
+    """A macro as the expander uses it."""
+
+    name: str
+    params: tuple[str, ...] | None
+    body: list[Tok]
+    variadic: bool = False
+    index: dict[str, int] = field(default_factory=dict)
+
+
+@dataclass
+class Preprocessed:
+    """The preprocessor's result: tokens, the macros defined, and its diagnostics."""
+
+    tokens: list[Tok]
+    macros: list[ir.Macro]
+    diagnostics: list[Diagnostic]
+    source: SourceMap
+    defined: dict[str, MacroDef]
+
+
+_PLACEMARKER = Tok("other", "", 0, 0)
+_PASTE = Tok("other", "##", 0, 0)
+
+
+def _spelling(toks: list[Tok]) -> str:
+    """Tokens as text, with a space where the source had whitespace between them."""
+    parts: list[str] = []
+    for i, t in enumerate(toks):
+        if i and t.space:
+            parts.append(" ")
+        parts.append(t.value)
+    return "".join(parts)
+
+
+def int_value(text: str) -> int | None:
+    """The value of a C integer literal (suffixes U/L/LL stripped), or None."""
+    s = text.rstrip("uUlLzZ")
+    s = s.replace("'", "")
+    try:
+        if s[:2] in ("0x", "0X"):
+            return int(s[2:], 16)
+        if s[:2] in ("0b", "0B"):
+            return int(s[2:], 2)
+        if len(s) > 1 and s[0] == "0":
+            return int(s[1:], 8)
+        return int(s, 10)
+    except ValueError:
+        return None
+
+
+_ESCAPES = {"n": 10, "t": 9, "r": 13, "0": 0, "\\": 92, "'": 39, '"': 34, "a": 7, "b": 8,
+            "f": 12, "v": 11, "?": 63}
+
+
+def char_value(text: str) -> int | None:
+    """The value of a simple character constant such as 'a' or '\\n', or None."""
+    q = text.find("'")
+    body = text[q + 1:-1]
+    if len(body) == 1:
+        return ord(body)
+    if len(body) >= 2 and body[0] == "\\":
+        rest = body[1:]
+        if rest in _ESCAPES:
+            return _ESCAPES[rest]
+        try:
+            if rest[0] in "xX":
+                return int(rest[1:], 16)
+            return int(rest, 8)
+        except ValueError:
+            return None
+    return None
+
+
+class _CondEvalError(Exception):
+    """An #if condition outside what the evaluator reads."""
+
+
+class Preprocessor:
+    """Runs directives and macro expansion over one file's tokens."""
+
+    def __init__(self, text: str) -> None:
+        self.smap = SourceMap(text)
+        self.diags: list[Diagnostic] = []
+        self.macros: dict[str, MacroDef] = {}
+        self.recorded: list[ir.Macro] = []
+        self.budget = 0
+        self.exhausted = False
+        self.recursion_noted: set[str] = set()
+        for name, value in PREDEFINED.items():
+            self.macros[name] = MacroDef(name, None, tokenize(value))
+
+    # ------------------------------------------------------------------ helpers
+    def _span(self, t: Tok) -> ir.Span:
+        return self.smap.span(t.start, t.end)
+
+    def _where(self, t: Tok) -> str:
+        line, col = self.smap.position(t.start)
+        return d.where(line, col)
+
+    # ------------------------------------------------------------------ driver
+    def run(self) -> Preprocessed:
+        """Preprocess the whole text."""
+        toks = tokenize(self.smap.text, self.diags, self.smap)
+        self.budget = EXPANSION_FLOOR + EXPANSION_FACTOR * len(toks)
+        out: list[Tok] = []
+        pending: list[Tok] = []
+        # conditional stack entries: [parent_active, this_branch_taken, some_branch_taken, tok]
+        conds: list[list] = []
+        active = True
+        n = len(toks)
+        i = 0
+        while i < n:
+            t = toks[i]
+            if not (t.bol and t.value == "#" and t.kind == "punct"):
+                if active:
+                    pending.append(t)
+                i += 1
+                continue
+            j = i + 1
+            while j < n and not toks[j].bol:
+                j += 1
+            line = toks[i + 1:j]
+            i = j
+            name = line[0].value if line and line[0].kind == "id" else ""
+            if name in ("if", "ifdef", "ifndef"):
+                if active:
+                    taken = self._condition(name, t, line[1:])
+                else:
+                    taken = False
+                conds.append([active, taken, taken, t, name])
+                active = active and taken
+                continue
+            if name in ("elif", "else", "endif"):
+                if not conds:
+                    self.diags.append(d.StrayDirective(self._span(t), directive=name,
+                                                       where=self._where(t)))
+                    continue
+                top = conds[-1]
+                if name == "endif":
+                    conds.pop()
+                    active = top[0]
+                    continue
+                if top[2]:
+                    top[1] = False
+                elif name == "else":
+                    top[1] = top[2] = True
+                else:
+                    taken = self._condition("elif", t, line[1:]) if top[0] else False
+                    top[1] = top[2] = taken
+                active = top[0] and top[1]
+                continue
+            if not active:
+                continue
+            if name in ("define", "undef"):
+                # a definition changes what later text means: expand what came before
+                self._flush(pending, out)
+                if name == "define":
+                    self._define(t, line[1:])
+                else:
+                    self._undef(t, line[1:])
+            elif name == "pragma":
+                if len(line) > 1 and line[1].value == "omp":
+                    self._flush(pending, out)
+                    p = Tok("pragma", _spelling(line[2:]), t.start, line[-1].end, True)
+                    p.extra = self._expand(line[2:])
+                    out.append(p)
+            elif name in ("error", "warning"):
+                self.diags.append(d.ErrorDirective(self._span(t), directive=name,
+                                                   where=self._where(t),
+                                                   text=_spelling(line[1:])))
+            # include, line, ident and unknown directives are ignored on purpose
+        self._flush(pending, out)
+        for top in conds:
+            tok = top[3]
+            self.diags.append(d.UnterminatedConditional(self._span(tok), directive=top[4],
+                                                        where=self._where(tok)))
+        return Preprocessed(out, self.recorded, self.diags, self.smap, self.macros)
+
+    def _flush(self, pending: list[Tok], out: list[Tok]) -> None:
+        if pending:
+            out.extend(self._expand(pending))
+            pending.clear()
+
+    # ------------------------------------------------------------------ #define
+    def _define(self, hash_tok: Tok, toks: list[Tok]) -> None:
+        if not toks or toks[0].kind != "id":
+            self.diags.append(d.BadDirective(self._span(hash_tok), directive="define",
+                                             where=self._where(hash_tok),
+                                             reason="a macro name is expected"))
+            return
+        name_tok = toks[0]
+        params: tuple[str, ...] | None = None
+        variadic = False
+        body_start = 1
+        if len(toks) > 1 and toks[1].value == "(" and not toks[1].space:
+            names: list[str] = []
+            k = 2
+            ok = False
+            expect_name = True
+            while k < len(toks):
+                v = toks[k]
+                if v.value == ")":
+                    ok = True
+                    k += 1
+                    break
+                if v.value == "," and not expect_name:
+                    expect_name = True
+                elif v.value == "..." and expect_name:
+                    names.append("__VA_ARGS__")
+                    variadic = True
+                    expect_name = False
+                elif v.kind == "id" and expect_name:
+                    names.append(v.value)
+                    expect_name = False
+                elif v.value == "..." and names:
+                    variadic = True  # GNU named variadic `args...`
+                else:
+                    break
+                k += 1
+            if not ok:
+                self.diags.append(d.BadDirective(self._span(hash_tok), directive="define",
+                                                 where=self._where(hash_tok),
+                                                 reason=f"the parameter list of '{name_tok.value}' is malformed"))
+                return
+            params = tuple(names)
+            body_start = k
+        body = toks[body_start:]
+        if body:
+            body[0] = body[0].copy_at(body[0].start, body[0].end, None)
+            body[0].space = False
+        m = MacroDef(name_tok.value, params, body, variadic)
+        if params is not None:
+            m.index = {p: idx for idx, p in enumerate(params)}
+        self.macros[m.name] = m
+        end = toks[-1].end
+        self.recorded.append(ir.Macro(self.smap.span(hash_tok.start, end), m.name, params,
+                                      _spelling(body)))
+
+    def _undef(self, hash_tok: Tok, toks: list[Tok]) -> None:
+        if not toks or toks[0].kind != "id":
+            self.diags.append(d.BadDirective(self._span(hash_tok), directive="undef",
+                                             where=self._where(hash_tok),
+                                             reason="a macro name is expected"))
+            return
+        self.macros.pop(toks[0].value, None)
+
+    # ------------------------------------------------------------------ #if
+    def _condition(self, name: str, hash_tok: Tok, toks: list[Tok]) -> bool:
+        if name in ("ifdef", "ifndef"):
+            if not toks or toks[0].kind != "id":
+                self.diags.append(d.BadDirective(self._span(hash_tok), directive=name,
+                                                 where=self._where(hash_tok),
+                                                 reason="a macro name is expected"))
+                return True
+            known = toks[0].value in self.macros
+            return known if name == "ifdef" else not known
+        try:
+            return self._evaluate(toks) != 0
+        except (_CondEvalError, RecursionError, ZeroDivisionError) as exc:
+            reason = str(exc) or "the expression is not a plain integer expression"
+            if isinstance(exc, ZeroDivisionError):
+                reason = "division by zero"
+            elif isinstance(exc, RecursionError):
+                reason = "nested too deeply"
+            self.diags.append(d.ConditionNotEvaluated(self._span(hash_tok), directive=name,
+                                                      where=self._where(hash_tok), reason=reason))
+            return True
+
+    def _evaluate(self, toks: list[Tok]) -> int:
+        # `defined X` is decided before expansion, as C requires
+        pre: list[Tok] = []
+        k = 0
+        while k < len(toks):
+            t = toks[k]
+            if t.kind == "id" and t.value == "defined":
+                if k + 1 < len(toks) and toks[k + 1].kind == "id":
+                    name, k = toks[k + 1].value, k + 2
+                elif (k + 3 < len(toks) and toks[k + 1].value == "(" and toks[k + 2].kind == "id"
+                      and toks[k + 3].value == ")"):
+                    name, k = toks[k + 2].value, k + 4
+                else:
+                    raise _CondEvalError("malformed 'defined'")
+                pre.append(Tok("num", "1" if name in self.macros else "0", t.start, t.end))
+                continue
+            pre.append(t)
+            k += 1
+        expanded = self._expand(pre)
+        values: list[int | str] = []
+        for idx, t in enumerate(expanded):
+            if t.kind == "num":
+                v = int_value(t.value)
+                if v is None:
+                    raise _CondEvalError(f"'{t.value}' is not an integer")
+                values.append(v)
+            elif t.kind == "chr":
+                v = char_value(t.value)
+                if v is None:
+                    raise _CondEvalError(f"cannot read {t.value}")
+                values.append(v)
+            elif t.kind == "id":
+                if idx + 1 < len(expanded) and expanded[idx + 1].value == "(":
+                    raise _CondEvalError(f"'{t.value}(...)' is not known")
+                values.append(1 if t.value == "true" else 0)  # C: other names are 0
+            elif t.kind == "punct":
+                values.append(t.value)
+            else:
+                raise _CondEvalError(f"unexpected '{t.value}'")
+        if not values:
+            raise _CondEvalError("the condition is empty")
+        ev = _CondEvaluator(values)
+        result = ev.ternary()
+        if ev.pos != len(values):
+            raise _CondEvalError(f"unexpected '{values[ev.pos]}'")
+        return result
+
+    # ------------------------------------------------------------------ expansion
+    def _expand(self, toks: list[Tok], depth: int = 0) -> list[Tok]:
+        """Expand macros in `toks` (C's rescanning rules, with hide sets)."""
+        macros = self.macros
+        if not macros or self.exhausted:
+            return list(toks)
+        out: list[Tok] = []
+        stack = toks[::-1]
+        pop = stack.pop
+        while stack:
+            t = pop()
+            if t.kind != "id":
+                out.append(t)
+                continue
+            m = macros.get(t.value)
+            if m is None:
+                out.append(t)
+                continue
+            if t.hide is not None and t.value in t.hide:
+                self._note_recursion(t)
+                out.append(t)
+                continue
+            hide = (t.hide or frozenset()) | {m.name}
+            if m.params is None:
+                body = self._substitute(m, [], t.start, t.end, hide, depth)
+                if body:
+                    body[0].space = t.space
+            else:
+                if not stack or stack[-1].value != "(":
+                    out.append(t)  # a function-like macro name without arguments is a plain name
+                    continue
+                args, close = self._collect_args(stack, m, t)
+                if args is None:
+                    out.append(t)
+                    continue
+                body = self._substitute(m, args, t.start, close.end, hide, depth)
+                if body:
+                    body[0].space = t.space
+            self.budget -= len(body)
+            if self.budget < 0:
+                self.exhausted = True
+                self.diags.append(d.ExpansionLimit(self._span(t), where=self._where(t),
+                                                   reason="the expansion grew too large"))
+                out.append(t)
+                out.extend(reversed(stack))
+                return out
+            stack.extend(reversed(body))
+        return out
+
+    def _note_recursion(self, t: Tok) -> None:
+        if t.value not in self.recursion_noted:
+            self.recursion_noted.add(t.value)
+            self.diags.append(d.MacroRecursion(self._span(t), name=t.value, where=self._where(t)))
+
+    def _collect_args(self, stack: list[Tok], m: MacroDef,
+                      name_tok: Tok) -> tuple[list[list[Tok]] | None, Tok]:
+        # the stack holds the remaining tokens reversed: walk from its end
+        k = len(stack) - 1  # the '('
+        level = 0
+        args: list[list[Tok]] = [[]]
+        close = None
+        nparams = len(m.params or ())
+        while k >= 0:
+            t = stack[k]
+            v = t.value
+            if t.kind == "punct":
+                if v == "(":
+                    level += 1
+                    if level == 1:
+                        k -= 1
+                        continue
+                elif v == ")":
+                    level -= 1
+                    if level == 0:
+                        close = t
+                        break
+                elif v == "," and level == 1 and not (m.variadic and len(args) >= nparams):
+                    args.append([])
+                    k -= 1
+                    continue
+            args[-1].append(t)
+            k -= 1
+        if close is None:
+            self.diags.append(d.BadMacroCall(self._span(name_tok), name=m.name,
+                                             where=self._where(name_tok),
+                                             reason="the argument list is not closed"))
+            return None, name_tok
+        if nparams == 0 and args == [[]]:
+            args = []
+        if len(args) != nparams and not (m.variadic and len(args) == nparams - 1):
+            self.diags.append(d.BadMacroCall(self._span(name_tok), name=m.name,
+                                             where=self._where(name_tok),
+                                             reason=f"it takes {nparams} argument(s), {len(args)} given"))
+            return None, name_tok
+        while len(args) < nparams:
+            args.append([])
+        del stack[k:]
+        return args, close
+
+    def _substitute(self, m: MacroDef, args: list[list[Tok]], start: int, end: int,
+                    hide: frozenset[str], depth: int) -> list[Tok]:
+        body = m.body
+        index = m.index
+        expanded: dict[int, list[Tok]] = {}
+        items: list[Tok] = []
+        n = len(body)
+        k = 0
+        while k < n:
+            b = body[k]
+            if b.kind == "punct" and b.value == "#" and k + 1 < n and body[k + 1].value in index:
+                arg = args[index[body[k + 1].value]]
+                text = _spelling(arg).replace("\\", "\\\\").replace('"', '\\"')
+                s = Tok("str", '"' + text + '"', start, end)
+                s.space = b.space
+                items.append(s)
+                k += 2
+                continue
+            if b.kind == "punct" and b.value == "##":
+                items.append(_PASTE)
+                k += 1
+                continue
+            if b.kind == "id" and b.value in index:
+                idx = index[b.value]
+                pasted = (k > 0 and body[k - 1].value == "##") or (k + 1 < n and body[k + 1].value == "##")
+                if pasted:
+                    seq = args[idx]
+                else:
+                    if idx not in expanded:
+                        if depth >= MAX_ARG_DEPTH:
+                            if not self.exhausted:
+                                self.diags.append(d.ExpansionLimit(
+                                    self.smap.span(start, end), where=d.where(*self.smap.position(start)),
+                                    reason="macro arguments nest too deeply"))
+                            self.exhausted = True
+                            expanded[idx] = list(args[idx])
+                        else:
+                            expanded[idx] = self._expand(args[idx], depth + 1)
+                    seq = expanded[idx]
+                if not seq:
+                    if pasted:
+                        items.append(_PLACEMARKER)
+                    k += 1
+                    continue
+                first = True
+                for a in seq:
+                    c = a.copy_at(start, end, hide | (a.hide or frozenset()))
+                    if first:
+                        c.space = b.space
+                        first = False
+                    items.append(c)
+                k += 1
+                continue
+            items.append(b.copy_at(start, end, hide))
+            k += 1
+        if _PASTE not in items and _PLACEMARKER not in items:
+            return items
+        res: list[Tok] = []
+        paste = False
+        for it in items:
+            if it is _PASTE:
+                paste = True
+                continue
+            if paste and res:
+                paste = False
+                left = res[-1]
+                if it is _PLACEMARKER:
+                    continue
+                if left is _PLACEMARKER:
+                    res[-1] = it
+                    continue
+                joined = tokenize(left.value + it.value)
+                if len(joined) == 1:
+                    j = joined[0].copy_at(start, end, hide)
+                    j.space = left.space
+                    res[-1] = j
+                else:
+                    res.append(it)
+                continue
+            paste = False
+            res.append(it)
+        return [t for t in res if t is not _PLACEMARKER]
+
+
+class _CondEvaluator:
+    """Integer evaluation of an #if condition (C precedence, values already numbers)."""
+
+    _BINARY = [
+        ("||",), ("&&",), ("|",), ("^",), ("&",), ("==", "!="), ("<", ">", "<=", ">="),
+        ("<<", ">>"), ("+", "-"), ("*", "/", "%"),
+    ]
+
+    def __init__(self, values: list[int | str]) -> None:
+        self.values = values
+        self.pos = 0
+
+    def _peek(self) -> int | str | None:
+        return self.values[self.pos] if self.pos < len(self.values) else None
+
+    def ternary(self) -> int:
+        c = self.binary(0)
+        if self._peek() == "?":
+            self.pos += 1
+            a = self.ternary()
+            if self._peek() != ":":
+                raise _CondEvalError("'?' without ':'")
+            self.pos += 1
+            b = self.ternary()
+            return a if c else b
+        return c
+
+    def binary(self, level: int) -> int:
+        if level == len(self._BINARY):
+            return self.unary()
+        ops = self._BINARY[level]
+        left = self.binary(level + 1)
+        while True:
+            op = self._peek()
+            if not isinstance(op, str) or op not in ops:
+                return left
+            self.pos += 1
+            right = self.binary(level + 1)
+            left = _apply(op, left, right)
+
+    def unary(self) -> int:
+        v = self._peek()
+        if v is None:
+            raise _CondEvalError("the condition ends too early")
+        self.pos += 1
+        if isinstance(v, int):
+            return v
+        if v == "(":
+            r = self.ternary()
+            if self._peek() != ")":
+                raise _CondEvalError("unbalanced parentheses")
+            self.pos += 1
+            return r
+        if v in ("-", "+", "!", "~"):
+            x = self.unary()
+            return {"-": -x, "+": x, "!": int(not x), "~": ~x}[v]
+        raise _CondEvalError(f"unexpected '{v}'")
+
+
+_OPS = {
+    "|": lambda a, b: a | b, "^": lambda a, b: a ^ b, "&": lambda a, b: a & b,
+    "==": lambda a, b: int(a == b), "!=": lambda a, b: int(a != b),
+    "<": lambda a, b: int(a < b), ">": lambda a, b: int(a > b),
+    "<=": lambda a, b: int(a <= b), ">=": lambda a, b: int(a >= b),
+    "<<": lambda a, b: a << b, ">>": lambda a, b: a >> b,
+    "+": lambda a, b: a + b, "-": lambda a, b: a - b, "*": lambda a, b: a * b,
+}
+
+
+def _apply(op: str, a: int, b: int) -> int:
+    if op == "||":
+        return int(bool(a or b))
+    if op == "&&":
+        return int(bool(a and b))
+    if op == "/":
+        q = abs(a) // abs(b)
+        return q if (a >= 0) == (b >= 0) else -q  # C truncates toward zero
+    if op == "%":
+        return a - b * _apply("/", a, b)
+    if op in ("<<", ">>") and not 0 <= b <= 64:
+        raise _CondEvalError("shift out of range")
+    r = _OPS[op](a, b)
+    if abs(r) >= 1 << 128:
+        raise _CondEvalError("the value is too large")  # C's integers are 64 bits at most
+    return r
+
+
+def preprocess(text: str) -> Preprocessed:
+    """Preprocess C source text: tokens in original-file coordinates, macros, diagnostics."""
+    return Preprocessor(text).run()
