@@ -1,0 +1,211 @@
+# Tests of the engine's quasi-polynomials (tripcount/engine/qpoly.py),
+# power sums (faulhaber.py) and text forms (fmt.py).
+#
+# External sources named beside the checks: Python's exact integer floor
+# division (the definition of floor checked against), sympy (parsing of our
+# expression text, sympy summation for power sums), and the identity proof is
+# checked against brute-force evaluation.
+
+from __future__ import annotations
+
+import itertools
+import subprocess
+import sys
+from fractions import Fraction
+
+import pytest
+import sympy
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from tripcount.engine.faulhaber import bernoulli_plus, power_sum_coeffs, sum_interval
+from tripcount.engine.piecewise import qpoly_identical
+from tripcount.engine.qpoly import Floor, QPoly, atom_period, floor_of
+
+N, M = QPoly.var("N"), QPoly.var("M")
+
+
+def to_sympy(p: QPoly):
+    """Parse our expression text with sympy (^ is power), explicit symbols."""
+    syms = {v: sympy.Symbol(v) for v in p.variables()}
+    syms["floor"] = sympy.floor
+    return sympy.parse_expr(p.to_expr().replace("^", "**"), local_dict=syms)
+
+
+def sympy_value(expr, env):
+    return expr.subs({sympy.Symbol(k): v for k, v in env.items()})
+
+
+# -- floors -------------------------------------------------------------------
+
+
+@given(
+    a=st.integers(-7, 7),
+    b=st.integers(-7, 7),
+    c=st.integers(-20, 20),
+    m=st.integers(1, 9),
+    n=st.integers(-30, 30),
+    k=st.integers(-30, 30),
+)
+@settings(max_examples=300, deadline=None)
+def test_floor_canonical_form_is_exact(a, b, c, m, n, k):
+    # check: Python's // is mathematical floor division
+    p = QPoly.floor(N * a + M * b + c, m)
+    assert p.evaluate({"N": n, "M": k}) == (a * n + b * k + c) // m
+
+
+@given(a=st.integers(-5, 5), c=st.integers(-9, 9), m=st.integers(2, 6), m2=st.integers(2, 5),
+       n=st.integers(-40, 40))
+@settings(max_examples=200, deadline=None)
+def test_nested_floor_exact(a, c, m, m2, n):
+    inner = QPoly.floor(N * a + c, m)
+    p = QPoly.floor(N + inner * 3 + 1, m2)
+    assert p.evaluate({"N": n}) == (n + 3 * ((a * n + c) // m) + 1) // m2
+
+
+def test_equal_floors_compare_equal():
+    # integer parts pulled out and gcd reduced: floor((2N + 4)/4) == floor(N/2) + 1
+    assert QPoly.floor(N * 2 + 4, 4) == QPoly.floor(N, 2) + 1
+    # floor((-N + 5)/3) == 1 - floor(N/3)   (checked by Python // below)
+    assert QPoly.floor(-N + 5, 3) == 1 - QPoly.floor(N, 3)
+    for n in range(-10, 10):
+        assert (-n + 5) // 3 == 1 - n // 3
+    # one parity atom: floor((N + 1)/2) == N - floor(N/2)
+    assert QPoly.floor(N + 1, 2) == N - QPoly.floor(N, 2)
+
+
+def test_floor_of_rational_coefficients():
+    d, c = floor_of({"N": Fraction(1, 2)}, Fraction(1, 3), 1)  # floor(N/2 + 1/3)
+    p = QPoly.from_lin((d, c))
+    for n in range(-12, 12):
+        assert p.evaluate({"N": n}) == (3 * n + 2) // 6
+
+
+def test_period():
+    f = QPoly.floor(N, 3).as_lin()[0]
+    (atom,) = [a for a in f if isinstance(a, Floor)]
+    assert atom_period(atom, "N") == (3, 1)
+    # floor((N + floor(N/3))/2): N -> N + 3 adds 4 to the numerator, so period 3, +2
+    g = QPoly.floor(N + QPoly.floor(N, 3), 2)
+    (outer,) = [a for a in g.atoms() if isinstance(a, Floor) and len(a.terms) > 1]
+    L, inc = atom_period(outer, "N")
+    assert (L, inc) == (3, 2)
+    for n in range(-20, 20):
+        assert g.evaluate({"N": n + L}) == g.evaluate({"N": n}) + inc
+
+
+# -- arithmetic, substitution, evaluation --------------------------------------
+
+
+def test_arithmetic_and_evaluate():
+    p = (N + 1) * N / 2
+    assert p.evaluate({"N": 10}) == 55
+    assert (p - p).is_zero()
+    assert (p * 0).is_zero()
+    assert (N**3).degree() == 3
+    assert (QPoly.floor(N, 2) * M + 1).degree() == 2
+    assert QPoly.const(Fraction(3, 4)).evaluate({}) == Fraction(3, 4)
+    assert (2 + N) == (N + 2)
+    assert hash(N + 2) == hash(2 + N)
+
+
+def test_substitute_partial_evaluation():
+    p = QPoly.floor(N + M, 2) * N + M
+    q = p.substitute("M", 3)
+    for n in range(-5, 6):
+        assert q.evaluate({"N": n}) == p.evaluate({"N": n, "M": 3})
+    r = p.substitute("N", M * 2 + 1)
+    for k in range(-5, 6):
+        assert r.evaluate({"M": k}) == p.evaluate({"N": 2 * k + 1, "M": k})
+
+
+def test_leading():
+    p = (N + 1) * N * (N * 2 + 1) / 6
+    n = sympy.Symbol("N")
+    lead = sympy.parse_expr(p.leading().replace("^", "**"), local_dict={"N": n})
+    assert sympy.simplify(lead - n**3 / 3) == 0
+    q = QPoly.floor(N, 2) ** 2 + N
+    assert q.leading() == "N^2/4"
+    assert q.degree() == 2
+
+
+# -- text forms (parsed back by sympy) -----------------------------------------
+
+
+@pytest.mark.parametrize(
+    "poly",
+    [
+        (N + 1) * N / 2,
+        N * (N + 1) * (N + 2) / 6,
+        N**3 * Fraction(2, 3) - N**2 / 2 - N / 6,
+        QPoly.floor(N, 2) ** 2 + N,
+        QPoly.floor(N + 2, 3) * (N * 2 - QPoly.floor(N + 2, 3) * 3 + 3) / 2,
+        M * (N * 2 - M + 1) / 2,
+        -(N * M) + 3,
+        QPoly.floor(N + QPoly.floor(M, 3), 2) * M - 7,
+        QPoly.const(0),
+        QPoly.const(Fraction(-5, 3)),
+    ],
+)
+def test_to_expr_roundtrip_sympy(poly):
+    # check: sympy parses the text back to the same function (sympy parse_expr)
+    e = to_sympy(poly)
+    for n, k in itertools.product(range(-6, 7), range(-4, 5)):
+        env = {"N": n, "M": k}
+        assert sympy_value(e, env) == poly.evaluate(env)
+
+
+def test_to_expr_factored():
+    assert ((N + 1) * N / 2).to_expr() == "N*(N + 1)/2"
+    assert (N * (N + 1) * (N + 2) / 6).to_expr() == "N*(N + 1)*(N + 2)/6"
+    assert (M * (N * 2 - M + 1) / 2).to_expr() == "M*(2*N - M + 1)/2"
+    assert (QPoly.floor(N, 2) ** 2 + N).to_expr() == "floor(N/2)^2 + N"
+
+
+# -- power sums -----------------------------------------------------------------
+
+
+def test_bernoulli_numbers():
+    # from memory (common practice): B0..B8 = 1, +1/2, 1/6, 0, -1/30, 0, 1/42, 0, -1/30
+    assert [bernoulli_plus(i) for i in range(9)] == [
+        1, Fraction(1, 2), Fraction(1, 6), 0, Fraction(-1, 30), 0, Fraction(1, 42), 0, Fraction(-1, 30)
+    ]
+
+
+@pytest.mark.parametrize("k", range(0, 9))
+def test_power_sums_match_sympy_summation(k):
+    # check: sympy summation of x^k for x = 1..n
+    n, x = sympy.symbols("n x", integer=True)
+    ref = sympy.expand(sympy.summation(x**k, (x, 1, n)))
+    ours = sum(sympy.Rational(c.numerator, c.denominator) * n**j for j, c in enumerate(power_sum_coeffs(k)))
+    assert sympy.expand(ours - ref) == 0
+
+
+@pytest.mark.parametrize("k", range(0, 6))
+def test_sum_interval_exact(k):
+    lo, hi = QPoly.var("a"), QPoly.var("b")
+    s = sum_interval({k: QPoly.const(1)}, lo, hi)
+    for a in range(-6, 6):
+        for b in range(a - 1, 8):  # includes the empty range b = a - 1
+            assert s.evaluate({"a": a, "b": b}) == sum(x**k for x in range(a, b + 1))
+
+
+# -- identity proof by evaluation -----------------------------------------------
+
+
+def test_identity_proof():
+    f = QPoly.floor(N + 1, 2) + QPoly.floor(N, 2)
+    assert qpoly_identical(f, N)  # floor((N+1)/2) + floor(N/2) = N
+    # Hermite's identity: floor(N/3) + floor((N+1)/3) + floor((N+2)/3) = N
+    h = QPoly.floor(N, 3) + QPoly.floor(N + 1, 3) + QPoly.floor(N + 2, 3)
+    assert qpoly_identical(h, N)
+    assert not qpoly_identical(QPoly.floor(N, 3), QPoly.floor(N + 1, 3))
+    # differs only at one residue class of large period: still refuted
+    g = QPoly.floor(N, 7) - QPoly.floor(N - 1, 7)  # 1 iff N % 7 == 0
+    assert not qpoly_identical(g, QPoly.const(0))
+
+
+def test_engine_import_does_not_import_sympy():
+    code = "import sys, tripcount.engine; print('sympy' in sys.modules)"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"

@@ -1,0 +1,115 @@
+# Conversions between isl objects and the engine's own affine expressions.
+#
+# isl gives bounds as quasi-affine functions (Aff, with integer divisions as
+# "divs") and domains as sets of constraints over parameters and divs. Here they
+# become Lin values (dict atom -> Fraction, constant) over named variables and
+# canonical Floor atoms, so that the engine can evaluate, compare and print them
+# in its own notation. Also the reverse direction for affine conditions
+# (isl input syntax, used only to build sets internally, never shown to users).
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+import islpy as isl
+
+from tripcount.engine.qpoly import Floor, Lin, floor_of, lin_add
+
+_dt = isl.dim_type
+
+
+def val_frac(v: isl.Val) -> Fraction:
+    """Exact rational value of an isl Val."""
+    return Fraction(v.to_str())
+
+
+def aff_to_lin(aff: isl.Aff) -> Lin:
+    """Affine expression (with canonical floors) of an isl Aff; names from its space."""
+    sp = aff.get_space()
+    d: dict = {}
+    const = val_frac(aff.get_constant_val())
+    for t in (_dt.param, _dt.in_):
+        for i in range(aff.dim(t)):
+            c = aff.get_coefficient_val(t, i)
+            if not c.is_zero():
+                name = sp.get_dim_name(t, i)
+                d[name] = d.get(name, 0) + val_frac(c)
+    acc: Lin = (d, const)
+    for k in range(aff.dim(_dt.div)):
+        c = aff.get_coefficient_val(_dt.div, k)
+        if c.is_zero():
+            continue
+        inner = aff_to_lin(aff.get_div(k))
+        acc = lin_add(acc, floor_of(inner[0], inner[1], 1), val_frac(c))
+    return acc
+
+
+def bset_divs(bset: isl.BasicSet) -> list[Lin]:
+    """Each div of a basic set as an affine expression of canonical floors."""
+    ls = bset.get_local_space()
+    out = []
+    for k in range(ls.dim(_dt.div)):
+        inner = aff_to_lin(ls.get_div(k))
+        out.append(floor_of(inner[0], inner[1], 1))
+    return out
+
+
+def bset_constraints(bset: isl.BasicSet, divs: list[Lin] | None = None) -> list[tuple[Lin, bool]]:
+    """Constraints (lin, is_equality) meaning lin == 0 or lin >= 0."""
+    if divs is None:
+        divs = bset_divs(bset)
+    sp = bset.get_space()
+    names = {
+        _dt.param: [sp.get_dim_name(_dt.param, i) for i in range(bset.dim(_dt.param))],
+        _dt.set: [sp.get_dim_name(_dt.set, i) for i in range(bset.dim(_dt.set))],
+    }
+    out = []
+    for c in bset.get_constraints():
+        d: dict = {}
+        for t in (_dt.param, _dt.set):
+            for i, nm in enumerate(names[t]):
+                v = c.get_coefficient_val(t, i)
+                if not v.is_zero():
+                    d[nm] = val_frac(v)
+        acc: Lin = (d, val_frac(c.get_constant_val()))
+        for k, dv in enumerate(divs):
+            v = c.get_coefficient_val(_dt.div, k)
+            if not v.is_zero():
+                acc = lin_add(acc, dv, val_frac(v))
+        acc = ({a: x for a, x in acc[0].items() if x}, acc[1])
+        out.append((acc, c.is_equality()))
+    return out
+
+
+def set_conditions(s: isl.Set) -> list[list[tuple[Lin, bool]]]:
+    """Disjunctive normal form of a set: one constraint list per basic set."""
+    s = s.compute_divs()
+    return [bset_constraints(b) for b in s.get_basic_sets()]
+
+
+# ---------------------------------------------------------------------------
+# isl input syntax for our affine expressions (internal use only)
+
+
+def atom_isl(a) -> str:
+    if isinstance(a, str):
+        return a
+    return f"floor(({lin_isl((dict(a.terms), a.const))})/{a.den})"
+
+
+def lin_isl(lin: Lin) -> str:
+    """isl input syntax of an integer-coefficient affine expression."""
+    parts = []
+    for a, c in sorted(lin[0].items(), key=lambda it: str(it[0])):
+        parts.append(f"{c}*{atom_isl(a)}")
+    parts.append(f"{lin[1]}")
+    return " + ".join(parts)
+
+
+def params_set(ctx: isl.Context, params: tuple[str, ...], cond: str) -> isl.Set:
+    """A parameter set from an isl-syntax condition over `params`."""
+    return isl.Set.read_from_str(ctx, f"[{', '.join(params)}] -> {{ : {cond} }}")
+
+
+def is_floor(a) -> bool:
+    return isinstance(a, Floor)

@@ -1,0 +1,477 @@
+# Piecewise quasi-polynomials: disjoint parameter domains, each with a QPoly.
+#
+# The summation core returns overlapping terms; `build` makes them disjoint
+# (the formula of a region is the sum of the terms covering it), then
+# simplifies: drops zero regions, absorbs small bounded regions into a piece
+# whose formula also holds there (checked point by point), merges pieces whose
+# formulas are identical (proven by evaluation, see qpoly_identical), gists the
+# domains under the context, and puts the generic piece (the one that holds for
+# large, spread-out parameter values) first.
+
+from __future__ import annotations
+
+import random
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from fractions import Fraction
+from itertools import product
+from math import comb, lcm
+
+import islpy as isl
+
+from tripcount.engine.fmt import format_conditions
+from tripcount.engine.islconv import bset_constraints, params_set
+from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value
+from tripcount.engine.summation import EngineLimit, _State
+
+_dt = isl.dim_type
+
+
+def _lin_value(lin: Lin, env: Mapping[str, int], cache: dict) -> Fraction:
+    s = lin[1]
+    for a, c in lin[0].items():
+        s += c * atom_value(a, env, cache)
+    return s
+
+
+class _Cond:
+    """A parameter domain as DNF of our own constraints, for fast exact membership."""
+
+    def __init__(self, s: isl.Set) -> None:
+        self.dnf = [bset_constraints(b) for b in s.compute_divs().get_basic_sets()]
+
+    def contains(self, env: Mapping[str, int]) -> bool:
+        cache: dict = {}
+        for conj in self.dnf:
+            ok = True
+            for lin, eq in conj:
+                v = _lin_value(lin, env, cache)
+                if (v != 0) if eq else (v < 0):
+                    ok = False
+                    break
+            if ok:
+                return True
+        return False
+
+
+@dataclass(frozen=True)
+class Piece:
+    """One piece: on parameter set `domain`, the count is `poly`; `when` is C text."""
+
+    domain: isl.Set
+    poly: QPoly
+    when: str
+    _cond: _Cond | None = field(default=None, compare=False, repr=False)
+
+    def contains(self, values: Mapping[str, int]) -> bool:
+        cond = self._cond
+        if cond is None:
+            cond = _Cond(self.domain)
+            object.__setattr__(self, "_cond", cond)
+        return cond.contains(values)
+
+
+class Piecewise:
+    """Disjoint pieces; the value is 0 outside all of them. Generic piece first."""
+
+    def __init__(
+        self,
+        pieces: list[Piece],
+        params: tuple[str, ...],
+        context: isl.Set | None = None,
+    ) -> None:
+        self.pieces = pieces
+        self.params = tuple(params)
+        self.context = context
+
+    def __repr__(self) -> str:
+        return "Piecewise(" + "; ".join(f"{p.when}: {p.poly.to_expr()}" for p in self.pieces) + ")"
+
+    def evaluate(self, values: Mapping[str, int]) -> Fraction:
+        """Exact value at integer parameter values (0 outside all pieces)."""
+        for p in self.pieces:
+            if p.contains(values):
+                return p.poly.evaluate(values)
+        return Fraction(0)
+
+    def degree(self) -> int:
+        """Total degree of the generic piece (floors count 1)."""
+        return self.pieces[0].poly.degree() if self.pieces else 0
+
+    def leading(self) -> str:
+        """Leading homogeneous part of the generic piece."""
+        return self.pieces[0].poly.leading() if self.pieces else "0"
+
+    def is_zero(self) -> bool:
+        return not self.pieces
+
+    def to_json(self) -> dict:
+        return {
+            "pieces": [{"when": p.when, "expr": p.poly.to_expr()} for p in self.pieces],
+            "degree": self.degree(),
+            "leading": self.leading(),
+        }
+
+    def _terms(self) -> list[tuple[isl.Set, QPoly]]:
+        return [(p.domain, p.poly) for p in self.pieces]
+
+    def __add__(self, other: Piecewise) -> Piecewise:
+        if not isinstance(other, Piecewise):
+            return NotImplemented
+        params = tuple(dict.fromkeys(self.params + other.params))
+        ctx = self.context if self.context is not None else other.context
+        if self.context is not None and other.context is not None:
+            ctx = self.context.intersect(other.context)
+        return build(self._terms() + other._terms(), params, ctx)
+
+    def scale(self, c: int | Fraction) -> Piecewise:
+        """The piecewise multiplied by a constant."""
+        c = Fraction(c)
+        if not c:
+            return Piecewise([], self.params, self.context)
+        return Piecewise(
+            [Piece(p.domain, p.poly * c, p.when) for p in self.pieces], self.params, self.context
+        )
+
+    def scaled(self, t_name: str = "t", base: Mapping[str, int] | None = None) -> QPoly:
+        """Generic piece with every parameter p replaced by base[p]*t (base defaults to 1)."""
+        if not self.pieces:
+            return QPoly()
+        base = base or {}
+        t = QPoly.var(t_name)
+        return self.pieces[0].poly.subs({p: t * base.get(p, 1) for p in self.params})
+
+    def ehrhart_numerator(self, param: str | None = None, period: int | None = None) -> list[Fraction]:
+        """Numerator h*(z) of the series sum_{t>=0} L(t) z^t = h*(z)/(1 - z^p)^(d+1).
+
+        For one parameter t (other parameters must be absent). p is the period
+        of the generic piece (1 for a lattice polytope), d its degree; L(t) is
+        this piecewise's exact value, so small-t pieces count too.
+        """
+        if param is None:
+            if len(self.params) != 1:
+                raise ValueError("ehrhart_numerator needs a one-parameter count")
+            param = self.params[0]
+        if not self.pieces:
+            return []
+        poly = self.pieces[0].poly
+        d = poly.degree()
+        if period is None:
+            period = 1
+            for f in poly.floors():
+                period = lcm(period, atom_period(f, param)[0])
+        n = period * (d + 1)
+        vals = [self.evaluate({param: t}) for t in range(n)]
+        # (1 - z^p)^(d+1) = sum_j (-1)^j C(d+1, j) z^(p j)
+        h = []
+        for i in range(n):
+            s = Fraction(0)
+            for j in range(d + 2):
+                if period * j > i:
+                    break
+                s += (-1) ** j * comb(d + 1, j) * vals[i - period * j]
+            h.append(s)
+        while h and h[-1] == 0:
+            h.pop()
+        return h
+
+
+# ---------------------------------------------------------------------------
+# building and simplification
+
+
+def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list]:
+    """Disjoint regions [set, poly]; the poly of a region is the sum of the terms covering it."""
+    # identical domains first: add their polys
+    grouped: list[list] = []
+    for d, f in terms:
+        d = d.coalesce()
+        for g in grouped:
+            if g[0].is_equal(d):
+                g[1] = g[1] + f
+                break
+        else:
+            grouped.append([d, f])
+    regions: list[list] = []
+    limit = st.limits.max_pieces * 8 if st is not None else 4096
+    for d, f in grouped:
+        if st is not None:
+            st.check("combining pieces")
+        new: list[list] = []
+        rest = d
+        for r, g in regions:
+            if st is not None:
+                st.check("combining pieces")
+            if rest.is_empty():
+                new.append([r, g])
+                continue
+            inter = r.intersect(rest)
+            if inter.is_empty():
+                new.append([r, g])
+                continue
+            rm = r.subtract(rest)
+            if not rm.is_empty():
+                new.append([rm.coalesce(), g])
+            new.append([inter.coalesce(), g + f])
+            rest = rest.subtract(r).coalesce()
+        if not rest.is_empty():
+            new.append([rest, f])
+        regions = _merge_equal(new)
+        if len(regions) > limit:
+            raise EngineLimit(f"more than {limit} pieces while combining terms")
+    return regions
+
+
+def _merge_equal(regions: list[list]) -> list[list]:
+    """Union the domains of regions with structurally equal formulas; drop zero formulas."""
+    by: dict[QPoly, isl.Set] = {}
+    for r, g in regions:
+        if g.is_zero():
+            continue
+        if g in by:
+            by[g] = by[g].union(r).coalesce()
+        else:
+            by[g] = r
+    return [[r, g] for g, r in by.items()]
+
+
+def _param_points(r: isl.Set, limit: int) -> list[dict[str, int]] | None:
+    """All points of a bounded parameter set with at most `limit` points, else None."""
+    n = r.dim(_dt.param)
+    names = [r.get_space().get_dim_name(_dt.param, i) for i in range(n)]
+    s = r.move_dims(_dt.set, 0, _dt.param, 0, n)
+    if not s.is_bounded():
+        return None
+    if s.count_val().to_python() > limit:
+        return None
+    pts: list[dict[str, int]] = []
+
+    def cb(p):
+        pts.append({nm: p.get_coordinate_val(_dt.set, i).to_python() for i, nm in enumerate(names)})
+
+    s.foreach_point(cb)
+    return pts
+
+
+def qpoly_identical(f: QPoly, g: QPoly, budget: int = 20000) -> bool:
+    """Prove f == g for all integer values (True), or give up / refute (False).
+
+    h = f - g: on each residue class of the variables modulo their periods P_v
+    every floor is affine in the class index k, so h is a polynomial in k of
+    degree <= deg_v(h) in each k_v; vanishing on a (deg_v + 1)-point grid per
+    class (tensor-product interpolation) proves h == 0.
+    """
+    h = f - g
+    if h.is_zero():
+        return True
+    vs = sorted(h.variables())
+    rng = random.Random(1234)
+    for _ in range(6):
+        env = {v: rng.randint(-50, 50) for v in vs}
+        if h.evaluate(env) != 0:
+            return False
+    periods = {}
+    fl = h.floors()
+    for v in vs:
+        p = 1
+        for a in fl:
+            if v in a.variables():
+                p = lcm(p, atom_period(a, v)[0])
+        periods[v] = p
+    degs = {v: h.degree_in(v) for v in vs}
+    total = 1
+    for v in vs:
+        total *= periods[v] * (degs[v] + 1)
+    if total > budget:
+        return False
+    for res in product(*[range(periods[v]) for v in vs]):
+        for ks in product(*[range(degs[v] + 1) for v in vs]):
+            env = {v: periods[v] * k + r for v, r, k in zip(vs, res, ks, strict=True)}
+            if h.evaluate(env) != 0:
+                return False
+    return True
+
+
+def _flat_substitution(r: isl.Set) -> dict[str, QPoly] | None:
+    """If r lies in a hyperplane p = e (unit coefficient on a parameter p, no divs), {p: e}."""
+    hull = r.compute_divs().affine_hull()
+    if hull.dim(_dt.div):
+        return None
+    for lin, eq in bset_constraints(hull):
+        if not eq:
+            continue
+        for a, c in lin[0].items():
+            if isinstance(a, str) and abs(c) == 1:
+                rest = ({b: v for b, v in lin[0].items() if b != a}, lin[1])
+                if any(isinstance(b, Floor) for b in rest[0]):
+                    continue
+                img = QPoly.from_lin(rest) * (-c)
+                return {a: img}
+    return None
+
+
+def _absorb_flat(regions: list[list], st: _State | None) -> list[list]:
+    """Merge a region lying in a hyperplane into a piece whose formula agrees on that hyperplane."""
+    out = list(regions)
+    changed = True
+    while changed and len(out) > 1:
+        changed = False
+        for i, reg in enumerate(out):
+            sub = _flat_substitution(reg[0])
+            if sub is None:
+                continue
+            mine = reg[1].subs(sub)
+            for j, other in enumerate(out):
+                if j == i:
+                    continue
+                if st is not None:
+                    st.check("merging pieces")
+                if qpoly_identical(other[1].subs(sub), mine):
+                    other[0] = other[0].union(reg[0]).coalesce()
+                    del out[i]
+                    changed = True
+                    break
+            if changed:
+                break
+    return out
+
+
+def _simplify_on_residues(r: isl.Set, f: QPoly, params: tuple[str, ...]) -> QPoly:
+    """Evaluate the floors of f that are fixed on r because r lies in a residue class
+    p = m*k + c of a parameter (e.g. 2*N - 2*floor(N/2) - 1 is N on odd N)."""
+    fl = f.floors()
+    if not fl:
+        return f
+    for p in params:
+        period = 1
+        for a in fl:
+            if p in a.variables():
+                period = lcm(period, atom_period(a, p)[0])
+        if period == 1 or period > 64:
+            continue
+        for c in range(period):
+            cls = params_set(r.get_ctx(), params, f"exists q : {p} = {period}*q + {c}")
+            if not r.is_subset(cls):
+                continue
+            k = QPoly.var("_k_")
+            g = f.subs({p: k * period + c}).subs({"_k_": (QPoly.var(p) - c) / period})
+            if g.n_terms() < f.n_terms() or len(g.floors()) < len(fl):
+                f, fl = g, g.floors()
+            break
+    return f
+
+
+def _generic_points(params: tuple[str, ...]) -> list[dict[str, int]]:
+    n = len(params)
+    pts = []
+    for j in range(4):
+        pts.append({p: 10**6 + 1009 * i + 7 * j for i, p in enumerate(params)})
+        pts.append({p: 10**6 + 1009 * (n - 1 - i) + 7 * j + 1 for i, p in enumerate(params)})
+    return pts
+
+
+def _nonneg_checker(ctx_set: isl.Set, conj_sets: list[isl.Set], params: tuple[str, ...]):
+    cache: dict = {}
+
+    def nonneg(lin: Lin, k: int) -> bool:
+        key = (tuple(sorted((str(a), c) for a, c in lin[0].items())), lin[1], k)
+        if key in cache:
+            return cache[key]
+        base = ctx_set if k < 0 else conj_sets[k]
+        expr = " + ".join(f"{int(c)}*{a}" for a, c in lin[0].items() if isinstance(a, str))
+        if any(isinstance(a, Floor) for a in lin[0]):
+            cache[key] = False
+            return False
+        neg = params_set(base.get_ctx(), params, f"{expr} + {int(lin[1])} < 0")
+        res = base.intersect(neg).is_empty()
+        cache[key] = res
+        return res
+
+    return nonneg
+
+
+def when_text(domain: isl.Set, context: isl.Set | None, params: tuple[str, ...]) -> str:
+    """C condition for a parameter domain, simplified under the context."""
+    d = domain
+    if context is not None:
+        d = d.gist(context)
+    d = d.coalesce().remove_redundancies().compute_divs()
+    bsets = d.get_basic_sets()
+    dnf = [bset_constraints(b) for b in bsets]
+    ctx_set = context if context is not None else isl.Set.universe(domain.get_space())
+    conj_sets = [isl.Set.from_basic_set(b).intersect(ctx_set) for b in bsets]
+    return format_conditions(dnf, _nonneg_checker(ctx_set, conj_sets, params))
+
+
+def build(
+    terms: list[tuple[isl.Set, QPoly]],
+    params: tuple[str, ...],
+    context: isl.Set | None = None,
+    st: _State | None = None,
+    support: isl.Set | None = None,
+) -> Piecewise:
+    """Disjoint, simplified Piecewise from overlapping (domain, poly) terms.
+
+    `support` (optional): parameter set outside of which the sum is known to be
+    0 (the projection of the summed set); regions are clipped to it.
+    """
+    if context is not None:
+        terms = [(d.intersect_params(context), f) for d, f in terms]
+    terms = [(d, f) for d, f in terms if not f.is_zero() and not d.is_empty()]
+    regions = _combine(terms, st)
+    if support is not None:
+        regions = [[r.intersect(support).compute_divs().coalesce(), g] for r, g in regions]
+        regions = [reg for reg in regions if not reg[0].is_empty()]
+    # zero regions and small bounded regions
+    small: list[tuple[list, list[dict[str, int]]]] = []
+    big: list[list] = []
+    for reg in regions:
+        pts = _param_points(reg[0], 64)
+        if pts is None:
+            big.append(reg)
+            continue
+        if all(reg[1].evaluate(p) == 0 for p in pts):
+            continue
+        small.append((reg, pts))
+    keep: list[list] = big[:]
+    for reg, pts in small:
+        for other in keep:
+            if other[1] is reg[1] or other[1] == reg[1]:
+                continue
+            if all(other[1].evaluate(p) == reg[1].evaluate(p) for p in pts):
+                other[0] = other[0].union(reg[0]).coalesce()
+                break
+        else:
+            keep.append(reg)
+    regions = _merge_equal(keep)
+    regions = _absorb_flat(regions, st)
+    # merge pieces with identical formulas (proof by evaluation)
+    merged = True
+    while merged and len(regions) > 1:
+        merged = False
+        for i in range(len(regions)):
+            for j in range(i + 1, len(regions)):
+                if st is not None:
+                    st.check("merging pieces")
+                if qpoly_identical(regions[i][1], regions[j][1]):
+                    a, b = regions[i], regions[j]
+                    poly = a[1] if a[1].n_terms() <= b[1].n_terms() else b[1]
+                    regions[i] = [a[0].union(b[0]).coalesce(), poly]
+                    del regions[j]
+                    merged = True
+                    break
+            if merged:
+                break
+    regions = [[r, _simplify_on_residues(r, g, params)] for r, g in regions]
+    if st is not None and len(regions) > st.limits.max_pieces:
+        raise EngineLimit(f"more than {st.limits.max_pieces} pieces (max_pieces)")
+    # generic piece first
+    pts = _generic_points(params)
+    conds = [_Cond(r[0]) for r in regions]
+    hits = [sum(1 for p in pts if c.contains(p)) for c in conds]
+    order = sorted(range(len(regions)), key=lambda i: -hits[i])
+    pieces = [
+        Piece(regions[i][0], regions[i][1], when_text(regions[i][0], context, params), conds[i])
+        for i in order
+    ]
+    return Piecewise(pieces, params, context)
