@@ -981,6 +981,7 @@ class ANest:
     params: tuple[str, ...]  # isl names of the size parameters, sorted
     symbolic: dict[str, str]  # isl name -> C text it stands for (symbols and mangled names)
     source: str = ""
+    scalar_types: dict[str, str] = field(default_factory=dict)  # C types of scalars visible at the nest
 
 
 # --------------------------------------------------------------------------
@@ -1416,6 +1417,17 @@ class FunctionInfo:
         if best is not None:
             return best
         return self.params.get(name) or self.globals.get(name)
+
+    def scalar_types(self, at: Span) -> dict[str, str]:
+        """C types of the scalars (not arrays or pointers) visible at `at`."""
+        out: dict[str, str] = {}
+        for d in list(self.globals.values()) + list(self.params.values()):
+            if not d.is_array:
+                out[d.name] = d.type_name
+        for d, scope in self.locals:
+            if not d.is_array and _before(d.span, at) and _inside(at, scope):
+                out[d.name] = d.type_name
+        return out
 
     def written_between(self, name: str, start: Span, end: Span) -> bool:
         """Whether `name` is assigned in the function between two positions."""
@@ -2042,6 +2054,7 @@ class _NestBuilder:
             params=tuple(sorted(taken)),
             symbolic=symbolic,
             source=stmt_text(self.node),
+            scalar_types=self.info.scalar_types(self.node.span),
         )
 
 

@@ -15,6 +15,8 @@ from typing import TextIO
 
 from tripcount import __version__
 from tripcount.config import Config, ConfigError, load_config, parse_bytes, parse_sizes
+from tripcount.diagnostics import Diagnostic
+from tripcount.ir import Span
 from tripcount.options import Options
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
@@ -61,6 +63,8 @@ def build_parser() -> argparse.ArgumentParser:
     a.add_argument("paths", nargs="*", metavar="PATH", help="C files or directories ('-' reads stdin)")
     a.add_argument("--code", metavar="C", help="analyze this C text (a file, a function body or bare loops)")
     a.add_argument("--verify", action="store_true", help="re-check every formula by exact enumeration")
+    a.add_argument("--plot", metavar="FILE.png", help="plot work and working sets against one size (needs matplotlib)")
+    a.add_argument("--plot-param", metavar="PARAM", help="the size parameter on the plot's x axis")
     add_common(a)
     c = sub.add_parser("check", help="pre-commit gate: budgets and baseline regressions")
     c.add_argument("paths", nargs="*", metavar="FILE")
@@ -156,6 +160,7 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
         return EXIT_USAGE
     for path in paths:
         results.append(analyze_file(path, options))
+    unmatched_parallel(results, options)
     report = Report(files=results, at=options.at, settings=settings_of(options))
     out = open_output(args.output) if args.output else stdout
     try:
@@ -163,6 +168,12 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     finally:
         if args.output:
             out.close()
+    if args.plot:
+        from tripcount.report.plot import write_plot
+
+        why = write_plot(report, args.plot, args.plot_param)
+        if why:
+            stderr.write(f"tripcount: no plot: {why}\n")
     status = EXIT_OK
     for fr in results:
         for d in fr.all_diagnostics():
@@ -185,11 +196,37 @@ def _not_c(results: list) -> bool:
     return True
 
 
+class UnmatchedParallel(Diagnostic):
+    """`--parallel LINE` names a line where no analysed loop starts."""
+
+    code = "TC506"
+    severity = "warning"
+    title = "parallel-line-unmatched"
+    template = "--parallel {line}: no loop of the analysed files starts on line {line}"
+
+
+def unmatched_parallel(results: list, options: Options) -> None:
+    """Report --parallel lines that match no loop (the balance analysis sees one nest at a time)."""
+    lines = {lr.loop.span.line for fr in results for nr in fr.nests for lr in nr.loops}
+    for line in options.parallel_lines:
+        if line not in lines and results:
+            results[0].diagnostics.append(UnmatchedParallel(Span.point(1, 1), path=results[0].path, line=line))
+
+
 def settings_of(options: Options) -> dict:
-    """The model assumptions that the report states."""
+    """The model assumptions that the report states (assumptions, caches, threads)."""
     out: dict = {"assume": options.assume}
-    if options.caches:
-        out["caches"] = dict(options.caches)
+    try:
+        from tripcount.analysis.caches import hierarchy
+
+        out["caches"] = hierarchy(options).to_json()
+    except Exception:  # the report still states what it was given
+        if options.caches:
+            out["caches"] = dict(options.caches)
+    if options.threads:
+        out["threads"] = {"value": options.threads, "from": "--threads or config"}
+    else:
+        out["threads"] = {"value": os.cpu_count() or 1, "from": "host cores (num_threads clauses take precedence)"}
     return out
 
 

@@ -100,6 +100,7 @@ class Nest:
     symbolic: dict[str, str] = field(default_factory=dict)  # parameter name -> C text it stands for
     source: str = ""  # source text of the nest (for hashing/caching)
     names: dict[str, str] = field(default_factory=dict)  # C name of a parameter -> its isl name
+    scalar_types: dict[str, str] = field(default_factory=dict)  # C types of scalars visible at the nest
 
 
 # --------------------------------------------------------------------------
@@ -486,6 +487,7 @@ def _model_nest(an: af.ANest, assumption: tuple[af.Cond, list[str]] | None) -> N
         symbolic=dict(an.symbolic),
         source=an.source,
         names=_c_names(an),
+        scalar_types=dict(an.scalar_types),
     )
 
 
