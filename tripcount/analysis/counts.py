@@ -113,6 +113,38 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
     return c
 
 
+def middle_point(reach: isl.Set, n_outer: int, options: Options) -> dict[str, int] | None:
+    """A typical entry of an inner loop: --at sizes, outer variables mid-range in turn.
+
+    Used to pick which piece of a per-entry trip count to show first (the
+    generic piece of a formula in sizes and outer variables is ambiguous).
+    """
+    names = params_of(reach)
+    n_sizes = len(names) - n_outer
+    point = options.sizes(names[:n_sizes])
+    if point is None:
+        return None
+    s = reach
+    ctx = s.get_ctx()
+    for i, n in enumerate(names[:n_sizes]):
+        s = s.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(ctx, str(point[n])))
+    for k in range(n_outer):
+        pos = n_sizes + k
+        t = s.move_dims(isl.dim_type.set, 0, isl.dim_type.param, pos, 1)
+        try:
+            lo, hi = t.lexmin(), t.lexmax()
+            if lo.is_empty():
+                return None
+            a = int(lo.sample_point().get_coordinate_val(isl.dim_type.set, 0).to_python())
+            b = int(hi.sample_point().get_coordinate_val(isl.dim_type.set, 0).to_python())
+        except Exception:  # unbounded or too hard: fall back to the generic piece
+            return None
+        mid = (a + b) // 2
+        point[names[pos]] = mid
+        s = s.fix_val(isl.dim_type.param, pos, isl.Val.read_from_str(ctx, str(mid)))
+    return point
+
+
 def outer_as_params(domain: isl.Set, n_outer: int) -> isl.Set:
     """Move the first `n_outer` set dimensions of `domain` into the parameters."""
     n_param = domain.dim(isl.dim_type.param)
@@ -131,9 +163,14 @@ def analyze(result: NestResult, options: Options) -> None:
         per_entry = None
         if loop.depth > 0:
             local = outer_as_params(loop.domain, loop.depth)
+            # the outer iterations that reach this loop: conditions they imply go unsaid
+            reach = local.params()
+            ctx = context_for(local, nest.context)
+            reach = reach if ctx is None else reach.intersect(ctx)
             try:
-                pw = engine.count(local, context_for(local, nest.context), limits_of(options))
+                pw = engine.count(local, reach.coalesce(), limits_of(options))
                 per_entry = Count(value=None, formula=pw)
+                per_entry.locate(middle_point(reach, loop.depth, options))
             except engine.EngineLimit:
                 per_entry = None
         else:

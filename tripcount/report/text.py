@@ -78,10 +78,10 @@ def formula_lines(c: Count) -> tuple[str, list[str]]:
 def short_formula(c: Count) -> str:
     """One-line formula for a loop row: the leading piece, marked when piecewise."""
     head, rest = formula_lines(c)
-    expr, _, when = head.partition("   when ")
+    expr = head.partition("   when ")[0]
     nonzero = [r for r in rest if r != "0 otherwise"]
     if nonzero:
-        return f"{expr} (when {when}; {len(nonzero)} more case{'s' if len(nonzero) > 1 else ''})"
+        return f"{expr} [+{len(nonzero)} case{'s' if len(nonzero) > 1 else ''}]"
     return expr
 
 
@@ -98,6 +98,7 @@ class TextReporter(Reporter):
             n_nests += len(fr.nests)
             self.write_file(fr, at)
         n_diag = sum(len(f.all_diagnostics()) for f in report.files)
+        at = at.replace("*=", "every other size=") if "*=" in at and at.count("=") > 1 else at.replace("*=", "every size=")
         self.stream.write(f"{len(report.files)} file(s), {n_nests} nest(s), {n_diag} diagnostic(s)"
                           + (f"; values at {at}" if at else "; give --at N=... for values") + "\n")
 
@@ -129,6 +130,9 @@ class TextReporter(Reporter):
         loops = {lr.loop.index: lr for lr in nr.loops}
 
         def row(left: str, value: str) -> None:
+            if not value:
+                w(left + "\n")
+                return
             pad = max(1, self.width - len(left) - len(value))
             w(left + " " * pad + value + "\n")
 
@@ -142,7 +146,7 @@ class TextReporter(Reporter):
                     f", {expr_text(loop.omp.chunk)}" if loop.omp.chunk is not None else "") + ")"
                     if loop.omp.schedule else "") + "]"
             if lr.trips.formula is None and lr.trips.value is None:
-                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips: {lr.trips.note or 'unknown'}", "")
+                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   not counted (see the diagnostics)", "")
             else:
                 head = short_formula(lr.trips)
                 per = ""
@@ -171,6 +175,9 @@ class TextReporter(Reporter):
             text = " ".join(sr.stmt.text.split())
             if len(text) > 48:
                 text = text[:45] + "..."
+            if sr.stmt.domain is None:
+                row(f"{pre}{sr.stmt.id} (line {sr.stmt.span.line}) {text}   not counted", "")
+                return
             head, rest = formula_lines(sr.count)
             row(f"{pre}{sr.stmt.id} (line {sr.stmt.span.line}) {text}", "")
             row(f"{pre}    runs {head}", f"= {fmt_value(sr.count.value)}" if sr.count.value is not None else "")
