@@ -209,3 +209,53 @@ def test_engine_import_does_not_import_sympy():
     code = "import sys, tripcount.engine; print('sympy' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
+
+
+# -- readable forms (readable.py) ---------------------------------------------
+
+_N2 = QPoly.floor(N, 2)
+_H = QPoly.var("H")
+_H32, _H32c = QPoly.floor(_H, 32), QPoly.floor(_H + 31, 32)
+READABLE_CASES = [
+    (N - _N2, "floor((N + 1)/2)"),
+    ((N - _N2) ** 2, "floor((N + 1)/2)^2"),
+    ((N**2 + 2 * _N2**2 - 2 * N * _N2 + 2 * _N2 - N + 2) / 2, "floor(N/2)*floor((N + 1)/2) + 1"),
+    (2 * (N - _N2 - 1) * (_N2 - 1), "2*(floor(N/2) - 1)*(floor((N + 1)/2) - 1)"),
+    (_H * _H32c + 16 * _H32**2 - _H * _H32 - 16 * _H32c**2 + 16 * _H32 + 16 * _H32c, "H"),
+    (N * (N + 1) / 2, "N*(N + 1)/2"),
+]
+
+
+@pytest.mark.parametrize("p,text", READABLE_CASES)
+def test_readable_forms(p, text):
+    # check: sympy parses the printed form and it equals the exact value
+    # (Python integer floor division) at many points, negative ones included
+    assert p.to_expr() == text
+    expr = to_sympy(p)
+    for env in [{"N": n, "H": n} for n in range(-70, 70, 3)]:
+        env = {k: v for k, v in env.items() if k in p.variables()}
+        assert sympy_value(expr, env) == p.evaluate(env)
+
+
+@given(
+    cs=st.lists(st.integers(-3, 3), min_size=6, max_size=6),
+    m=st.sampled_from([2, 3, 4]),
+    c=st.integers(0, 3),
+)
+@settings(max_examples=60, deadline=None)
+def test_readable_text_is_equal_form(cs, m, c):
+    # check: sympy evaluation of the printed text agrees with exact evaluation
+    f = QPoly.floor(N + c, m)
+    g = QPoly.floor(M, 2)
+    p = cs[0] * N**2 + cs[1] * N * f + cs[2] * f**2 + cs[3] * f * g + cs[4] * M * g + cs[5]
+    expr = to_sympy(p)
+    for n, k in itertools.product(range(-9, 10, 2), range(-5, 6, 3)):
+        env = {"N": n, "M": k}
+        env = {a: b for a, b in env.items() if a in p.variables()}
+        assert sympy_value(expr, env) == p.evaluate(env)
+
+
+def test_readable_keeps_leading():
+    # check: the leading part is computed from the exact form (floors -> linear part)
+    p = (N**2 + 2 * _N2**2 - 2 * N * _N2 + 2 * _N2 - N + 2) / 2
+    assert p.leading() == "N^2/4"

@@ -244,6 +244,9 @@ def _root_candidates(a, atoms) -> list[QPoly]:
         for k in (0, -1, 1, -2, 2):
             out.append(QPoly.atom(b) + k)
             out.append(-QPoly.atom(b) + k)
+        for k in (0, -1, 1):  # (H + 2*B)*(W + 2*B): halos on both sides
+            out.append(QPoly.atom(b) * 2 + k)
+            out.append(QPoly.atom(b) * -2 + k)
     return out
 
 

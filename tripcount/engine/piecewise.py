@@ -11,6 +11,7 @@
 from __future__ import annotations
 
 import random
+import time
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -20,7 +21,7 @@ from math import comb, lcm
 import islpy as isl
 
 from tripcount.engine.fmt import format_conditions
-from tripcount.engine.islconv import bset_constraints, params_set
+from tripcount.engine.islconv import bset_constraints, lin_isl, params_set
 from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value
 from tripcount.engine.summation import EngineLimit, _State
 
@@ -361,6 +362,44 @@ def _simplify_on_residues(r: isl.Set, f: QPoly, params: tuple[str, ...]) -> QPol
     return f
 
 
+def _fix_constant_floors(r: isl.Set, f: QPoly, params: tuple[str, ...], st: _State | None) -> QPoly:
+    """Replace the floors of f that are constant on r by their value (on 1 <= H <= 31,
+    floor(H/32) is 0), so that edge pieces read simply and merge with their neighbours.
+
+    Optional (presentation and merging only): skipped when less than half of the
+    time budget is left, so that it never turns a count into a give-up."""
+    fl = [a for a in f.atoms() if isinstance(a, Floor) and all(isinstance(b, str) for b, _ in a.terms)]
+    if not fl:
+        return f
+    if st is not None and st.deadline - time.monotonic() < 0.5 * st.limits.time_s:
+        return f
+    if r.is_empty():
+        return f
+    pt = r.sample_point()
+    env = {p: pt.get_coordinate_val(_dt.param, i).to_python() for i, p in enumerate(params)}
+    fixed: dict = {}
+    for a in fl:
+        q = atom_value(a, env, {})
+        expr = lin_isl((dict(a.terms), a.const))
+        band = params_set(r.get_ctx(), params, f"{q * a.den} <= {expr} <= {q * a.den + a.den - 1}")
+        if r.is_subset(band):
+            fixed[a] = q
+    if not fixed:
+        return f
+    out: dict = {}
+    for m, c in f.terms.items():
+        rest = []
+        for a, e in m:
+            if a in fixed:
+                c = c * Fraction(fixed[a]) ** e
+            else:
+                rest.append((a, e))
+        if c:
+            key = tuple(rest)
+            out[key] = out.get(key, Fraction(0)) + c
+    return QPoly({m: c for m, c in out.items() if c})
+
+
 def _generic_points(params: tuple[str, ...]) -> list[dict[str, int]]:
     n = len(params)
     pts = []
@@ -443,7 +482,8 @@ def build(
                 break
         else:
             keep.append(reg)
-    regions = _merge_equal(keep)
+    regions = [[r, _fix_constant_floors(r, g, params, st)] for r, g in keep]
+    regions = _merge_equal(regions)
     regions = _absorb_flat(regions, st)
     # merge pieces with identical formulas (proof by evaluation)
     merged = True

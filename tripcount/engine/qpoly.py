@@ -180,12 +180,13 @@ def _mono_degree(m: Mono) -> int:
 class QPoly:
     """An immutable quasi-polynomial with Fraction coefficients."""
 
-    __slots__ = ("terms", "_hash", "_compiled")
+    __slots__ = ("terms", "_hash", "_compiled", "_text")
 
     def __init__(self, terms: Mapping[Mono, Fraction] | None = None) -> None:
         self.terms: dict[Mono, Fraction] = dict(terms) if terms else {}
         self._hash = None
         self._compiled = None
+        self._text = None
 
     # -- construction -------------------------------------------------------
     @staticmethod
@@ -428,10 +429,17 @@ class QPoly:
 
     # -- presentation -------------------------------------------------------
     def to_expr(self) -> str:
-        """Plain-arithmetic expression (sympy-parsable with ^ as power), factored where cheap."""
-        from tripcount.engine.fmt import format_qpoly
+        """Plain-arithmetic expression (sympy-parsable with ^ as power), factored where cheap.
 
-        return format_qpoly(self)
+        The most readable of the forms proven equal to this one (readable.py),
+        e.g. floor((N + 1)/2) for N - floor(N/2); computed once per object.
+        """
+        if self._text is None:
+            from tripcount.engine.fmt import format_qpoly
+            from tripcount.engine.readable import format_grouped, readable
+
+            self._text = readable(self, lambda q: format_grouped(q, format_qpoly))
+        return self._text
 
     def to_expanded(self) -> str:
         """Expanded form, terms by decreasing degree."""

@@ -98,6 +98,7 @@ def sum_set(s: isl.Set, f: QPoly, st: _State) -> list[tuple[isl.Set, QPoly]]:
     st.check("summing")
     out: list[tuple[isl.Set, QPoly]] = []
     for b in s.compute_divs().make_disjoint().get_basic_sets():
+        st.check("summing")
         out.extend(_sum_bset(b, f, st, allow_stride=True))
     return out
 
@@ -309,6 +310,8 @@ def _sum_interval(
     for d1, l1 in lo_p:
         lo_q = QPoly.from_lin(l1)
         for d2, l2 in hi_p:
+            # one check per isl call: a long chamber list must not overrun the budget
+            st.check("summing chambers")
             d = d1.intersect(d2)
             if d.is_empty():
                 continue
