@@ -124,7 +124,8 @@ def test_random_nests_match_isl_enumeration(depth):
     run()
     # known gap: deep nests mixing strides, modulo guards and floor bounds can
     # exceed the budget while making the pieces disjoint
-    rate = {1: 0.02, 2: 0.02, 3: 0.15, 4: 0.30}[depth]
+    # (loose enough not to flake on a slower machine: the budget is wall-clock time)
+    rate = {1: 0.03, 2: 0.05, 3: 0.20, 4: 0.35}[depth]
     assert STATS["refused"] <= rate * STATS["run"] + 1, STATS
 
 
