@@ -34,6 +34,36 @@ def power_sum_coeffs(k: int) -> tuple[Fraction, ...]:
     return tuple(c)
 
 
+def antidifference(coeffs: dict[int, QPoly]):
+    """G with sum_{x=lo}^{hi} sum_k coeffs[k] * x^k = G(hi) - G(lo - 1) whenever
+    lo <= hi + 1. G memoizes its values: the chambers of an interval sum share
+    their bounds, so each bound is expanded once instead of once per pair."""
+    top = max(coeffs) + 1 if coeffs else 0
+    g: list[QPoly] = [QPoly() for _ in range(top + 1)]
+    for k, ck in coeffs.items():
+        if ck.is_zero():
+            continue
+        for j, s in enumerate(power_sum_coeffs(k)):
+            if s:
+                g[j] = g[j] + ck * s
+    memo: dict[QPoly, QPoly] = {}
+
+    def big_g(n: QPoly) -> QPoly:
+        got = memo.get(n)
+        if got is not None:
+            return got
+        out = QPoly()
+        pn = QPoly.const(1)
+        for j in range(1, top + 1):
+            pn = pn * n
+            if not g[j].is_zero():
+                out = out + g[j] * pn
+        memo[n] = out
+        return out
+
+    return big_g
+
+
 def sum_interval(coeffs: dict[int, QPoly], lo: QPoly, hi: QPoly) -> QPoly:
     """sum_{x=lo}^{hi} sum_k coeffs[k] * x^k, valid whenever lo <= hi + 1."""
     if not coeffs:

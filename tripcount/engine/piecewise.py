@@ -181,6 +181,10 @@ class Piecewise:
 # building and simplification
 
 
+# up to this many distinct term domains, the pairwise overlay is used
+PAIRWISE_MAX = 24
+
+
 def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list]:
     """Disjoint regions [set, poly]; the poly of a region is the sum of the terms covering it."""
     # identical domains first: add their polys
@@ -193,8 +197,66 @@ def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list
                 break
         else:
             grouped.append([d, f])
-    regions: list[list] = []
+    if not grouped:
+        return []
     limit = st.limits.max_pieces * 8 if st is not None else 4096
+    if len(grouped) <= PAIRWISE_MAX:
+        return _overlay_pairwise(grouped, st, limit)
+    # explicit divs instead of existentials (projected loop variables): the
+    # overlay below is several times cheaper on them
+    grouped = [[d.compute_divs().coalesce(), f] for d, f in grouped]
+    # The overlay is computed by isl in one pass over quasi-affine tags: term i
+    # carries the constant 2^i, and isl's union_add sums the tags where domains
+    # overlap, so the tag of a region is the bit set of the terms covering it
+    # (exact: integer constants never cancel). Much cheaper than subtracting
+    # the sets pairwise here.
+    ctx = grouped[0][0].get_ctx()
+    acc = None
+    for i, (d, _f) in enumerate(grouped):
+        if st is not None:
+            st.check("combining pieces")
+        pa = isl.PwAff.val_on_domain(d, isl.Val.read_from_str(ctx, str(1 << i)))
+        acc = pa if acc is None else acc.union_add(pa)
+        if i % 8 == 7:
+            acc = acc.coalesce()
+    acc = acc.coalesce()
+    by_mask: dict[int, isl.Set] = {}
+    for dom, aff in acc.get_pieces():
+        mask = int(aff.get_constant_val().to_python())
+        if mask in by_mask:
+            by_mask[mask] = by_mask[mask].union(dom)
+        else:
+            by_mask[mask] = dom
+    if st is not None:
+        st.check("combining pieces")
+    regions: list[list] = []
+    # term order (lowest covering term first), as the pairwise overlay produced it
+    for mask, dom in sorted(by_mask.items(), key=lambda kv: ((kv[0] & -kv[0]).bit_length(), kv[0])):
+        poly = QPoly()
+        i = 0
+        while mask:
+            if mask & 1:
+                poly = poly + grouped[i][1]
+            mask >>= 1
+            i += 1
+        regions.append([dom.coalesce(), poly])
+    regions = _merge_equal(regions)
+    if len(regions) > limit:
+        raise EngineLimit(f"more than {limit} pieces while combining terms")
+    return regions
+
+
+def _spare(st: _State | None, frac: float) -> bool:
+    """True when more than `frac` of the time budget is left. The merging and
+    readability passes are optional (the pieces are exact without them): they
+    stop early instead of turning a finished count into a give-up."""
+    return st is None or st.deadline - time.monotonic() > frac * st.limits.time_s
+
+
+def _overlay_pairwise(grouped: list[list], st: _State | None, limit: int) -> list[list]:
+    """The overlay by pairwise intersection and subtraction (few terms: cheap, and
+    its regions coalesce into the most readable pieces)."""
+    regions: list[list] = []
     for d, f in grouped:
         if st is not None:
             st.check("combining pieces")
@@ -325,8 +387,8 @@ def _absorb_flat(regions: list[list], st: _State | None) -> list[list]:
             for j, other in enumerate(out):
                 if j == i:
                     continue
-                if st is not None:
-                    st.check("merging pieces")
+                if not _spare(st, 0.25):
+                    return out
                 if qpoly_identical(other[1].subs(sub), mine):
                     other[0] = other[0].union(reg[0]).coalesce()
                     del out[i]
@@ -465,7 +527,7 @@ def build(
     small: list[tuple[list, list[dict[str, int]]]] = []
     big: list[list] = []
     for reg in regions:
-        pts = _param_points(reg[0], 64)
+        pts = _param_points(reg[0], 64) if _spare(st, 0.3) else None
         if pts is None:
             big.append(reg)
             continue
@@ -485,24 +547,28 @@ def build(
     regions = [[r, _fix_constant_floors(r, g, params, st)] for r, g in keep]
     regions = _merge_equal(regions)
     regions = _absorb_flat(regions, st)
-    # merge pieces with identical formulas (proof by evaluation)
-    merged = True
-    while merged and len(regions) > 1:
-        merged = False
-        for i in range(len(regions)):
-            for j in range(i + 1, len(regions)):
-                if st is not None:
-                    st.check("merging pieces")
-                if qpoly_identical(regions[i][1], regions[j][1]):
-                    a, b = regions[i], regions[j]
-                    poly = a[1] if a[1].n_terms() <= b[1].n_terms() else b[1]
-                    regions[i] = [a[0].union(b[0]).coalesce(), poly]
-                    del regions[j]
-                    merged = True
-                    break
-            if merged:
+    # merge pieces with identical formulas (proof by evaluation); being proven
+    # equal is an equivalence, so one pass against a representative per class
+    classes: list[list] = []  # [poly, [domains]]
+    for idx, (r, g) in enumerate(regions):
+        if not _spare(st, 0.2):
+            classes.extend([g2, [r2]] for r2, g2 in regions[idx:])
+            break
+        for cl in classes:
+            if qpoly_identical(cl[0], g):
+                cl[1].append(r)
+                if g.n_terms() < cl[0].n_terms():
+                    cl[0] = g
                 break
-    regions = [[r, _simplify_on_residues(r, g, params)] for r, g in regions]
+        else:
+            classes.append([g, [r]])
+    regions = []
+    for g, doms in classes:
+        d = doms[0]
+        for r in doms[1:]:
+            d = d.union(r)
+        regions.append([d.coalesce() if len(doms) > 1 else d, g])
+    regions = [[r, _simplify_on_residues(r, g, params) if _spare(st, 0.1) else g] for r, g in regions]
     if st is not None and len(regions) > st.limits.max_pieces:
         raise EngineLimit(f"more than {st.limits.max_pieces} pieces (max_pieces)")
     # generic piece first

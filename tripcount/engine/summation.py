@@ -27,7 +27,7 @@ from math import lcm
 
 import islpy as isl
 
-from tripcount.engine.faulhaber import sum_interval
+from tripcount.engine.faulhaber import antidifference, sum_interval
 from tripcount.engine.islconv import aff_to_lin, bset_constraints, bset_divs, val_frac
 from tripcount.engine.qpoly import Floor, QPoly, atom_period, lin_scale, poly_period
 
@@ -235,11 +235,16 @@ def _block_summer(f: QPoly, x: str):
     u = sum_interval(ps.coeffs_in(_S), QPoly.const(0), QPoly.var(_R))
     h = v + u
 
-    def summer(lo: QPoly, hi: QPoly) -> QPoly:
-        def hh(n: QPoly) -> QPoly:
-            q = QPoly.floor(n, m)
-            return h.subs({_Q: q, _R: n - q * m})
+    memo: dict[QPoly, QPoly] = {}
 
+    def hh(n: QPoly) -> QPoly:
+        got = memo.get(n)
+        if got is None:
+            q = QPoly.floor(n, m)
+            got = memo[n] = h.subs({_Q: q, _R: n - q * m})
+        return got
+
+    def summer(lo: QPoly, hi: QPoly) -> QPoly:
         return hh(hi + e) - hh(lo + e - 1)
 
     return summer
@@ -284,10 +289,10 @@ def _sum_interval(
         divs = bset_divs(b)
         cons = bset_constraints(b, divs)
     if summer is None:
-        coeffs = f.coeffs_in(x)
+        big_g = antidifference(f.coeffs_in(x))
 
         def summer(lo: QPoly, hi: QPoly) -> QPoly:
-            return sum_interval(coeffs, lo, hi)
+            return big_g(hi) - big_g(lo - 1)
 
     relax = relax and not any(
         isinstance(a, Floor) and x in a.variables() for dv in divs for a in dv[0]
