@@ -2,16 +2,28 @@
 #
 # Runs the stages in order for each file and each nest. A failure inside one
 # nest's analysis is caught and reported as an internal-error diagnostic at the
-# nest's location; the other nests and files are still analyzed.
+# nest's location; the other nests and files are still analyzed. A failure of
+# the front end or the model on a whole file is a file-level internal error
+# (TC902); the other files are still analyzed.
+#
+# Every nest runs under tripcount.guard.nest_budget: a per-nest time limit and
+# isl operation budget (Options.time_limit), so that one hard nest cannot stop
+# the others; a nest that hits them keeps its completed counts and gets a
+# limit diagnostic (TC310). A file's nests share FILE_TIME_FACTOR x time_limit;
+# nests past it are listed as not analyzed (TC311).
 
 from __future__ import annotations
 
+import dataclasses
 import os
+import time
 import traceback
 from collections.abc import Callable, Iterable
+from typing import Any
 
+from tripcount import guard
 from tripcount.analysis import counts
-from tripcount.analysis.results import FileResult, NestResult
+from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, StatementResult
 from tripcount.diagnostics import InternalError, InvalidEncoding, UnreadableFile
 from tripcount.frontend import parse_text
 from tripcount.ir import Span
@@ -58,32 +70,195 @@ def collect_paths(paths: Iterable[str]) -> list[str]:
     return out
 
 
+def _where(exc: BaseException) -> str:
+    """`file:line` of the innermost frame of an exception."""
+    frames = traceback.extract_tb(exc.__traceback__)
+    if not frames:
+        return "?"
+    return f"{os.path.basename(frames[-1].filename)}:{frames[-1].lineno}"
+
+
+def _snapshot(result: NestResult) -> tuple[int, int, int, dict, list[dict], list[dict]]:
+    """What an analysis may add to a result, to take it back when the analysis is cut short."""
+    return (len(result.diagnostics), len(result.loops), len(result.statements), dict(result.extras),
+            [dict(lr.extras) for lr in result.loops], [dict(sr.extras) for sr in result.statements])
+
+
+def _restore(result: NestResult, snap: tuple[int, int, int, dict, list[dict], list[dict]]) -> None:
+    n_diag, n_loops, n_stmts, extras, loop_extras, stmt_extras = snap
+    del result.diagnostics[n_diag:]
+    del result.loops[n_loops:]
+    del result.statements[n_stmts:]
+    result.extras.clear()
+    result.extras.update(extras)
+    for lr, ex in zip(result.loops, loop_extras, strict=False):
+        lr.extras.clear()
+        lr.extras.update(ex)
+    for sr, ex in zip(result.statements, stmt_extras, strict=False):
+        sr.extras.clear()
+        sr.extras.update(ex)
+
+
+def _complete_counts(result: NestResult, note: str) -> None:
+    """Loops and statements the counts analysis did not reach get an explicit 'unknown'."""
+    done_loops = {id(lr.loop) for lr in result.loops}
+    done_stmts = {id(sr.stmt) for sr in result.statements}
+    for loop in result.nest.loops:
+        if id(loop) not in done_loops:
+            result.loops.append(LoopResult(loop, Count(note=note)))
+    for stmt in result.nest.statements:
+        if id(stmt) not in done_stmts:
+            result.statements.append(StatementResult(stmt, Count(note=note)))
+    order_l = {id(lp): k for k, lp in enumerate(result.nest.loops)}
+    order_s = {id(st): k for k, st in enumerate(result.nest.statements)}
+    result.loops.sort(key=lambda lr: order_l.get(id(lr.loop), len(order_l)))
+    result.statements.sort(key=lambda sr: order_s.get(id(sr.stmt), len(order_s)))
+
+
 def analyze_nest(nest: Nest, options: Options) -> NestResult:
-    """Run every analysis on one nest; an exception becomes an internal-error diagnostic."""
+    """Run every analysis on one nest; an exception becomes an internal-error diagnostic.
+
+    The analyses share the nest's budget (guard.nest_budget): each one gets the
+    time left as its `time_limit`. When the budget is spent, the analysis
+    running is cut: completed counts are kept, anything else it produced is
+    dropped, the later analyses are skipped, and a TC310 diagnostic says so.
+    """
     result = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
-    for name, run in analyses():
-        try:
-            run(result, options)
-        except Exception as exc:  # one nest must not take the report down
-            where = traceback.extract_tb(exc.__traceback__)[-1]
-            result.diagnostics.append(
-                InternalError(nest.span, what=f"{name}: {type(exc).__name__}: {exc} at "
-                              f"{os.path.basename(where.filename)}:{where.lineno}"))
-            if name == "counts":
-                break
+    stopped: list[str] = []  # analyses cut short or skipped at the limit
+    reason = ""
+    last: tuple[str, Any] | None = None  # the analysis that ran last, with its snapshot
+    try:
+        with guard.nest_budget(options) as budget:
+            for name, run in analyses():
+                if stopped:
+                    stopped.append(name)
+                    continue
+                if last is not None and budget.ops_spent():
+                    # the previous analysis swallowed a spent-budget isl error: take it back
+                    _cut(result, *last)
+                    stopped.extend([last[0], name])
+                    reason = budget.reason()
+                    continue
+                left = budget.remaining()
+                if left <= 0:
+                    budget.tripped = budget.tripped or "time"
+                    reason = budget.reason()
+                    stopped.append(name)
+                    continue
+                snap = _snapshot(result)
+                last = (name, snap)
+                # later analyses get the time left, so the engine's own checks stop in time
+                local = options
+                if left < 0.95 * budget.time_limit:
+                    local = dataclasses.replace(options, time_limit=max(0.01, round(left, 2)))
+                try:
+                    run(result, local)
+                except (guard.NestLimit, guard.EnumerationLimit) as exc:
+                    budget.stop_alarm()
+                    budget.tripped = budget.tripped or "time"
+                    reason = str(exc) or budget.reason()
+                    _cut(result, name, snap)
+                    stopped.append(name)
+                except Exception as exc:  # one nest must not take the report down
+                    if guard.is_quota_error(exc) or budget.ops_spent():
+                        budget.tripped = "operations"
+                        reason = budget.reason()
+                        _cut(result, name, snap)
+                        stopped.append(name)
+                        continue
+                    result.diagnostics.append(
+                        InternalError(nest.span, what=f"{name}: {type(exc).__name__}: {guard._short(exc)} at "
+                                      f"{_where(exc)}"))
+                    if name == "counts":
+                        _complete_counts(result, "count unknown (internal error)")
+                        break
+    except guard.NestLimit as exc:  # found spent on leaving the budget, or a stop while handling one
+        reason = reason or str(exc)
+        if last is not None and last[0] not in stopped:
+            _cut(result, *last)
+            stopped.append(last[0])
+        elif last is None:
+            stopped.append("counts")
+            _complete_counts(result, "count unknown (nest limit reached)")
+    if stopped:
+        result.diagnostics.append(guard.AnalysisLimit(nest.span, reason=reason or "limit reached",
+                                                      kept=_kept_text(result, stopped)))
     return result
+
+
+def _cut(result: NestResult, name: str, snap: Any) -> None:
+    """Take back what a cut analysis produced (counts keep their completed, exact entries)."""
+    if name == "counts":
+        _complete_counts(result, "count unknown (nest limit reached)")
+        return
+    _restore(result, snap)
+
+
+def _kept_text(result: NestResult, stopped: list[str]) -> str:
+    names = ", ".join(stopped)
+    if "counts" in stopped:
+        done = sum(1 for sr in result.statements if sr.count.formula is not None or sr.count.value is not None)
+        return (f"{done} of {len(result.statements)} statement counts were completed and are exact; "
+                f"not computed: {names}")
+    complete = all(sr.count.formula is not None or sr.count.value is not None for sr in result.statements)
+    what = "the counts are complete and exact" if complete else "the counts shown are exact"
+    return f"{what}; not computed: {names}"
+
+
+def _file_failure(path: str, text: str, stage: str, exc: BaseException, snippet: bool) -> FileResult:
+    result = FileResult(path=path, source=text if snippet else None)
+    result.diagnostics.append(guard.ReadFailure(
+        Span.point(1, 1), what=f"{stage}: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
+    return result
+
+
+def analyze_nests(nests: Iterable[Nest], options: Options) -> list[NestResult]:
+    """Analyze the nests of one file under the file's budget (FILE_TIME_FACTOR x time_limit).
+
+    Nests past the budget are returned not analyzed, with a TC311 diagnostic.
+    """
+    out: list[NestResult] = []
+    deadline = guard.file_deadline(options)
+    for nest in nests:
+        if time.monotonic() > deadline:
+            skipped = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
+            _complete_counts(skipped, "not analyzed (file budget spent)")
+            skipped.diagnostics.append(guard.FileBudgetSpent(
+                nest.span, seconds=guard.FILE_TIME_FACTOR * guard.time_limit_of(options),
+                factor=guard.FILE_TIME_FACTOR))
+            out.append(skipped)
+            continue
+        try:
+            if nest.context is not None and not nest.context.get_space().is_params():
+                nest.context = nest.context.params()
+            out.append(analyze_nest(nest, options))
+        except Exception as exc:  # analyze_nest contains its analyses; this guards the set-up
+            failed = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
+            failed.diagnostics.append(InternalError(
+                nest.span, what=f"set-up: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
+            out.append(failed)
+    return out
 
 
 def analyze_text(text: str, path: str, options: Options, snippet: bool = False) -> FileResult:
     """Analyze C source text; `path` is used in diagnostics and the report."""
-    unit, diags = parse_text(text, path=path, snippet=snippet)
+    try:
+        unit, diags = parse_text(text, path=path, snippet=snippet)
+    except Exception as exc:  # the front end promises not to raise; if it does, this file only
+        return _finish(_file_failure(path, text, "front end", exc, snippet), path)
     result = FileResult(path=path, diagnostics=list(diags), source=text if snippet else None)
-    nests, model_diags = build_nests(unit, assume=options.assume, path=path)
+    try:
+        nests, model_diags = build_nests(unit, assume=options.assume, path=path)
+    except Exception as exc:  # build_nests contains failures per nest; this is the last net
+        result.diagnostics.append(guard.ReadFailure(
+            Span.point(1, 1), what=f"model: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
+        return _finish(result, path)
     result.diagnostics.extend(model_diags)
-    for nest in nests:
-        if nest.context is not None and not nest.context.get_space().is_params():
-            nest.context = nest.context.params()
-        result.nests.append(analyze_nest(nest, options))
+    result.nests.extend(analyze_nests(nests, options))
+    return _finish(result, path)
+
+
+def _finish(result: FileResult, path: str) -> FileResult:
     for d in result.all_diagnostics():
         d.path = path
     return result
@@ -106,9 +281,10 @@ def analyze_file(path: str, options: Options) -> FileResult:
     try:
         with open(path, "rb") as f:
             data = f.read()
-    except OSError as exc:
+    except (OSError, ValueError) as exc:
         r = FileResult(path=path)
-        r.diagnostics.append(UnreadableFile(None, path=path, reason=exc.strerror or str(exc)))
+        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        r.diagnostics.append(UnreadableFile(None, path=path, reason=reason))
         return r
     text, bad = decode_source(data)
     result = analyze_text(text, path, options)

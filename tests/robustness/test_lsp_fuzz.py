@@ -1,0 +1,219 @@
+# Robustness of the language server: `python -m tripcount serve` as a
+# subprocess, spoken to over pipes with this module's own minimal LSP framing.
+# 1,000 malformed or random messages (bad headers, bad JSON, wrong methods,
+# wrong params, out-of-order requests, didChange before didOpen, huge
+# documents), then a valid hover must still be answered. Everything is
+# bounded by timeouts; the server is killed if it does not exit.
+
+from __future__ import annotations
+
+import json
+import os
+import queue
+import random
+import subprocess
+import sys
+import threading
+import time
+from typing import Any
+
+import pytest
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+N_MESSAGES = 1000
+TEST_TIMEOUT_S = 170.0
+
+VALID = ("void tide(int N, double *A)\n{\n  for (int i = 0; i < N; i++)\n"
+         "    for (int j = 0; j <= i; j++)\n      A[i] += 1.0;\n}\n")
+
+
+def _lsp_available() -> str | None:
+    if not os.path.exists(os.path.join(ROOT, "tripcount", "lsp.py")):
+        return "tripcount/lsp.py does not exist yet"
+    try:
+        import lsprotocol  # noqa: F401
+        import pygls  # noqa: F401
+    except ImportError as exc:
+        return f"the language server needs pygls and lsprotocol: {exc}"
+    return None
+
+
+pytestmark = pytest.mark.skipif(_lsp_available() is not None, reason=str(_lsp_available()))
+
+
+def frame(body: bytes) -> bytes:
+    """One LSP message: Content-Length header, blank line, body."""
+    return b"Content-Length: %d\r\n\r\n" % len(body) + body
+
+
+def msg(obj: Any) -> bytes:
+    return frame(json.dumps(obj).encode())
+
+
+class Client:
+    """The server process, a reader thread that splits its output into messages, and a kill switch."""
+
+    def __init__(self, tmp: str) -> None:
+        env = dict(os.environ, TRIPCOUNT_CACHE_DIR=os.path.join(tmp, "cache"),
+                   PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
+        self.stderr = open(os.path.join(tmp, "server.log"), "wb")  # noqa: SIM115 - closed in close()
+        self.proc = subprocess.Popen([sys.executable, "-m", "tripcount", "serve"], stdin=subprocess.PIPE,
+                                     stdout=subprocess.PIPE, stderr=self.stderr, cwd=tmp, env=env)
+        self.inbox: queue.Queue[dict[str, Any]] = queue.Queue()
+        self.reader = threading.Thread(target=self._read, daemon=True)
+        self.reader.start()
+        self.watchdog = threading.Timer(TEST_TIMEOUT_S, self.proc.kill)
+        self.watchdog.start()
+
+    def _read(self) -> None:
+        out = self.proc.stdout
+        while True:
+            length = None
+            while True:
+                line = out.readline()
+                if not line:
+                    return
+                line = line.strip()
+                if not line:
+                    break
+                if line.lower().startswith(b"content-length:"):
+                    length = int(line.split(b":", 1)[1])
+            if length is None:
+                continue
+            body = out.read(length)
+            try:
+                self.inbox.put(json.loads(body))
+            except ValueError:
+                self.inbox.put({"unparsable": body[:200].decode(errors="replace")})
+
+    def send(self, data: bytes) -> None:
+        self.proc.stdin.write(data)
+        self.proc.stdin.flush()
+
+    def request(self, rid: int, method: str, params: Any, timeout: float = 60.0) -> dict[str, Any]:
+        """Send a request and wait for the response with its id (other messages are dropped)."""
+        self.send(msg({"jsonrpc": "2.0", "id": rid, "method": method, "params": params}))
+        end = time.monotonic() + timeout
+        while time.monotonic() < end:
+            try:
+                m = self.inbox.get(timeout=max(0.01, end - time.monotonic()))
+            except queue.Empty:
+                break
+            if m.get("id") == rid and ("result" in m or "error" in m):
+                return m
+        raise AssertionError(f"no response to {method} (id {rid}) within {timeout} s")
+
+    def close(self) -> int | None:
+        try:
+            self.send(msg({"jsonrpc": "2.0", "id": 999_999, "method": "shutdown", "params": None}))
+            self.send(msg({"jsonrpc": "2.0", "method": "exit", "params": None}))
+            self.proc.stdin.close()
+        except OSError:
+            pass
+        try:
+            return self.proc.wait(timeout=15)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait(timeout=5)
+            return None
+        finally:
+            self.watchdog.cancel()
+            self.stderr.close()
+
+
+def _uri(k: int) -> str:
+    return f"file:///tmp/tripcount-lsp-fuzz/doc{k}.c"
+
+
+def random_message(rng: random.Random, k: int) -> bytes:
+    """One malformed, random or out-of-order message (never `exit` or `shutdown`)."""
+    kind = rng.randrange(12)
+    uri = _uri(rng.randrange(5))
+    if kind == 0:  # bad headers
+        return rng.choice([b"Content-Length: abc\r\n\r\n{}", b"Content-Type: x\r\n\r\n",
+                           b"content-length: 2\r\nX: y\r\n\r\n{}", b"\r\n\r\n", b"garbage\r\n\r\n",
+                           b"Content-Length: -5\r\n\r\n", b"Content-Length: 3\r\n\r\n{}}"])
+    if kind == 1:  # bad JSON, correctly framed
+        return frame(rng.choice([b"{", b"{\"jsonrpc\": \"2.0\", \"id\": ", b"\xff\xfe\x00", b"nul", b"[1,2",
+                                 b"{\"id\": 1, \"method\": }", "\u00f1\U0001f30a".encode()]))
+    if kind == 2:  # JSON that is not JSON-RPC
+        return msg(rng.choice([[], 5, "text", None, {"jsonrpc": "1.0"}, {"id": k}, {"method": 7, "id": k},
+                               {"jsonrpc": "2.0", "id": [1], "method": "textDocument/hover"}]))
+    if kind == 3:  # wrong methods
+        return msg({"jsonrpc": "2.0", "id": 10_000 + k, "method": rng.choice(["foo", "textDocument/nothing", "$/x",
+                    "workspace/executeCommand", ""]), "params": {}})
+    if kind == 4:  # wrong params for real methods
+        return msg({"jsonrpc": "2.0", "id": 10_000 + k, "method": rng.choice(
+            ["textDocument/hover", "textDocument/inlayHint"]), "params": rng.choice(
+            [None, [], {"textDocument": {}}, {"textDocument": {"uri": uri}, "position": {"line": "x"}},
+             {"textDocument": {"uri": uri}, "position": {"line": -1, "character": -7}},
+             {"textDocument": {"uri": uri}, "position": {"line": 10**9, "character": 10**9}},
+             {"textDocument": {"uri": uri}, "range": {"start": {"line": 5, "character": 0},
+                                                      "end": {"line": 0, "character": 0}}}])})
+    if kind == 5:  # didChange before (or without) didOpen, with nonsense ranges
+        return msg({"jsonrpc": "2.0", "method": "textDocument/didChange", "params": {
+            "textDocument": {"uri": _uri(100 + rng.randrange(50)), "version": rng.randrange(-3, 9)},
+            "contentChanges": [rng.choice([{"text": "for (;;)"}, {"range": {"start": {"line": 7, "character": 99},
+                                           "end": {"line": 0, "character": 0}}, "text": "}{"}])]}})
+    if kind == 6:  # open / change / close in random order on a few documents
+        text = rng.choice([VALID, "{{{", "for (int i = 0; i < N; i++) A[i] = 1;", "\x00\u00f1\r\n\t", ""])
+        method = rng.choice(["textDocument/didOpen", "textDocument/didClose", "textDocument/didSave",
+                             "textDocument/didChange"])
+        params: dict[str, Any] = {"textDocument": {"uri": uri, "languageId": "c", "version": k, "text": text}}
+        if method == "textDocument/didChange":
+            params = {"textDocument": {"uri": uri, "version": k}, "contentChanges": [{"text": text}]}
+        return msg({"jsonrpc": "2.0", "method": method, "params": params})
+    if kind == 7:  # out-of-order requests: hover on unopened documents, a second initialize, cancels
+        return msg(rng.choice([
+            {"jsonrpc": "2.0", "id": 10_000 + k, "method": "textDocument/hover",
+             "params": {"textDocument": {"uri": _uri(200 + k)}, "position": {"line": 0, "character": 0}}},
+            {"jsonrpc": "2.0", "id": 10_000 + k, "method": "initialize", "params": {"capabilities": {}}},
+            {"jsonrpc": "2.0", "method": "$/cancelRequest", "params": {"id": rng.randrange(10_000, 11_000)}},
+            {"jsonrpc": "2.0", "method": "initialized", "params": {}},
+        ]))
+    if kind == 8 and rng.randrange(60) == 0:  # huge documents (rare: each costs seconds)
+        size = rng.choice([3 * 1024 * 1024, 1024 * 1024])
+        text = ("/* " + "x" * 70 + " */\n") * (size // 75)
+        return msg({"jsonrpc": "2.0", "method": "textDocument/didOpen",
+                    "params": {"textDocument": {"uri": _uri(300 + k), "languageId": "c", "version": 1,
+                                                "text": text}}})
+    if kind == 9:  # random bytes, framed
+        return frame(bytes(rng.randrange(256) for _ in range(rng.randrange(40))))
+    if kind == 10:  # a response from the client nobody asked for
+        return msg({"jsonrpc": "2.0", "id": rng.randrange(100), "result": None})
+    return msg({"jsonrpc": "2.0", "id": 10_000 + k, "method": "textDocument/hover",
+                "params": {"textDocument": {"uri": uri}, "position": {"line": rng.randrange(8),
+                                                                      "character": rng.randrange(40)}}})
+
+
+def test_server_survives_malformed_messages_then_answers_a_hover(tmp_path):
+    client = Client(str(tmp_path))
+    try:
+        init = client.request(1, "initialize", {"processId": None, "rootUri": None, "capabilities": {}})
+        assert "result" in init
+        client.send(msg({"jsonrpc": "2.0", "method": "initialized", "params": {}}))
+        rng = random.Random(20240517)
+        for k in range(N_MESSAGES):
+            client.send(random_message(rng, k))
+        assert client.proc.poll() is None, "the server exited during the malformed messages"
+        uri = "file:///tmp/tripcount-lsp-fuzz/final.c"
+        client.send(msg({"jsonrpc": "2.0", "method": "textDocument/didOpen", "params": {
+            "textDocument": {"uri": uri, "languageId": "c", "version": 1, "text": VALID}}}))
+        hover = None
+        end = time.monotonic() + 120
+        rid = 50_000
+        while time.monotonic() < end:
+            rid += 1
+            r = client.request(rid, "textDocument/hover", {"textDocument": {"uri": uri},
+                                                           "position": {"line": 3, "character": 6}},
+                               timeout=max(1.0, end - time.monotonic()))
+            if r.get("result"):
+                hover = r["result"]
+                break
+            time.sleep(0.5)
+        assert hover is not None, "no hover answer after the malformed messages"
+        text = json.dumps(hover)
+        assert "i + 1" in text or "N" in text, text[:500]  # the inner loop runs i + 1 times per entry
+    finally:
+        status = client.close()
+    assert status is not None, "the server did not exit after shutdown/exit"

@@ -1,0 +1,258 @@
+# Tests of tripcount/cache.py: where the cache lives, atomic and concurrent
+# writes, corrupt entries, keys that ignore spacing and comments but not
+# code, macros or options, positions moved to where the same tokens now are,
+# results equal to the uncached pipeline's, and a warm path that imports
+# neither islpy nor sympy nor the engine.
+
+from __future__ import annotations
+
+import io
+import json
+import multiprocessing
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from tripcount import cache
+from tripcount.options import Options
+
+ROOT = Path(__file__).resolve().parent.parent
+INPUTS = Path(__file__).parent / "inputs" / "check"
+
+
+@pytest.fixture(autouse=True)
+def cache_dir(tmp_path, monkeypatch):
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
+    return tmp_path / "cache"
+
+
+# --------------------------------------------------------------------------
+# Location and store
+
+
+def test_cache_directory_precedence(monkeypatch, tmp_path):
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "mine"))
+    assert cache.cache_dir() == str(tmp_path / "mine")
+    monkeypatch.delenv("TRIPCOUNT_CACHE_DIR")
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert cache.cache_dir() == str(tmp_path / "xdg" / "tripcount")
+    monkeypatch.delenv("XDG_CACHE_HOME")
+    monkeypatch.setenv("HOME", str(tmp_path / "home"))
+    assert cache.cache_dir() == str(tmp_path / "home" / ".cache" / "tripcount")
+
+
+def test_store_round_trip_corruption_and_clear(cache_dir):
+    st = cache.Store()
+    assert st.get("nest", "ab" * 20) is None
+    st.put("nest", "ab" * 20, {"nest": {"x": 1}})
+    assert st.get("nest", "ab" * 20)["nest"] == {"x": 1}
+    path = cache_dir / "v1" / "nest" / "ab" / ("ab" * 20 + ".json")
+    assert path.is_file()
+    assert not [p for p in path.parent.iterdir() if p.name.startswith(".tmp-")]  # no temporary left
+    path.write_text('{"nest": {"x"')  # a torn or corrupt entry is a miss, never an error
+    assert st.get("nest", "ab" * 20) is None
+    path.write_text(json.dumps({"key": "other", "nest": 1}))  # an entry under the wrong name
+    assert st.get("nest", "ab" * 20) is None
+    st.put("file", "cd" * 20, {"file": {}})
+    out = io.StringIO()
+    assert cache.run_cache_command("info", out) == 0
+    assert "file" in out.getvalue() and str(cache_dir) in out.getvalue()
+    out = io.StringIO()
+    assert cache.run_cache_command("clear", out) == 0
+    assert "removed 2 cache entries" in out.getvalue()
+    assert not (cache_dir / "v1").exists()
+
+
+def test_unwritable_cache_is_no_error(tmp_path, monkeypatch):
+    blocker = tmp_path / "file-not-dir"
+    blocker.write_text("")
+    st = cache.Store(root=str(blocker))
+    st.put("nest", "ef" * 20, {"a": 1})  # cannot create a directory under a file: silently uncached
+    assert st.get("nest", "ef" * 20) is None
+
+
+def _writer(args):
+    root, n = args
+    st = cache.Store(root=root)
+    big = {"payload": "x" * 200_000}
+    for k in range(n):
+        st.put("nest", "77" * 20, {**big, "k": k})
+        got = st.get("nest", "77" * 20)
+        assert got is not None and len(got["payload"]) == 200_000
+    return True
+
+
+def test_concurrent_writers_never_expose_half_an_entry(tmp_path):
+    root = str(tmp_path / "shared")
+    ctx = multiprocessing.get_context("spawn")
+    with ctx.Pool(4) as pool:
+        assert all(pool.map(_writer, [(root, 25)] * 4))
+
+
+# --------------------------------------------------------------------------
+# Tokens and keys
+
+
+def test_tokens_ignore_spacing_and_comments():
+    a = cache.tokenize("for (int i=0;i<N;i++) /* c */ x += 1; // tail\n")
+    b = cache.tokenize("for ( int i = 0 ;\n  i < N ; i ++ )\n  x+=1;")
+    assert a.spell == b.spell
+    assert "+=" in a.spell and "++" in a.spell
+    c = cache.tokenize('s = "a  b"; t = \'x\';')
+    assert '"a  b"' in c.spell  # spacing inside literals is kept
+
+
+def test_directives_end_with_their_line():
+    a = cache.tokenize("#define N 4\nint x = N;")
+    b = cache.tokenize("#define N\n4 int x = N;")
+    assert a.spell != b.spell
+    assert a.spell[:4] == ["#", "define", "N", "4"] and a.spell[4] == cache.EOL
+
+
+def test_position_round_trip():
+    t = cache.tokenize("ab\ncd\n\nef")
+    for off in range(len(t.text) + 1):
+        assert t.offset(*t.position(off)) == off
+
+
+def pipeline_ready() -> bool:
+    try:
+        from tripcount.frontend import parse_text  # noqa: F401
+        from tripcount.pipeline import analyze_text  # noqa: F401
+    except Exception:
+        return False
+    return True
+
+
+needs_pipeline = pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
+
+TIDE = """\
+/* Velin tide model: harmonic sums over the constituents. */
+#define VELIN_CONSTITUENTS 8
+
+void tide_levels(int N, int T, double L[restrict T][N], const double A[restrict N][VELIN_CONSTITUENTS])
+{
+    for (int t = 0; t < T; t++)
+        for (int q = 0; q < N; q++)
+            for (int c = 0; c < VELIN_CONSTITUENTS; c++)
+                L[t][q] += A[q][c];
+}
+
+void tide_smooth(int N, double L[restrict N])
+{
+    for (int i = 1; i < N - 1; i++)
+        L[i] = 0.5 * L[i] + 0.25 * (L[i - 1] + L[i + 1]);
+    for (int i = 0; i < N; i += 2)
+        L[i] *= 2;
+}
+"""
+
+
+@needs_pipeline
+def test_keys_follow_code_not_layout():
+    o = Options(at={"N": 8, "T": 3})
+    base = [s.key for s in cache.locate(TIDE, "t.c", o).sites]
+    assert len(base) == 3 and len(set(base)) == 3
+    relaid = TIDE.replace("    for (int t", "  // comment line\n  for (int t").replace("q++)", "q ++ )")
+    assert [s.key for s in cache.locate(relaid, "t.c", o).sites] == base
+    edited = TIDE.replace("L[i] *= 2;", "L[i] *= 3;")
+    keys = [s.key for s in cache.locate(edited, "t.c", o).sites]
+    assert keys[:2] == base[:2] and keys[2] != base[2]  # only the edited nest misses
+    macro = TIDE.replace("VELIN_CONSTITUENTS 8", "VELIN_CONSTITUENTS 9")
+    assert all(a != b for a, b in zip([s.key for s in cache.locate(macro, "t.c", o).sites], base, strict=True))
+    other_opts = Options(at={"N": 9, "T": 3})
+    assert all(a != b for a, b in zip([s.key for s in cache.locate(TIDE, "t.c", other_opts).sites], base,
+                                      strict=True))
+    # a statement before the loop in the same function is part of the nest's context
+    prelude = TIDE.replace("{\n    for (int i = 1", "{\n    N = N - 1;\n    for (int i = 1")
+    k2 = [s.key for s in cache.locate(prelude, "t.c", o).sites]
+    assert k2[0] == base[0] and k2[1] != base[1]
+
+
+@needs_pipeline
+def test_cached_equals_uncached_after_edits(cache_dir):
+    o = Options(at={"N": 8, "T": 3})
+    fresh = cache.analyze_file_uncached("t.c", TIDE, o)
+    cold = cache.analyze_file_cached("t.c", TIDE, o)
+    warm = cache.analyze_file_cached("t.c", TIDE, o)
+    assert fresh == cold == warm
+    # spacing, comments and a new line above: positions move, nothing is recomputed
+    moved = "// Velin harbour office\n\n" + TIDE.replace("                L[t][q] += A[q][c];",
+                                                         "          /* sum */  L[t][q]  +=  A[q][c];")
+    st = cache.Store()
+    got = cache.analyze_file_cached("t.c", moved, o, store=st)
+    assert st.writes == 1  # only the file-level entry: every nest came from the cache
+    assert got == cache.analyze_file_uncached("t.c", moved, o)
+    stmt = got["nests"][0]["statements"][0]
+    assert stmt["line"] == 11 and stmt["text"] == "L[t][q]  +=  A[q][c]"
+
+
+@needs_pipeline
+def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch):
+    o = Options(at={"N": 8, "T": 3})
+    cache.analyze_file_cached("t.c", TIDE, o)
+    import tripcount.pipeline as pipeline
+
+    calls = []
+    real = pipeline.analyze_nest
+
+    def counting(nest, options):
+        calls.append(nest.span.line)
+        return real(nest, options)
+
+    monkeypatch.setattr(pipeline, "analyze_nest", counting)
+    edited = TIDE.replace("L[i] *= 2;", "L[i] *= 3;")
+    got = cache.analyze_file_cached("t.c", edited, o)
+    assert calls == [16]
+    assert got == cache.analyze_file_uncached("t.c", edited, o)
+
+
+@needs_pipeline
+def test_use_cache_false_writes_nothing(cache_dir):
+    cache.analyze_file_cached("t.c", TIDE, Options(), use_cache=False)
+    assert not cache_dir.exists()
+
+
+@needs_pipeline
+def test_warm_path_imports_no_engine(tmp_path, cache_dir):
+    src = tmp_path / "tide.c"
+    src.write_text(TIDE)
+    env = {**os.environ, "TRIPCOUNT_CACHE_DIR": str(cache_dir), "PYTHONPATH": str(ROOT)}
+    probe = (
+        "import sys, io\n"
+        "from tripcount.cli import main\n"
+        f"status = main(['check', {str(src)!r}], stdout=io.StringIO(), stderr=io.StringIO())\n"
+        "heavy = [m for m in ('islpy', 'sympy', 'tripcount.engine', 'tripcount.model') if m in sys.modules]\n"
+        "print(status, heavy)\n"
+    )
+    cold = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
+    assert cold.stdout.startswith("0 ") and "islpy" in cold.stdout
+    warm = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
+    assert warm.stdout.strip() == "0 []", warm.stdout + warm.stderr
+    # a comment edit: nests from the cache, still no engine
+    src.write_text("/* edited */\n" + TIDE)
+    edited = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
+    assert edited.stdout.strip() == "0 []", edited.stdout + edited.stderr
+
+
+@needs_pipeline
+def test_file_with_errors_and_unicode(cache_dir):
+    text = "/* caf\u00e9 \U0001F30A */\nvoid f(int N, double *a) {\n  for (int i = 0; i < N; i++) { a[i] = \"\u00e9\"[0]; }\n" \
+           "  for (int j = 0; j < N; j *= 2) a[j] = 0;\n}\n"
+    o = Options(at={"N": 5})
+    first = cache.analyze_file_cached("u.c", text, o)
+    assert first == cache.analyze_file_uncached("u.c", text, o)
+    moved = "\n" + text
+    assert cache.analyze_file_cached("u.c", moved, o) == cache.analyze_file_uncached("u.c", moved, o)
+    bom = "\ufeff" + moved
+    assert cache.analyze_file_cached("u.c", bom, o) == cache.analyze_file_uncached("u.c", bom, o)
+
+
+def test_read_source_reports_bad_bytes(tmp_path):
+    p = tmp_path / "b.c"
+    p.write_bytes(b"int x;\nint \xff y;\n")
+    text, diag = cache.read_source(str(p))
+    assert "\ufffd" in text and diag["code"] == "TC190" and (diag["line"], diag["column"]) == (2, 5)

@@ -1,0 +1,236 @@
+# tripcount.guard: per-nest budgets (deadline, isl operations, bounded point
+# counting, hard stop), their use by the pipeline, and the last-resort handler.
+
+from __future__ import annotations
+
+import io
+import threading
+import time
+
+import islpy as isl
+import pytest
+
+from tripcount import guard, pipeline
+from tripcount.options import Options
+
+CUBE = "[N] -> { [i, j, k] : 0 <= i < N and 0 <= j < N and 0 <= k < N }"
+
+
+def _fixed(text: str, n: int) -> isl.Set:
+    s = isl.Set(text)
+    return s.fix_val(isl.dim_type.param, 0, isl.Val.read_from_str(s.get_ctx(), str(n)))
+
+
+def _hard_union(k: int = 14) -> isl.Set:
+    # many overlapping skewed, strided pieces: make_disjoint/coalesce needs many operations
+    s = None
+    for a in range(k):
+        p = isl.Set(f"[N, M] -> {{ [i, j, l] : 0 <= i < N and {a % 5 - 2}*i + {a} <= j <= {(a * 7) % 5 - 2}*i + M "
+                    f"and j - i <= l <= N + {a % 3}*j - M and (i + {a}*j) mod {a % 4 + 2} < 2 }}")
+        s = p if s is None else s.union(p)
+    return s
+
+
+@pytest.fixture
+def few_ops(monkeypatch):
+    """A budget of 20,000 isl operations whatever the time limit (so that machine load cannot
+    make the time limit trip first)."""
+    monkeypatch.setattr(guard, "MIN_OPS", 20_000)
+    monkeypatch.setattr(guard, "ISL_OPS_PER_SECOND", 1)
+
+
+def test_isl_operation_budget_stops_a_long_call_and_is_lifted_after(few_ops):
+    with pytest.raises(guard.NestLimit) as info:
+        with guard.nest_budget(Options(time_limit=60)) as b:
+            assert b.max_ops == 20_000
+            for _ in range(50):
+                _hard_union().make_disjoint().coalesce()
+    assert "operation" in str(info.value)
+    # the context works again: parse and print
+    assert str(isl.Set("{ [i] : 0 <= i < 3 }")) == "{ [i] : 0 <= i <= 2 }"
+
+
+def test_count_val_is_unchanged_outside_and_for_small_sets():
+    s = _fixed(CUBE, 20)
+    assert s.count_val().to_python() == 8000  # 20^3
+    with guard.nest_budget(Options(time_limit=5)):
+        assert s.count_val().to_python() == 8000
+
+
+def test_huge_count_is_stopped_at_the_deadline():
+    # 3000^3 points: isl's scan takes ~20 s here and counts no operations, so only the
+    # forked, killed child bounds it.
+    s = _fixed(CUBE, 3000)
+    start = time.monotonic()
+    with pytest.raises((guard.EnumerationLimit, guard.NestLimit)):
+        with guard.nest_budget(Options(time_limit=0.3)):
+            s.count_val()
+    assert time.monotonic() - start < 8.0  # hard deadline 1.45 s, plus slack for a loaded machine
+    assert s.count_val.__name__ == "guarded"
+
+
+def test_large_count_in_a_child_is_exact():
+    s = _fixed(CUBE, 400)  # 160,000 outer points: counted in a child, 400^3 exactly
+    assert guard.scan_estimate(s) > guard.INLINE_SCAN_POINTS
+    with guard.nest_budget(Options(time_limit=20)):
+        assert s.count_val().to_python() == 400**3
+
+
+def test_hard_stop_interrupts_a_python_loop():
+    start = time.monotonic()
+    with pytest.raises(guard.NestLimit):
+        with guard.nest_budget(Options(time_limit=0.2)):
+            try:
+                while True:
+                    pass
+            except Exception:  # NestLimit is a BaseException: this must not catch it
+                pytest.fail("NestLimit caught as Exception")
+    assert time.monotonic() - start < guard.HARD_FACTOR * 0.2 + guard.HARD_EXTRA_S + 5.0
+
+
+def test_nested_budgets_share_the_outer_deadline():
+    with guard.nest_budget(Options(time_limit=5)) as outer:
+        with guard.nest_budget(Options(time_limit=100)) as inner:
+            assert inner.deadline <= outer.deadline
+        assert guard.current() is outer
+    assert guard.current() is None
+
+
+def test_budget_in_a_worker_thread(few_ops):
+    box = []
+
+    def work():
+        try:
+            with guard.nest_budget(Options(time_limit=60)):
+                for _ in range(50):
+                    _hard_union().make_disjoint().coalesce()
+        except guard.NestLimit as exc:
+            box.append(exc)
+
+    t = threading.Thread(target=work)
+    t.start()
+    t.join(60)
+    assert box and isinstance(box[0], guard.NestLimit)
+
+
+def test_quota_error_is_recognized_through_chains():
+    err = isl.Error("call to isl_set_coalesce failed: maximal number of operations exceeded in x")
+    try:
+        try:
+            raise err
+        except isl.Error as e:
+            raise ValueError("wrapped") from e
+    except ValueError as outer:
+        assert guard.is_quota_error(outer)
+    assert not guard.is_quota_error(ValueError("other"))
+
+
+FLUSH = "tests/inputs/cli/harbour_flush.c"
+
+
+def _with_extra(monkeypatch, extra):
+    real = pipeline.analyses
+    monkeypatch.setattr(pipeline, "analyses", lambda: real() + [("extra", extra)])
+
+
+def test_a_hanging_analysis_is_cut_and_the_other_nests_go_on(monkeypatch):
+    seen = []
+
+    def hang(result, options):
+        seen.append(result.nest.function)
+        if result.nest.function == "flush_basin":
+            while True:
+                pass
+        result.extras["extra"] = "done"
+
+    # counts and the hanging analysis only, so that machine load cannot spend the time first
+    monkeypatch.setattr(pipeline, "analyses", lambda: [("counts", pipeline.counts.analyze), ("extra", hang)])
+    fr = pipeline.analyze_file(FLUSH, Options(at={"n": 4}, time_limit=2))
+    assert seen == ["flush_basin", "basin_mean"]
+    first, second = fr.nests
+    assert [d.code for d in first.diagnostics if d.code == "TC310"] == ["TC310"]
+    assert first.statements[0].count.value == 10  # counts kept: 4 + 3 + 2 + 1, by hand
+    assert "extra" not in first.extras
+    assert second.extras.get("extra") == "done"
+    assert not any(d.code == "TC310" for d in second.diagnostics)
+
+
+def test_an_analysis_spending_isl_operations_is_cut(monkeypatch):
+    monkeypatch.setattr(guard, "MIN_OPS", 3_000_000)  # counts fit (measured ~1e5), the spender does not
+    monkeypatch.setattr(guard, "ISL_OPS_PER_SECOND", 1)
+    def spend(result, options):
+        result.extras["extra"] = "partial"
+        for _ in range(1000):
+            _hard_union().make_disjoint().coalesce()
+
+    _with_extra(monkeypatch, spend)
+    fr = pipeline.analyze_file(FLUSH, Options(at={"n": 4}, time_limit=60))
+    for nr in fr.nests:
+        assert nr.statements[0].count.value is not None  # counts finished within the budget
+        assert "extra" not in nr.extras  # partial output taken back
+        assert any(d.code == "TC310" for d in nr.diagnostics)
+    assert str(isl.Set("{ [0] }")) == "{ [0] }"
+
+
+def test_an_analysis_swallowing_the_quota_error_is_taken_back(monkeypatch):
+    monkeypatch.setattr(guard, "MIN_OPS", 3_000_000)
+    monkeypatch.setattr(guard, "ISL_OPS_PER_SECOND", 1)
+    def swallow(result, options):
+        try:
+            for _ in range(1000):
+                _hard_union().make_disjoint().coalesce()
+        except isl.Error:
+            pass  # an analysis that treats any isl failure as "unknown"
+        result.extras["extra"] = "maybe wrong"
+
+    _with_extra(monkeypatch, swallow)
+    fr = pipeline.analyze_file(FLUSH, Options(at={"n": 4}, time_limit=60))
+    for nr in fr.nests:
+        assert "extra" not in nr.extras
+        assert any(d.code == "TC310" for d in nr.diagnostics)
+
+
+def test_front_end_and_model_failures_are_contained_per_file(monkeypatch, tmp_path):
+    def boom(*a, **k):
+        raise RecursionError("maximum recursion depth exceeded")
+
+    monkeypatch.setattr(pipeline, "parse_text", boom)
+    fr = pipeline.analyze_text("int x;", "a.c", Options())
+    assert [d.code for d in fr.all_diagnostics()] == ["TC902"]
+    assert fr.all_diagnostics()[0].span.line == 1
+    monkeypatch.undo()
+    monkeypatch.setattr(pipeline, "build_nests", boom)
+    fr = pipeline.analyze_text("void f(int n){for(int i=0;i<n;i++);}", "b.c", Options())
+    assert "TC902" in [d.code for d in fr.all_diagnostics()]
+
+
+def test_file_budget_marks_the_remaining_nests(monkeypatch):
+    monkeypatch.setattr(guard, "FILE_TIME_FACTOR", 0)
+    fr = pipeline.analyze_file(FLUSH, Options(at={"n": 4}))
+    assert all(any(d.code == "TC311" for d in nr.diagnostics) for nr in fr.nests)
+    assert all(sr.count.value is None for nr in fr.nests for sr in nr.statements)
+
+
+def test_last_resort_turns_any_exception_into_status_2():
+    err = io.StringIO()
+
+    def crash() -> int:
+        raise KeyError("x")
+
+    assert guard.last_resort(crash, err) == 2
+    lines = err.getvalue().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("tripcount: error: internal error (KeyError")
+
+    def interrupted() -> int:
+        raise KeyboardInterrupt
+
+    assert guard.last_resort(interrupted, io.StringIO()) == 130
+    assert guard.last_resort(lambda: 1, io.StringIO()) == 1
+
+
+def test_limit_diagnostics_are_registered():
+    from tripcount.diagnostics import REGISTRY
+
+    assert REGISTRY["TC310"] is guard.AnalysisLimit
+    assert REGISTRY["TC311"] is guard.FileBudgetSpent
+    assert REGISTRY["TC902"] is guard.ReadFailure

@@ -1,0 +1,805 @@
+# The result cache: analysis results on disk, so that unchanged nests cost
+# nothing in the pre-commit hook and the editor.
+#
+# Two levels of entries, both keyed with the code fingerprint of this
+# installation (version plus the sizes and times of its source files) and
+# Options.cache_key():
+#   * "file": the exact file text -> the whole file JSON (no parsing at all
+#     when nothing changed);
+#   * "nest": one nest -> its JSON (jsonout.nest_json form) and diagnostics.
+#     The key is a whitespace- and comment-insensitive hash of the tokens of
+#     the nest, of the enclosing function's text before it (parameters,
+#     declarations, pragmas) and of the file's text outside all functions
+#     (macros, globals, typedefs). Positions stored in an entry are remapped
+#     on the way out through the token order, since the same tokens may now
+#     sit on other lines or columns;
+#   * "fn" / "out": diagnostics of the model that lie inside a function but
+#     outside its nests, or outside all functions, keyed the same way.
+# Locating the nests needs only the front end: islpy and the engine are
+# imported only when some entry is missing.
+#
+# Layout: <dir>/v1/<kind>/<key[:2]>/<key>.json, written through a temporary
+# file and os.replace, so concurrent processes (pre-commit runs hooks in
+# parallel) never see half an entry. A corrupt entry is a miss. The cache
+# directory is $TRIPCOUNT_CACHE_DIR, else $XDG_CACHE_HOME/tripcount, else
+# ~/.cache/tripcount: never inside the user's source tree.
+
+from __future__ import annotations
+
+import bisect
+import hashlib
+import json
+import os
+import re
+import shutil
+import sys
+import tempfile
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass, field
+from typing import Any, TextIO
+
+from tripcount import __version__
+from tripcount.options import Options
+
+LAYOUT = "v1"
+KINDS = ("file", "nest", "fn", "out")
+ENV_DIR = "TRIPCOUNT_CACHE_DIR"
+POSITION_KEYS = (("line", "column"), ("end_line", "end_column"))
+
+
+# --------------------------------------------------------------------------
+# Where the cache lives
+
+
+def cache_dir() -> str:
+    """The cache directory (not created here)."""
+    env = os.environ.get(ENV_DIR)
+    if env:
+        return os.path.abspath(os.path.expanduser(env))
+    xdg = os.environ.get("XDG_CACHE_HOME")
+    base = xdg if xdg and os.path.isabs(xdg) else os.path.join(os.path.expanduser("~"), ".cache")
+    return os.path.join(base, "tripcount")
+
+
+_FINGERPRINT: str | None = None
+# Modules that cannot change an analysis result for given Options (they only
+# read results or build the Options), left out so that editing them keeps the cache.
+_NOT_IN_FINGERPRINT = {"lsp.py", "check.py", "cli.py", "__main__.py", os.path.join("report", "sarif.py"),
+                       os.path.join("report", "schema.py"), os.path.join("report", "schema.json")}
+
+
+def code_fingerprint() -> str:
+    """Version plus a hash of this installation's source files (size and mtime).
+
+    A development checkout keeps the version number while its code changes;
+    results of older code must not be served, so the files themselves count.
+    """
+    global _FINGERPRINT
+    if _FINGERPRINT is not None:
+        return _FINGERPRINT
+    import tripcount
+
+    roots = list(tripcount.__path__)
+    try:
+        import importlib.util
+
+        spec = importlib.util.find_spec("tripcount.grammar")
+        if spec is not None and spec.submodule_search_locations:
+            roots.extend(spec.submodule_search_locations)
+    except (ImportError, ValueError):
+        pass
+    checkout_grammar = os.path.join(os.path.dirname(roots[0]), "grammar")  # a source checkout keeps it beside
+    if os.path.isfile(os.path.join(checkout_grammar, "loops.lark")):
+        roots.append(checkout_grammar)
+    h = hashlib.sha256(__version__.encode())
+    for root in sorted(set(roots)):
+        for dirpath, dirs, files in os.walk(root):
+            dirs[:] = sorted(d for d in dirs if d != "__pycache__")
+            for name in sorted(files):
+                if name.endswith((".py", ".lark", ".json")):
+                    rel = os.path.relpath(os.path.join(dirpath, name), root)
+                    if rel in _NOT_IN_FINGERPRINT:
+                        continue
+                    try:
+                        st = os.stat(os.path.join(dirpath, name))
+                    except OSError:
+                        continue
+                    h.update(f"{rel}:{st.st_size}:{st.st_mtime_ns};".encode())
+    _FINGERPRINT = f"{__version__}-{h.hexdigest()[:16]}"
+    return _FINGERPRINT
+
+
+# --------------------------------------------------------------------------
+# The store
+
+
+class Store:
+    """Entries on disk; every failure to read or write is a miss, never an error."""
+
+    def __init__(self, root: str | None = None, enabled: bool = True) -> None:
+        self.root = os.path.join(root or cache_dir(), LAYOUT)
+        self.enabled = enabled
+        self.hits = 0
+        self.misses = 0
+        self.writes = 0
+
+    def _path(self, kind: str, key: str) -> str:
+        return os.path.join(self.root, kind, key[:2], key + ".json")
+
+    def get(self, kind: str, key: str) -> dict[str, Any] | None:
+        """The entry, or None when absent or unreadable."""
+        if not self.enabled:
+            return None
+        try:
+            with open(self._path(kind, key), encoding="utf-8") as f:
+                data = json.load(f)
+        except (OSError, ValueError):
+            self.misses += 1
+            return None
+        if not isinstance(data, dict) or data.get("key") != key:
+            self.misses += 1
+            return None
+        self.hits += 1
+        return data
+
+    def put(self, kind: str, key: str, data: dict[str, Any]) -> None:
+        """Write an entry atomically (temporary file in the same directory, then os.replace)."""
+        if not self.enabled:
+            return
+        path = self._path(kind, key)
+        try:
+            os.makedirs(os.path.dirname(path), exist_ok=True)
+            fd, tmp = tempfile.mkstemp(prefix=".tmp-", suffix=".json", dir=os.path.dirname(path))
+            try:
+                with os.fdopen(fd, "w", encoding="utf-8") as f:
+                    json.dump({**data, "key": key}, f, separators=(",", ":"))
+                os.replace(tmp, path)
+                self.writes += 1
+            except BaseException:
+                try:
+                    os.unlink(tmp)
+                except OSError:
+                    pass
+                raise
+        except OSError:  # read-only home, full disk: run uncached
+            pass
+
+    def stats(self) -> dict[str, tuple[int, int]]:
+        """Entries and bytes per kind."""
+        out: dict[str, tuple[int, int]] = {}
+        for kind in KINDS:
+            n = size = 0
+            for dirpath, _dirs, files in os.walk(os.path.join(self.root, kind)):
+                for name in files:
+                    if name.endswith(".json") and not name.startswith(".tmp-"):
+                        n += 1
+                        try:
+                            size += os.path.getsize(os.path.join(dirpath, name))
+                        except OSError:
+                            pass
+            out[kind] = (n, size)
+        return out
+
+    def clear(self) -> int:
+        """Remove every entry (only our layout directory); returns the number removed."""
+        n = sum(c for c, _ in self.stats().values())
+        shutil.rmtree(self.root, ignore_errors=True)
+        return n
+
+
+def run_cache_command(action: str, stdout: TextIO) -> int:
+    """`tripcount cache clear|info`."""
+    store = Store()
+    if action == "clear":
+        n = store.clear()
+        stdout.write(f"removed {n} cache entr{'y' if n == 1 else 'ies'} from {store.root}\n")
+        return 0
+    stats = store.stats()
+    total_n = sum(n for n, _ in stats.values())
+    total_b = sum(b for _, b in stats.values())
+    stdout.write(f"cache directory: {store.root}\n")
+    stdout.write(f"code fingerprint: {code_fingerprint()}\n")
+    for kind in KINDS:
+        n, b = stats[kind]
+        stdout.write(f"  {kind:5s} {n:6d} entries {b / 1024:10.1f} KiB\n")
+    stdout.write(f"  total {total_n:6d} entries {total_b / 1024:10.1f} KiB\n")
+    return 0
+
+
+# --------------------------------------------------------------------------
+# Tokens: the normalized form of C text
+
+_TOKEN_RE = re.compile(
+    r"""
+    (?P<ws>[ \t\f\v\r]+|\\\n)
+  | (?P<nl>\n)
+  | (?P<lc>//[^\n]*)
+  | (?P<bc>/\*.*?(?:\*/|\Z))
+  | (?P<str>"(?:\\.|[^"\\\n])*"?|'(?:\\.|[^'\\\n])*'?)
+  | (?P<num>\.?[0-9](?:[eEpP][+-]|[0-9A-Za-z_.])*)
+  | (?P<id>[A-Za-z_$][A-Za-z0-9_$]*)
+  | (?P<op>\.\.\.|<<=|>>=|->|\+\+|--|<<|>>|<=|>=|==|!=|&&|\|\||[-+*/%&|^]=|\#\#|.)
+    """,
+    re.VERBOSE | re.DOTALL,
+)
+EOL = "\n"  # pseudo-token ending a preprocessor directive (the line end matters there)
+
+
+@dataclass
+class Tokens:
+    """The tokens of a text: their spellings and start/end offsets (comments and spacing dropped)."""
+
+    text: str
+    spell: list[str] = field(default_factory=list)
+    start: list[int] = field(default_factory=list)
+    end: list[int] = field(default_factory=list)
+    line_starts: list[int] = field(default_factory=list)
+
+    def range(self, lo: int, hi: int) -> tuple[int, int]:
+        """Indices [i, j) of the tokens lying in text offsets [lo, hi)."""
+        i = bisect.bisect_left(self.start, lo)
+        j = bisect.bisect_left(self.start, hi)
+        return i, j
+
+    def offset(self, line: int, column: int) -> int:
+        """Text offset of a 1-based position (clamped to the text)."""
+        if line < 1:
+            return 0
+        if line > len(self.line_starts):
+            return len(self.text)
+        return min(self.line_starts[line - 1] + max(column, 1) - 1, len(self.text))
+
+    def position(self, offset: int) -> tuple[int, int]:
+        """1-based (line, column) of a text offset."""
+        k = bisect.bisect_right(self.line_starts, offset) - 1
+        return k + 1, offset - self.line_starts[k] + 1
+
+
+def tokenize(text: str) -> Tokens:
+    """Split C text into tokens; directives end with an EOL pseudo-token."""
+    toks = Tokens(text)
+    starts = [0]
+    for m in re.finditer("\n", text):
+        starts.append(m.end())
+    toks.line_starts = starts
+    in_directive = False
+    line_has_token = False
+    spell, start, end = toks.spell, toks.start, toks.end
+    for m in _TOKEN_RE.finditer(text):
+        kind = m.lastgroup
+        if kind == "ws" or kind == "lc":
+            continue
+        if kind == "bc":
+            if "\n" in m.group() and in_directive:
+                pass  # a comment spanning lines does not end the directive
+            continue
+        if kind == "nl":
+            if in_directive:
+                spell.append(EOL)
+                start.append(m.start())
+                end.append(m.start())
+                in_directive = False
+            line_has_token = False
+            continue
+        s = m.group()
+        if s == "#" and not line_has_token:
+            in_directive = True
+        line_has_token = True
+        spell.append(s)
+        start.append(m.start())
+        end.append(m.end())
+    if in_directive:
+        spell.append(EOL)
+        start.append(len(text))
+        end.append(len(text))
+    return toks
+
+
+def _digest(parts: Iterable[str]) -> str:
+    h = hashlib.sha256()
+    for p in parts:
+        h.update(p.encode("utf-8", "surrogatepass"))
+        h.update(b"\x1f")
+    return h.hexdigest()[:40]
+
+
+# --------------------------------------------------------------------------
+# Locating nests with the front end only
+
+
+@dataclass
+class Site:
+    """One outermost `for` of a file as the front end sees it, with its cache key."""
+
+    function: str
+    lo: int  # text offset of the region start (the function's start, or the loop's when outside one)
+    start: int  # offset of the `for`
+    stop: int  # offset one past the loop's end
+    line: int
+    column: int
+    key: str = ""
+    anchors: list[int] = field(default_factory=list)  # token indices of the region, then of the outside text
+
+
+@dataclass
+class Layout:
+    """Where the nests and functions of one text are, and the keys of their entries."""
+
+    tokens: Tokens
+    sites: list[Site]
+    functions: list[tuple[str, int, int, str]]  # (name, start offset, stop offset, key of its "fn" entry)
+    outside: list[int]  # token indices outside all functions
+    outside_key: str
+    parse_diagnostics: list[dict[str, Any]]
+    unit: Any = None  # the front end's TranslationUnit, reused when something must be computed
+
+
+def _outermost_fors(node: Any) -> Iterator[Any]:
+    """The `for` statements under `node` not nested in another `for`."""
+    from tripcount import ir
+
+    stack = [node]
+    while stack:
+        n = stack.pop()
+        if isinstance(n, ir.For):
+            yield n
+            continue
+        kids = ir.children(n) if isinstance(n, ir.Node) else []
+        stack.extend(reversed(kids))
+
+
+def locate(text: str, path: str, options: Options) -> Layout:
+    """Parse `text` with the front end and compute the cache keys of its nests."""
+    from tripcount.frontend import parse_text
+
+    unit, diags = parse_text(text, path=path, snippet=False)
+    toks = tokenize(text)
+    opt_key = options.cache_key()
+    fp = code_fingerprint()
+    by_position = bool(options.parallel_lines)  # --parallel LINE ties results to absolute lines
+
+    funcs = []
+    for fn in unit.functions:
+        a = toks.offset(fn.span.line, fn.span.column)
+        b = toks.offset(fn.span.end_line, fn.span.end_column)
+        funcs.append((fn, a, b))
+    inside = [False] * len(toks.spell)
+    for _fn, a, b in funcs:
+        i, j = toks.range(a, b)
+        for k in range(i, j):
+            inside[k] = True
+    outside = [k for k in range(len(toks.spell)) if not inside[k]]
+    outside_spell = [toks.spell[k] for k in outside]
+    outside_key = _digest(["out", fp, opt_key, *outside_spell])
+
+    sites: list[Site] = []
+    functions: list[tuple[str, int, int, str]] = []
+    for fn, a, b in funcs:
+        i, j = toks.range(a, b)
+        functions.append((fn.name, a, b, _digest(["fn", fp, opt_key, outside_key, *toks.spell[i:j]])))
+        for loop in _outermost_fors(fn.body):
+            start = toks.offset(loop.span.line, loop.span.column)
+            stop = toks.offset(loop.span.end_line, loop.span.end_column)
+            sites.append(Site(fn.name, a, start, stop, loop.span.line, loop.span.column))
+    for s in sites:
+        i, j = toks.range(s.lo, s.stop)
+        parts = ["nest", fp, opt_key, outside_key, s.function, *toks.spell[i:j]]
+        if by_position:
+            parts += ["@", str(s.line), *(str(toks.position(toks.start[k])[0]) for k in range(i, j))]
+        s.key = _digest(parts)
+        s.anchors = list(range(i, j))
+    parse_diags = [d.to_dict() for d in diags]
+    return Layout(toks, sites, functions, outside, outside_key, parse_diags, unit)
+
+
+# --------------------------------------------------------------------------
+# Positions in entries: stored as they were, remapped through token order
+
+
+def _anchor_positions(toks: Tokens, anchors: list[int]) -> list[int]:
+    """Flat [line, column, ...] of the given tokens' starts (what an entry stores)."""
+    out: list[int] = []
+    for k in anchors:
+        line, col = toks.position(toks.start[k])
+        out += [line, col]
+    return out
+
+
+class _Remap:
+    """Maps positions of an old text to the new one, token by token.
+
+    Both texts have the same token sequence over the regions of an entry
+    (that is what equal keys mean). A position inside token k, at offset d
+    into it, moves to token k of the new text at the same offset; a position
+    between tokens snaps to the end of the token before it.
+    """
+
+    def __init__(self, old: list[int], toks: Tokens, anchors: list[int]) -> None:
+        self.old = [(old[2 * i], old[2 * i + 1]) for i in range(len(old) // 2)]
+        self.toks = toks
+        self.anchors = anchors
+        self.identity = self.old == [toks.position(toks.start[k]) for k in anchors]
+        # lengths come from the new text; the spellings are identical
+        self.lengths = [toks.end[k] - toks.start[k] for k in anchors]
+        self.order = sorted(range(len(self.old)), key=lambda i: self.old[i])
+        self.sorted_old = [self.old[i] for i in self.order]
+
+    def __call__(self, line: int, column: int) -> tuple[int, int]:
+        if self.identity or not self.old:
+            return line, column
+        p = bisect.bisect_right(self.sorted_old, (line, column)) - 1
+        if p < 0:
+            i, delta = self.order[0], 0
+        else:
+            i = self.order[p]
+            ol, oc = self.sorted_old[p]
+            delta = column - oc if line == ol else self.lengths[i]
+            delta = min(max(delta, 0), self.lengths[i])
+        nl, nc = self.toks.position(self.toks.start[self.anchors[i]])
+        return nl, nc + delta
+
+    def line(self, line: int) -> int:
+        """Where old line `line` went: the line of the first token that started on it."""
+        if self.identity or not self.old:
+            return line
+        p = bisect.bisect_left(self.sorted_old, (line, 0))
+        if p < len(self.sorted_old) and self.sorted_old[p][0] == line:
+            return self.toks.position(self.toks.start[self.anchors[self.order[p]]])[0]
+        return self(line, 1)[0]
+
+
+# Messages and notes mention positions as text ("at 63:13", "(line 59)").
+_POS_TEXT = re.compile(r"(?<![\w.:])(\d+):(\d+)(?![\w.]|:\d)")
+_LINE_TEXT = re.compile(r"\b(line )(\d+)\b")
+
+
+def _remap_text(s: str, remap: _Remap) -> str:
+    if not any(ch.isdigit() for ch in s):
+        return s
+    def pos(m: re.Match[str]) -> str:
+        line, col = remap(int(m.group(1)), int(m.group(2)))
+        return f"{line}:{col}"
+
+    s = _POS_TEXT.sub(pos, s)
+    return _LINE_TEXT.sub(lambda m: m.group(1) + str(remap.line(int(m.group(2)))), s)
+
+
+def _remap_json(data: Any, remap: _Remap) -> Any:
+    """A copy of `data` with every position (fields and mentions in text) passed through `remap`."""
+    if remap.identity:
+        return data
+    if isinstance(data, str):
+        return _remap_text(data, remap)
+    if isinstance(data, list):
+        return [_remap_json(x, remap) for x in data]
+    if not isinstance(data, dict):
+        return data
+    out = {k: _remap_json(v, remap) for k, v in data.items()}
+    for lk, ck in POSITION_KEYS:
+        if _is_int(out.get(lk)) and _is_int(out.get(ck)):
+            out[lk], out[ck] = remap(out[lk], out[ck])
+        elif _is_int(out.get(lk)) and ck not in out:
+            out[lk] = remap.line(out[lk])
+    return out
+
+
+SLICE = "__source_slice__"
+
+
+def _slices_out(nest: dict[str, Any], toks: Tokens) -> dict[str, Any]:
+    """The nest JSON with statement texts replaced by the source range they were cut from.
+
+    A statement's text is the source as written, spacing included; the key
+    ignores spacing, so the text is cut again from the current file on the
+    way out of the cache (the range is remapped like any position).
+    """
+    stmts = []
+    for st in nest.get("statements", []):
+        t = st.get("text")
+        if isinstance(t, str) and _is_int(st.get("line")) and _is_int(st.get("column")):
+            a = toks.offset(st["line"], st["column"])
+            if toks.text[a:a + len(t)] == t:
+                el, ec = toks.position(a + len(t))
+                st = {**st, "text": {SLICE: 1, "line": st["line"], "column": st["column"],
+                                     "end_line": el, "end_column": ec}}
+        stmts.append(st)
+    return {**nest, "statements": stmts}
+
+
+def _slices_in(nest: dict[str, Any], toks: Tokens) -> dict[str, Any]:
+    """Inverse of _slices_out on the current text."""
+    stmts = []
+    for st in nest.get("statements", []):
+        t = st.get("text")
+        if isinstance(t, dict) and t.get(SLICE):
+            a = toks.offset(t["line"], t["column"])
+            b = toks.offset(t["end_line"], t["end_column"])
+            st = {**st, "text": toks.text[a:b]}
+        stmts.append(st)
+    return {**nest, "statements": stmts}
+
+
+def _is_int(v: Any) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def _positions(data: Any) -> Iterator[tuple[int, int]]:
+    """Every position in JSON data: line/column fields and positions mentioned in text."""
+    if isinstance(data, str):
+        for m in _POS_TEXT.finditer(data):
+            yield int(m.group(1)), int(m.group(2))
+        for m in _LINE_TEXT.finditer(data):
+            yield int(m.group(2)), 1
+    elif isinstance(data, list):
+        for x in data:
+            yield from _positions(x)
+    elif isinstance(data, dict):
+        for lk, ck in POSITION_KEYS:
+            if _is_int(data.get(lk)):
+                yield data[lk], data.get(ck, 1) if _is_int(data.get(ck)) else 1
+        for v in data.values():
+            if isinstance(v, (list, dict, str)):
+                yield from _positions(v)
+
+
+def _entry_anchors(toks: Tokens, region: list[int], outside: list[int], lo: int, hi: int,
+                   payload: Any) -> dict[str, Any]:
+    """Anchor fields of an entry: the region's tokens, plus the outside text's when needed.
+
+    Most entries only point inside their own region; storing the outside
+    tokens for every nest of a file with large global tables would bloat them.
+    """
+    wide = any(not (lo <= toks.offset(line, col) <= hi) for line, col in _positions(payload))
+    anchors = region + outside if wide else region
+    return {"anchors": _anchor_positions(toks, anchors), "wide": wide}
+
+
+def _entry_remap(entry: dict[str, Any], toks: Tokens, region: list[int], outside: list[int]) -> _Remap:
+    anchors = region + outside if entry.get("wide") else region
+    return _Remap(entry.get("anchors", []), toks, anchors)
+
+
+def _span_of(d: dict[str, Any], toks: Tokens) -> tuple[int, int]:
+    return toks.offset(int(d.get("line", 1)), int(d.get("column", 1))), toks.offset(
+        int(d.get("end_line", d.get("line", 1))), int(d.get("end_column", d.get("column", 1))))
+
+
+# --------------------------------------------------------------------------
+# The cached analysis
+
+
+def _sort_diags(diags: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    return sorted(diags, key=lambda d: (d.get("line", 0), d.get("column", 0), d.get("code", "")))
+
+
+def _file_key(text: str, options: Options) -> str:
+    return _digest(["file", code_fingerprint(), options.cache_key(), text])
+
+
+def analyze_file_uncached(path: str, text: str, options: Options) -> dict[str, Any]:
+    """The file JSON straight from the pipeline (no cache)."""
+    from tripcount.pipeline import analyze_text
+    from tripcount.report.jsonout import file_json
+
+    return file_json(analyze_text(text, path, options))
+
+
+def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool = True,
+                        store: Store | None = None) -> dict[str, Any]:
+    """The file JSON (jsonout.file_json form) of `text`, from the cache where possible.
+
+    Only nests whose entries are missing are analyzed (this imports islpy
+    and the engine); the rest is assembled from the cache with positions
+    moved to where the same tokens now are.
+    """
+    if text.startswith("\ufeff"):
+        text = text[1:]  # the front end drops a byte-order mark too; columns must agree
+    if not use_cache:
+        return analyze_file_uncached(path, text, options)
+    store = store or Store()
+    if not store.enabled:
+        return analyze_file_uncached(path, text, options)
+    fkey = _file_key(text, options)
+    hit = store.get("file", fkey)
+    if hit is not None and isinstance(hit.get("file"), dict):
+        return {**hit["file"], "path": path}
+    layout = locate(text, path, options)
+    result = _assemble(layout, store)
+    if result is None:
+        result = _compute(layout, path, text, options, store)
+    out = {"path": path, "nests": result[0], "diagnostics": _sort_diags(result[1])}
+    if result[2]:  # every part is cacheable
+        store.put("file", fkey, {"file": {"nests": out["nests"], "diagnostics": out["diagnostics"]}})
+    return out
+
+
+def _assemble(layout: Layout, store: Store) -> tuple[list, list, bool] | None:
+    """The file's nests and diagnostics from cache entries alone, or None on any miss."""
+    toks = layout.tokens
+    entries = []
+    for s in layout.sites:
+        e = store.get("nest", s.key)
+        if e is None:
+            return None
+        entries.append((s, e))
+    fn_entries = []
+    for _name, a, b, key in layout.functions:
+        e = store.get("fn", key)
+        if e is None:
+            return None
+        fn_entries.append((a, b, e))
+    out_entry = store.get("out", layout.outside_key)
+    if out_entry is None:
+        return None
+    nests: list[dict[str, Any]] = []
+    diags: list[dict[str, Any]] = list(layout.parse_diagnostics)
+    for s, e in entries:
+        remap = _entry_remap(e, toks, s.anchors, layout.outside)
+        if e.get("nest") is not None:
+            nests.append(_slices_in(_remap_json(e["nest"], remap), toks))
+        diags.extend(_remap_json(e.get("diagnostics", []), remap))
+    for a, b, e in fn_entries:
+        i, j = toks.range(a, b)
+        remap = _entry_remap(e, toks, list(range(i, j)), layout.outside)
+        diags.extend(_remap_json(e.get("diagnostics", []), remap))
+    remap = _Remap(out_entry.get("anchors", []), toks, layout.outside)
+    diags.extend(_remap_json(out_entry.get("diagnostics", []), remap))
+    return nests, diags, True
+
+
+ENV_JOBS = "TRIPCOUNT_JOBS"
+_FORKED: tuple[list[Any], Options] | None = None  # what forked workers read (inherited, not pickled)
+
+
+def jobs() -> int:
+    """Worker processes for analyzing missed nests: $TRIPCOUNT_JOBS, else the cores (at most 4)."""
+    try:
+        return max(1, int(os.environ.get(ENV_JOBS, "")))
+    except ValueError:
+        return max(1, min(os.cpu_count() or 1, 4))
+
+
+def _analyze_one(nest: Any, options: Options) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    from tripcount.pipeline import analyze_nest
+    from tripcount.report.jsonout import nest_json
+
+    nr = analyze_nest(nest, options)
+    return nest_json(nr), [d.to_dict() for d in nr.diagnostics]
+
+
+def _forked_worker(k: int) -> tuple[int, tuple[dict[str, Any], list[dict[str, Any]]] | None]:
+    assert _FORKED is not None
+    try:
+        return k, _analyze_one(_FORKED[0][k], _FORKED[1])
+    except Exception:  # the parent analyzes it again and reports what happens there
+        return k, None
+
+
+def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[int, tuple[dict, list]]:
+    """Analyze the nests at indices `todo`, on several processes when it pays.
+
+    Workers are forked after the model is built, so they inherit the nests
+    (isl objects do not pickle) and every import; only JSON comes back.
+    Forking is used only from a single-threaded process (the command line),
+    never from the language server, and never off Linux-like systems.
+    """
+    global _FORKED
+    out: dict[int, tuple[dict, list]] = {}
+    n_jobs = min(jobs(), len(todo))
+    import threading
+
+    can_fork = (n_jobs > 1 and hasattr(os, "fork") and threading.active_count() == 1
+                and sys.platform.startswith("linux"))
+    if can_fork:
+        import multiprocessing
+
+        _FORKED = (nests, options)
+        try:
+            with multiprocessing.get_context("fork").Pool(n_jobs) as pool:
+                for k, res in pool.imap_unordered(_forked_worker, todo):
+                    if res is not None:
+                        out[k] = res
+        except Exception:  # no processes to be had: do it here
+            out.clear()
+        finally:
+            _FORKED = None
+    for k in todo:
+        if k not in out:
+            out[k] = _analyze_one(nests[k], options)
+    return out
+
+
+def _compute(layout: Layout, path: str, text: str, options: Options,
+             store: Store) -> tuple[list, list, bool]:
+    """Analyze what the cache lacks; write the new entries."""
+    from tripcount.model import build_nests
+
+    toks = layout.tokens
+    nests, model_diags = build_nests(layout.unit, assume=options.assume, path=path)
+    by_pos = {(s.line, s.column): s for s in layout.sites}
+    cacheable = True
+    nest_out: list[dict[str, Any]] = []
+    diags: list[dict[str, Any]] = list(layout.parse_diagnostics)
+    per_site: dict[str, tuple[dict[str, Any] | None, list[dict[str, Any]]]] = {}
+    found: list[tuple[Site | None, dict[str, Any] | None, list[dict[str, Any]]] | None] = []
+    todo: list[int] = []
+    for k, nest in enumerate(nests):
+        site = by_pos.get((nest.span.line, nest.span.column))
+        cached = store.get("nest", site.key) if site is not None else None
+        if cached is None:
+            found.append(None)
+            todo.append(k)
+            continue
+        remap = _entry_remap(cached, toks, site.anchors, layout.outside)
+        nj = _slices_in(_remap_json(cached["nest"], remap), toks) if cached.get("nest") is not None else None
+        found.append((site, nj, _remap_json(cached.get("diagnostics", []), remap)))
+    for k, (nj, nd) in _analyze_nests(nests, todo, options).items():
+        site = by_pos.get((nests[k].span.line, nests[k].span.column))
+        found[k] = (site, nj, nd)
+        if site is None:
+            cacheable = False  # a nest the front end did not show us: no key to store it under
+        elif not any(d["code"].startswith("TC9") for d in nd):  # do not keep internal errors
+            store.put("nest", site.key, {
+                "nest": _slices_out(nj, toks), "diagnostics": nd,
+                **_entry_anchors(toks, site.anchors, layout.outside, site.lo, site.stop, [nj, nd])})
+        else:
+            cacheable = False
+    for entry in found:
+        assert entry is not None
+        site, nj, nd = entry
+        if nj is not None:
+            nest_out.append(nj)
+        diags.extend(nd)
+        if site is not None:
+            per_site[site.key] = (nj, nd)
+    # Loops the model made no nest of still get an entry, so that the warm path sees no miss.
+    for s in layout.sites:
+        if s.key not in per_site and store.get("nest", s.key) is None:
+            store.put("nest", s.key, {"nest": None, "diagnostics": [], "anchors": [], "wide": False})
+    # The model's own diagnostics: inside a nest, a function, or outside all functions.
+    md = [d.to_dict() for d in model_diags]
+    fn_diags: dict[int, list[dict[str, Any]]] = {k: [] for k in range(len(layout.functions))}
+    out_diags: list[dict[str, Any]] = []
+    for d in md:
+        a, _b = _span_of(d, toks)
+        owner = None
+        for k, (_name, fa, fb, _key) in enumerate(layout.functions):
+            if fa <= a < fb:
+                owner = k
+                break
+        if owner is None:
+            out_diags.append(d)
+        else:
+            fn_diags[owner].append(d)
+    diags.extend(md)
+    for k, (_name, fa, fb, key) in enumerate(layout.functions):
+        i, j = toks.range(fa, fb)
+        store.put("fn", key, {"diagnostics": fn_diags[k],
+                              **_entry_anchors(toks, list(range(i, j)), layout.outside, fa, fb, fn_diags[k])})
+    store.put("out", layout.outside_key, {"diagnostics": out_diags,
+                                          "anchors": _anchor_positions(toks, layout.outside)})
+    return nest_out, diags, cacheable
+
+
+# --------------------------------------------------------------------------
+# Reading sources without the pipeline (which imports the engine)
+
+
+def read_source(path: str) -> tuple[str, dict[str, Any] | None]:
+    """Read a C file as UTF-8; invalid bytes are replaced and reported (diagnostic dict).
+
+    Raises OSError when the file cannot be read.
+    """
+    with open(path, "rb") as f:
+        data = f.read()
+    try:
+        return data.decode("utf-8"), None
+    except UnicodeDecodeError as exc:
+        from tripcount.diagnostics import InvalidEncoding
+        from tripcount.ir import Span
+
+        before = data[: exc.start].decode("utf-8", errors="replace")
+        line = before.count("\n") + 1
+        column = len(before) - (before.rfind("\n") + 1) + 1
+        diag = InvalidEncoding(Span.point(line, column), byte=f"0x{data[exc.start]:02x}")
+        return data.decode("utf-8", errors="replace"), diag.to_dict()

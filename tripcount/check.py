@@ -1,0 +1,1004 @@
+# `tripcount check`: the pre-commit gate.
+#
+# For every given C file: analyze it (through the result cache), hold each
+# nest against the budgets of the nearest `[tool.tripcount]` (degree of the
+# work, innermost working set, thread imbalance; per-path overrides), and,
+# with a baseline revision, against its counterpart in the baseline version
+# of the same file (read with `git show REV:path` and analyzed in memory),
+# flagging a higher degree, a leading term grown beyond `max_leading_growth`
+# or an innermost working set that moved out to a larger cache level.
+#
+# Findings are TC6xx diagnostics in compiler style; an inline comment on the
+# loop line suppresses them:  `// tripcount: allow degree, working-set`.
+# Exit status: 0 all within budget, 1 findings, 2 usage or tool errors.
+#
+# This module must stay light: on a warm cache nothing here may import
+# islpy, sympy or the engine (the leading terms are evaluated with a small
+# exact evaluator of our own for that reason).
+
+from __future__ import annotations
+
+import argparse
+import ast
+import difflib
+import fnmatch
+import json
+import math
+import os
+import re
+import subprocess
+import sys
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import Any, TextIO
+
+from tripcount.config import Config, ConfigError, load_config, parse_bytes
+from tripcount.diagnostics import Diagnostic
+from tripcount.ir import Span
+
+EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+SOURCE_SUFFIXES = (".c", ".h")
+BUDGET_KEYS = ("max_degree", "max_working_set", "max_imbalance", "max_leading_growth")
+DEFAULT_LEADING_GROWTH = 1.5
+# Typical cache sizes of current x86-64 server cores, used only when neither the
+# configuration nor the host says anything (common practice, not a measurement).
+DEFAULT_LEVELS = {"L1": 32 * 1024, "L2": 1024 * 1024, "L3": 8 * 1024 * 1024}
+
+
+# --------------------------------------------------------------------------
+# Diagnostics (TC6xx)
+
+
+class DegreeBudget(Diagnostic):
+    """The work of a nest grows faster in the sizes than `max_degree` allows."""
+
+    code = "TC601"
+    severity = "error"
+    title = "degree-budget"
+    template = ("work of this nest has degree {degree} in the sizes ({what} ~ {leading}); "
+                "the budget is degree {budget} (max_degree{where})")
+
+
+class WorkingSetBudget(Diagnostic):
+    """The innermost working set of a nest does not fit the cache level `max_working_set` allows."""
+
+    code = "TC602"
+    severity = "error"
+    title = "working-set-budget"
+    template = ("innermost working set of loop '{var}' is {size} at {at}, which needs {level}; "
+                "the budget is {budget} (max_working_set{where})")
+
+
+class ImbalanceBudget(Diagnostic):
+    """A parallel loop's work is less even across threads than `max_imbalance` allows."""
+
+    code = "TC603"
+    severity = "error"
+    title = "imbalance-budget"
+    template = ("parallel loop '{var}' has imbalance {imbalance} (busiest thread / mean){threads}; "
+                "the budget is {budget} (max_imbalance{where})")
+
+
+class BudgetUnchecked(Diagnostic):
+    """A budget is configured but this nest gives no value to hold against it."""
+
+    code = "TC604"
+    severity = "note"
+    title = "budget-unchecked"
+    template = "{budget} not checked for this nest: {reason}"
+
+
+class DegreeRegression(Diagnostic):
+    """The work of a nest has a higher degree than in the baseline revision."""
+
+    code = "TC610"
+    severity = "error"
+    title = "degree-regression"
+    template = "work of this nest grew from degree {old} to degree {new} since {rev} (was ~ {old_leading}, now ~ {new_leading})"
+
+
+class LeadingGrowth(Diagnostic):
+    """Same degree as the baseline, but the leading term grew beyond `max_leading_growth`."""
+
+    code = "TC611"
+    severity = "error"
+    title = "leading-term-growth"
+    template = ("leading term of the work grew {ratio}x since {rev} (was ~ {old_leading}, now ~ {new_leading}); "
+                "allowed {allowed}x (max_leading_growth{where})")
+
+
+class WorkingSetRegression(Diagnostic):
+    """The innermost working set moved out to a larger cache level than in the baseline."""
+
+    code = "TC612"
+    severity = "error"
+    title = "working-set-regression"
+    template = ("innermost working set of loop '{var}' now needs {new_level} ({new_size}), "
+                "it fit {old_level} ({old_size}) at {rev}; at {at}")
+
+
+class UnknownSuppression(Diagnostic):
+    """A `tripcount: allow ...` comment names a kind of finding that does not exist."""
+
+    code = "TC620"
+    severity = "warning"
+    title = "unknown-suppression"
+    template = "unknown kind '{kind}' in 'tripcount: allow'; known kinds: {known}"
+
+
+class BaselineUnavailable(Diagnostic):
+    """The baseline version of a file could not be read or analyzed; budgets only."""
+
+    code = "TC630"
+    severity = "warning"
+    title = "baseline-unavailable"
+    template = "no baseline comparison for this file: {reason}"
+
+
+# Which suppression kind silences which finding.
+SUPPRESSES = {
+    "TC601": "degree", "TC610": "degree", "TC611": "growth",
+    "TC602": "working-set", "TC612": "working-set", "TC603": "imbalance",
+}
+KINDS = ("degree", "growth", "working-set", "imbalance", "all")
+
+
+# --------------------------------------------------------------------------
+# Budgets
+
+
+@dataclass
+class Budgets:
+    """The budgets in force for one file (after per-path overrides)."""
+
+    max_degree: int | None = None
+    max_working_set: str | int | None = None  # a cache level name ("L2") or bytes
+    max_imbalance: float | None = None
+    max_leading_growth: float = DEFAULT_LEADING_GROWTH
+    source: str = ""  # ' in path/pyproject.toml' for messages
+    baseline: str | None = None  # `baseline = "origin/main"` in the configuration
+
+    def any(self) -> bool:
+        """True when at least one budget is set."""
+        return any(x is not None for x in (self.max_degree, self.max_working_set, self.max_imbalance))
+
+
+def effective_table(config: Config, path: str) -> dict[str, Any]:
+    """`[tool.tripcount]` with the overrides whose `paths` match `path` merged in (later wins)."""
+    table = {k: v for k, v in config.table.items() if k != "override"}
+    overrides = config.table.get("override", [])
+    if isinstance(overrides, dict):
+        overrides = [overrides]
+    if not isinstance(overrides, list):
+        raise ConfigError(f"{config.path}: [[tool.tripcount.override]] must be an array of tables")
+    base = os.path.dirname(os.path.abspath(config.path)) if config.path else os.getcwd()
+    rel = os.path.relpath(os.path.abspath(path), base).replace(os.sep, "/")
+    for k, ov in enumerate(overrides):
+        if not isinstance(ov, dict):
+            raise ConfigError(f"{config.path}: override #{k + 1} must be a table")
+        pats = ov.get("paths", [])
+        if isinstance(pats, str):
+            pats = [pats]
+        if not isinstance(pats, list) or not all(isinstance(p, str) for p in pats):
+            raise ConfigError(f"{config.path}: override #{k + 1}: 'paths' must be a list of glob patterns")
+        if any(fnmatch.fnmatchcase(rel, p.lstrip("./") if p.startswith("./") else p) for p in pats):
+            table.update({key: v for key, v in ov.items() if key != "paths"})
+    return table
+
+
+def budgets_from(table: dict[str, Any], config_path: str | None) -> Budgets:
+    """Read and check the budget keys of a (merged) table."""
+    where = f" in {os.path.relpath(config_path)}" if config_path else ""
+    b = Budgets(source=where)
+
+    def bad(key: str, want: str) -> ConfigError:
+        return ConfigError(f"{config_path}: [tool.tripcount] {key} must be {want}, got {table[key]!r}")
+
+    if "max_degree" in table:
+        v = table["max_degree"]
+        if isinstance(v, bool) or not isinstance(v, int) or v < 0:
+            raise bad("max_degree", "a non-negative integer")
+        b.max_degree = v
+    if "max_working_set" in table:
+        v = table["max_working_set"]
+        if isinstance(v, bool) or not isinstance(v, (str, int)):
+            raise bad("max_working_set", 'a cache level name ("L2") or a size ("256KiB")')
+        if isinstance(v, str) and not _is_level(v):
+            try:
+                parse_bytes(v)
+            except ValueError:
+                raise bad("max_working_set", 'a cache level name ("L2") or a size ("256KiB")') from None
+        b.max_working_set = v.strip().upper() if isinstance(v, str) and _is_level(v) else v
+    for key in ("max_imbalance", "max_leading_growth"):
+        if key in table:
+            v = table[key]
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or v < 1:
+                raise bad(key, "a number >= 1")
+            setattr(b, key, float(v))
+    if "baseline" in table:
+        v = table["baseline"]
+        if not isinstance(v, str):
+            raise bad("baseline", "a git revision")
+        b.baseline = v
+    return b
+
+
+def _is_level(text: str) -> bool:
+    return re.fullmatch(r"[Ll][1-9]", text.strip()) is not None
+
+
+# --------------------------------------------------------------------------
+# Reading quantities out of the nest JSON
+
+
+def nest_work(nest: dict[str, Any]) -> tuple[int | None, list[str], str]:
+    """Degree of the work of a nest, the leading terms of its dominant statements, and who.
+
+    The degree is the highest degree of any statement count; the leading term
+    of the whole nest is the sum of the leading terms of the statements of
+    that degree (the other statements grow more slowly).
+    """
+    best: int | None = None
+    leads: list[tuple[str, str]] = []
+    for s in nest.get("statements", []):
+        c = s.get("count") or {}
+        d = c.get("degree")
+        if not isinstance(d, int) or c.get("pieces") is None:
+            continue
+        if best is None or d > best:
+            best, leads = d, []
+        if d == best:
+            leads.append((s.get("id", "?"), str(c.get("leading") or "")))
+    who = leads[0][0] if len(leads) == 1 else "statements " + ", ".join(i for i, _ in leads)
+    return best, [lead for _, lead in leads if lead], who
+
+
+def _number(v: Any) -> float | None:
+    """A plain number out of a value field (int, float or 'p/q')."""
+    if isinstance(v, bool):
+        return None
+    if isinstance(v, (int, float)):
+        return float(v)
+    if isinstance(v, str):
+        try:
+            return float(Fraction(v))
+        except (ValueError, ZeroDivisionError):
+            return None
+    if isinstance(v, dict):
+        for key in ("value", "bytes", "total"):
+            if key in v:
+                return _number(v[key])
+    return None
+
+
+def working_set_bytes(ws: Any) -> float | None:
+    """Bytes of a loop's working set at the given sizes, from its JSON (None when unknown).
+
+    The cache-fit occupancy (worst case over the enclosing loop variables, in
+    whole cache lines) is what the footprint analysis itself compares with
+    the cache levels, so the gate uses it first; then the worst-case bytes,
+    then the plain byte count.
+    """
+    if ws is None:
+        return None
+    if not isinstance(ws, dict):
+        return _number(ws)
+    fit = ws.get("cache_fit")
+    if isinstance(fit, dict):
+        v = _number(fit.get("occupancy_bytes"))
+        if v is not None:
+            return v
+    worst = ws.get("worst")
+    if isinstance(worst, dict) and isinstance(worst.get("bytes"), dict):
+        v = _number(worst["bytes"].get("value"))
+        if v is not None:
+            return v
+    for key in ("bytes", "value"):
+        if key in ws:
+            v = _number(ws[key])
+            if v is not None:
+                return v
+    return None
+
+
+def cache_levels(options: Any) -> dict[str, int]:
+    """Cache level capacities: configuration, else host, else labelled defaults.
+
+    The same precedence as the footprint analysis (tripcount.analysis.caches),
+    so the gate and the report agree. Configure `caches` in [tool.tripcount]
+    for a gate that answers the same on every machine.
+    """
+    try:
+        from tripcount.analysis.caches import hierarchy
+
+        levels = {lv.name: lv.size for lv in hierarchy(options).levels}
+        if levels:
+            return levels
+    except Exception:  # no hierarchy: fall back to the labelled defaults
+        pass
+    if getattr(options, "caches", None):
+        return dict(options.caches)
+    return dict(DEFAULT_LEVELS)
+
+
+def level_of(size: float, levels: dict[str, int]) -> str:
+    """The innermost cache level that holds `size` bytes ('memory' when none does)."""
+    for name, cap in sorted(levels.items(), key=lambda kv: (kv[1], kv[0])):
+        if size <= cap:
+            return name
+    return "memory"
+
+
+def _level_rank(name: str, levels: dict[str, int]) -> int:
+    order = [n for n, _ in sorted(levels.items(), key=lambda kv: (kv[1], kv[0]))]
+    return order.index(name) if name in order else len(order)
+
+
+def fmt_bytes(n: float) -> str:
+    """Bytes in binary units."""
+    for unit, scale in (("GiB", 1024**3), ("MiB", 1024**2), ("KiB", 1024)):
+        if n >= scale:
+            v = n / scale
+            return f"{v:.1f} {unit}" if v != int(v) else f"{int(v)} {unit}"
+    return f"{int(n)} B"
+
+
+def innermost_loops(nest: dict[str, Any]) -> list[dict[str, Any]]:
+    """Loops with no loop inside them."""
+    parents = {lp.get("parent") for lp in nest.get("loops", [])}
+    return [lp for lp in nest.get("loops", []) if lp.get("index") not in parents]
+
+
+def worst_innermost_ws(nest: dict[str, Any]) -> tuple[dict[str, Any] | None, float | None]:
+    """The innermost loop with the largest working set, and that size."""
+    best: tuple[dict[str, Any] | None, float | None] = (None, None)
+    for lp in innermost_loops(nest):
+        b = working_set_bytes(lp.get("working_set"))
+        if b is not None and (best[1] is None or b > best[1]):
+            best = (lp, b)
+    return best
+
+
+def has_working_sets(nest: dict[str, Any]) -> bool:
+    """True when the footprint analysis attached working sets to this nest's loops."""
+    return any("working_set" in lp for lp in nest.get("loops", []))
+
+
+def imbalance_of(par: Any) -> float | None:
+    """The imbalance (busiest thread's work / mean) of a loop's `parallel` object."""
+    if not isinstance(par, dict):
+        return None
+    for key in ("imbalance", "max_over_mean", "ratio"):
+        if key in par:
+            v = _number(par[key])
+            if v is not None:
+                return v
+    bal = par.get("balance")
+    if isinstance(bal, dict):
+        return imbalance_of(bal)
+    return None
+
+
+# --------------------------------------------------------------------------
+# Exact evaluation of leading terms (no sympy on this path)
+
+_ALLOWED = (ast.Expression, ast.BinOp, ast.UnaryOp, ast.Constant, ast.Name, ast.Load, ast.Call,
+            ast.Add, ast.Sub, ast.Mult, ast.Div, ast.Pow, ast.USub, ast.UAdd, ast.FloorDiv, ast.Mod)
+
+
+def eval_expr(text: str, values: dict[str, int]) -> Fraction:
+    """Evaluate our formula notation (+ - * / ^, parentheses, floor/ceil/min/max) exactly."""
+    tree = ast.parse(text.replace("^", "**"), mode="eval")
+    for node in ast.walk(tree):
+        if not isinstance(node, _ALLOWED):
+            raise ValueError(f"unexpected {type(node).__name__} in '{text}'")
+
+    def ev(n: ast.AST) -> Fraction:
+        if isinstance(n, ast.Expression):
+            return ev(n.body)
+        if isinstance(n, ast.Constant) and isinstance(n.value, int | float) and not isinstance(n.value, bool):
+            return Fraction(n.value)
+        if isinstance(n, ast.Name):
+            if n.id not in values:
+                raise KeyError(n.id)
+            return Fraction(values[n.id])
+        if isinstance(n, ast.UnaryOp):
+            v = ev(n.operand)
+            return -v if isinstance(n.op, ast.USub) else v
+        if isinstance(n, ast.BinOp):
+            a, b = ev(n.left), ev(n.right)
+            if isinstance(n.op, ast.Add):
+                return a + b
+            if isinstance(n.op, ast.Sub):
+                return a - b
+            if isinstance(n.op, ast.Mult):
+                return a * b
+            if isinstance(n.op, ast.Div):
+                return a / b
+            if isinstance(n.op, ast.FloorDiv):
+                return Fraction(a // b)
+            if isinstance(n.op, ast.Mod):
+                return a - b * (a // b)
+            if isinstance(n.op, ast.Pow):
+                if b.denominator != 1 or abs(b) > 64:
+                    raise ValueError("unsupported exponent")
+                return a ** int(b)
+        if isinstance(n, ast.Call) and isinstance(n.func, ast.Name):
+            args = [ev(a) for a in n.args]
+            f = n.func.id
+            if f == "floor" and len(args) == 1:
+                return Fraction(math.floor(args[0]))
+            if f == "ceil" and len(args) == 1:
+                return Fraction(math.ceil(args[0]))
+            if f == "min" and args:
+                return min(args)
+            if f == "max" and args:
+                return max(args)
+        raise ValueError(f"cannot evaluate '{text}'")
+
+    return ev(tree)
+
+
+def _names(text: str) -> set[str]:
+    return set(re.findall(r"[A-Za-z_]\w*", text)) - {"floor", "ceil", "min", "max"}
+
+
+def leading_ratio(old: list[str], new: list[str], at: dict[str, int]) -> float | None:
+    """new/old of the summed leading terms at the sizes (scale-free: both are homogeneous).
+
+    Parameters without a size are given the largest configured size (or 1000),
+    i.e. the sizes are taken as comparable.
+    """
+    if not old or not new:
+        return None
+    names = set().union(*(_names(t) for t in old + new))
+    fill = at.get("*") or (max(at.values()) if at else 1000)
+    point = {n: at.get(n, fill) for n in names}
+    try:
+        a = sum((eval_expr(t, point) for t in old), Fraction(0))
+        b = sum((eval_expr(t, point) for t in new), Fraction(0))
+    except (ValueError, KeyError, ZeroDivisionError, SyntaxError, OverflowError):
+        return None
+    if a <= 0:
+        return None
+    return float(b / a)
+
+
+# --------------------------------------------------------------------------
+# Suppressions:  // tripcount: allow degree, working-set   (on the loop line)
+
+SUPPRESS_RE = re.compile(r"(?://|/\*).*?\btripcount\s*:\s*allow\s+([A-Za-z][\w-]*(?:\s*,\s*[A-Za-z][\w-]*)*)")
+
+
+@dataclass
+class Suppressions:
+    """Kinds allowed per line, read from comments in the file text."""
+
+    by_line: dict[int, set[str]] = field(default_factory=dict)
+    unknown: list[tuple[int, int, str]] = field(default_factory=list)  # (line, column, kind)
+    lines: list[str] = field(default_factory=list)
+
+    @staticmethod
+    def scan(text: str) -> Suppressions:
+        """Find every `tripcount: allow` comment."""
+        s = Suppressions(lines=text.split("\n"))
+        if "tripcount" not in text:
+            return s
+        for no, line in enumerate(s.lines, start=1):
+            if "tripcount" not in line:
+                continue
+            m = SUPPRESS_RE.search(line)
+            if not m:
+                continue
+            kinds = set()
+            for part in re.finditer(r"[A-Za-z][\w-]*", m.group(1)):
+                k = part.group().lower().replace("_", "-")
+                if k in KINDS:
+                    kinds.add(k)
+                else:
+                    s.unknown.append((no, part.start() + m.start(1) + 1, part.group()))
+            s.by_line[no] = kinds
+        return s
+
+    def lines_for(self, line: int, end_line: int | None = None) -> list[int]:
+        """The lines whose comments apply to a loop starting on `line`.
+
+        The loop header's own lines, and the block of comment-only or
+        preprocessor lines right above it (so that a comment may sit above
+        a `#pragma omp` line or a long header).
+        """
+        out = list(range(line, (end_line or line) + 1))
+        k = line - 1
+        while k >= 1 and k <= len(self.lines):
+            t = self.lines[k - 1].strip()
+            if t.startswith(("//", "/*", "*", "#")) and t:
+                out.append(k)
+                k -= 1
+                continue
+            break
+        return out
+
+    def allows(self, code: str, lines: list[int]) -> bool:
+        """True when a comment on one of `lines` allows findings of `code`."""
+        kind = SUPPRESSES.get(code)
+        for ln in lines:
+            kinds = self.by_line.get(ln)
+            if kinds and ("all" in kinds or kind in kinds):
+                return True
+        return False
+
+
+# --------------------------------------------------------------------------
+# Spans of loop headers (for tighter regions than whole nests)
+
+
+def header_span(lines: list[str], line: int, column: int) -> Span:
+    """The span of `for (...)` starting at (line, column), found by matching parentheses."""
+    depth = 0
+    seen = False
+    ln, col = line, column
+    while 1 <= ln <= len(lines):
+        text = lines[ln - 1]
+        i = col - 1
+        while i < len(text):
+            ch = text[i]
+            if text.startswith("//", i):
+                break
+            if ch == "(":
+                depth += 1
+                seen = True
+            elif ch == ")":
+                depth -= 1
+                if seen and depth == 0:
+                    return Span(line, column, ln, i + 2)
+            i += 1
+        ln, col = ln + 1, 1
+        if ln - line > 40:  # not a loop header we can read: a point will do
+            break
+    end = min(len(lines[line - 1]) + 1, column + 3) if 1 <= line <= len(lines) else column
+    return Span(line, column, line, max(end, column))
+
+
+def _loop_span(lp: dict[str, Any], lines: list[str]) -> Span:
+    return header_span(lines, int(lp.get("line", 1)), int(lp.get("column", 1)))
+
+
+# --------------------------------------------------------------------------
+# Checking one file
+
+
+def _outer_loop(nest: dict[str, Any]) -> dict[str, Any]:
+    for lp in nest.get("loops", []):
+        if lp.get("parent") is None:
+            return lp
+    return {"line": nest.get("line", 1), "column": nest.get("column", 1), "var": "?"}
+
+
+def _at_text(at: dict[str, int]) -> str:
+    return ", ".join(f"{k}={v}" for k, v in at.items()) or "the given sizes"
+
+
+def budget_findings(nest: dict[str, Any], budgets: Budgets, options: Any, lines: list[str],
+                    levels: dict[str, int]) -> list[Diagnostic]:
+    """Budget diagnostics of one nest (before suppressions)."""
+    out: list[Diagnostic] = []
+    outer = _outer_loop(nest)
+    nest_span = _loop_span(outer, lines)
+    where = budgets.source
+    if budgets.max_degree is not None:
+        degree, leads, who = nest_work(nest)
+        if degree is None:
+            if nest.get("statements"):
+                out.append(BudgetUnchecked(nest_span, budget="max_degree", reason="no formula for its counts"))
+        elif degree > budgets.max_degree:
+            out.append(DegreeBudget(nest_span, degree=degree, what=who, leading=" + ".join(leads) or "?",
+                                    budget=budgets.max_degree, where=where))
+    if budgets.max_working_set is not None and nest.get("loops"):
+        lp, size = worst_innermost_ws(nest)
+        if size is None:
+            reason = ("give sizes with `at` in [tool.tripcount] (or --at)" if not options.at and has_working_sets(nest)
+                      else "no working set computed for its innermost loops")
+            out.append(BudgetUnchecked(nest_span, budget="max_working_set", reason=reason))
+        else:
+            assert lp is not None
+            limit = budgets.max_working_set
+            if isinstance(limit, str) and _is_level(limit):
+                if limit not in levels:
+                    raise ConfigError(f"max_working_set = '{limit}': no cache level {limit} "
+                                      f"(known: {', '.join(sorted(levels)) or 'none'}; set `caches`)")
+                cap = levels[limit]
+                budget_text = f"{limit} ({fmt_bytes(cap)})"
+            else:
+                cap = parse_bytes(limit)  # type: ignore[arg-type]
+                budget_text = fmt_bytes(cap)
+            if size > cap:
+                out.append(WorkingSetBudget(_loop_span(lp, lines), var=lp.get("var", "?"), size=fmt_bytes(size),
+                                            at=_at_text(options.at), level=level_of(size, levels),
+                                            budget=budget_text, where=where))
+    if budgets.max_imbalance is not None:
+        threads = getattr(options, "threads", None)
+        for lp in nest.get("loops", []):
+            imb = imbalance_of(lp.get("parallel"))
+            if imb is not None and imb > budgets.max_imbalance + 1e-12:
+                t = lp.get("parallel", {}).get("threads", threads)
+                out.append(ImbalanceBudget(_loop_span(lp, lines), var=lp.get("var", "?"), imbalance=f"{imb:.3g}",
+                                           threads=f" with {t} threads" if t else "",
+                                           budget=f"{budgets.max_imbalance:g}", where=where))
+    return out
+
+
+def regression_findings(old: dict[str, Any], new: dict[str, Any], budgets: Budgets, options: Any,
+                        lines: list[str], levels: dict[str, int], rev: str) -> list[Diagnostic]:
+    """Baseline diagnostics of one matched pair of nests."""
+    out: list[Diagnostic] = []
+    span = _loop_span(_outer_loop(new), lines)
+    d_old, l_old, _ = nest_work(old)
+    d_new, l_new, _ = nest_work(new)
+    if d_old is not None and d_new is not None:
+        if d_new > d_old:
+            out.append(DegreeRegression(span, old=d_old, new=d_new, rev=rev,
+                                        old_leading=" + ".join(l_old) or "?", new_leading=" + ".join(l_new) or "?"))
+        elif d_new == d_old and d_new > 0:
+            r = leading_ratio(l_old, l_new, options.at)
+            if r is not None and r > budgets.max_leading_growth + 1e-12:
+                out.append(LeadingGrowth(span, ratio=f"{r:.3g}", rev=rev, old_leading=" + ".join(l_old),
+                                         new_leading=" + ".join(l_new), allowed=f"{budgets.max_leading_growth:g}",
+                                         where=budgets.source))
+    lo, so = worst_innermost_ws(old)
+    ln_, sn = worst_innermost_ws(new)
+    if so is not None and sn is not None and ln_ is not None:
+        a, b = level_of(so, levels), level_of(sn, levels)
+        if _level_rank(b, levels) > _level_rank(a, levels):
+            out.append(WorkingSetRegression(_loop_span(ln_, lines), var=ln_.get("var", "?"), new_level=b,
+                                            new_size=fmt_bytes(sn), old_level=a, old_size=fmt_bytes(so),
+                                            rev=rev, at=_at_text(options.at)))
+    return out
+
+
+def _signature(n: dict[str, Any]) -> str:
+    loops = ",".join(f"{lp.get('var')}@{lp.get('depth')}" for lp in n.get("loops", []))
+    stmts = ";".join(" ".join(str(s.get("text", "")).split()) for s in n.get("statements", []))
+    return loops + "|" + stmts
+
+
+def match_nests(old: list[dict[str, Any]], new: list[dict[str, Any]]) -> list[tuple[int, int]]:
+    """Pairs (old index, new index) of counterpart nests.
+
+    Within each function: by ordinal when both versions have as many nests;
+    otherwise identical nests (same loops and statement texts) pair in order
+    first, and each remaining new nest takes the unmatched old nest nearest
+    in line (after the typical shift of the pairs already made).
+    """
+    pairs: list[tuple[int, int]] = []
+    funcs: dict[str, tuple[list[int], list[int]]] = {}
+    for i, n in enumerate(old):
+        funcs.setdefault(n.get("function", ""), ([], []))[0].append(i)
+    for j, n in enumerate(new):
+        funcs.setdefault(n.get("function", ""), ([], []))[1].append(j)
+    for _fn, (oi, nj) in funcs.items():
+        if not oi or not nj:
+            continue
+        if len(oi) == len(nj):
+            pairs.extend(zip(oi, nj, strict=True))
+            continue
+        sm = difflib.SequenceMatcher(a=[_signature(old[i]) for i in oi], b=[_signature(new[j]) for j in nj],
+                                     autojunk=False)
+        local: list[tuple[int, int]] = []
+        for blk in sm.get_matching_blocks():
+            for k in range(blk.size):
+                local.append((oi[blk.a + k], nj[blk.b + k]))
+        used_o = {a for a, _ in local}
+        used_n = {b for _, b in local}
+        shifts = sorted(new[b]["line"] - old[a]["line"] for a, b in local)
+        shift = shifts[len(shifts) // 2] if shifts else 0
+        for j in nj:
+            if j in used_n:
+                continue
+            cands = [i for i in oi if i not in used_o]
+            if not cands:
+                break
+            i = min(cands, key=lambda i: (abs(old[i]["line"] + shift - new[j]["line"]), i))
+            used_o.add(i)
+            local.append((i, j))
+        pairs.extend(local)
+    return sorted(pairs, key=lambda p: p[1])
+
+
+# --------------------------------------------------------------------------
+# git
+
+
+class GitError(Exception):
+    """git is missing or failed in a way that is not 'file absent at that revision'."""
+
+
+def _git(args: list[str], cwd: str) -> subprocess.CompletedProcess[bytes]:
+    try:
+        return subprocess.run(["git", *args], cwd=cwd, capture_output=True, timeout=60,
+                              env={**os.environ, "GIT_OPTIONAL_LOCKS": "0"})
+    except FileNotFoundError as exc:
+        raise GitError("git is not installed") from exc
+    except subprocess.TimeoutExpired as exc:
+        raise GitError("git did not answer within 60 s") from exc
+
+
+@dataclass
+class Git:
+    """Per-run memo of git questions (one subprocess per repository, not per file)."""
+
+    _tops: dict[str, str | None] = field(default_factory=dict)
+    _revs: dict[tuple[str, str], str | None] = field(default_factory=dict)
+    _staged: dict[str, set[str]] = field(default_factory=dict)
+
+    def toplevel(self, directory: str) -> str | None:
+        """The work tree containing `directory`, or None outside git."""
+        if directory not in self._tops:
+            try:
+                r = _git(["rev-parse", "--show-toplevel"], directory)
+            except GitError:
+                self._tops[directory] = None
+            else:
+                self._tops[directory] = os.path.realpath(r.stdout.decode().strip()) if r.returncode == 0 else None
+        return self._tops[directory]
+
+    def resolve(self, top: str, rev: str) -> str | None:
+        """The commit `rev` names in the repository at `top`, or None."""
+        if (top, rev) not in self._revs:
+            r = _git(["rev-parse", "--verify", "--quiet", rev + "^{commit}"], top)
+            self._revs[(top, rev)] = r.stdout.decode().strip() if r.returncode == 0 else None
+        return self._revs[(top, rev)]
+
+    def staged(self, top: str) -> set[str]:
+        """Real paths of the files staged in the index."""
+        if top not in self._staged:
+            r = _git(["diff", "--cached", "--name-only", "-z"], top)
+            names = r.stdout.decode("utf-8", "replace").split("\0") if r.returncode == 0 else []
+            self._staged[top] = {os.path.realpath(os.path.join(top, n)) for n in names if n}
+        return self._staged[top]
+
+    def show(self, top: str, commit: str, path: str) -> str | None:
+        """The file's text at `commit`, or None when it did not exist there."""
+        rel = os.path.relpath(os.path.realpath(path), top).replace(os.sep, "/")
+        r = _git(["show", f"{commit}:{rel}"], top)
+        if r.returncode != 0:
+            return None
+        return r.stdout.decode("utf-8", errors="replace")
+
+
+# --------------------------------------------------------------------------
+# The command
+
+
+@dataclass
+class FileCheck:
+    """Everything found for one file."""
+
+    path: str
+    result: dict[str, Any]
+    findings: list[Diagnostic]
+    tool_errors: list[dict[str, Any]]
+    at: dict[str, int] = field(default_factory=dict)
+
+
+def expand_paths(paths: list[str]) -> list[str]:
+    """Files as given; directories expanded to the C sources under them (sorted)."""
+    out: list[str] = []
+    for p in paths:
+        if os.path.isdir(p):
+            found = []
+            for root, dirs, files in os.walk(p):
+                dirs[:] = sorted(d for d in dirs if not d.startswith("."))
+                found.extend(os.path.join(root, f) for f in files if f.endswith(SOURCE_SUFFIXES))
+            out.extend(sorted(found))
+        else:
+            out.append(p)
+    return out
+
+
+def _staged_sources(git: Git) -> list[str]:
+    top = git.toplevel(os.getcwd())
+    if top is None:
+        return []
+    r = _git(["diff", "--cached", "--name-only", "-z", "--diff-filter=ACMR"], top)
+    names = [n for n in r.stdout.decode("utf-8", "replace").split("\0") if n.endswith(SOURCE_SUFFIXES)]
+    return [os.path.relpath(os.path.join(top, n)) for n in names]
+
+
+def baseline_rev(args: argparse.Namespace, budgets: Budgets, path: str, git: Git) -> tuple[str | None, str]:
+    """The revision to compare `path` with, and where it came from: 'cli', 'config' or 'default'.
+
+    The command line wins, then `baseline` in [tool.tripcount], then the
+    defaults: under pre-push the remote's revision, under pre-commit (or for
+    a file staged in git) HEAD; otherwise no baseline.
+    """
+    if getattr(args, "baseline", None):
+        rev = args.baseline
+        return (None, "cli") if rev.lower() == "none" else (rev, "cli")
+    if budgets.baseline:
+        return (None, "config") if budgets.baseline.lower() == "none" else (budgets.baseline, "config")
+    if os.environ.get("PRE_COMMIT_FROM_REF"):  # pre-push: compare with what the remote has
+        return os.environ["PRE_COMMIT_FROM_REF"], "default"
+    if os.environ.get("PRE_COMMIT"):  # pre-commit checks staged files
+        return "HEAD", "default"
+    top = git.toplevel(os.path.dirname(os.path.abspath(path)))
+    if top is not None and os.path.realpath(path) in git.staged(top):
+        return "HEAD", "default"
+    return None, "default"
+
+
+def check_file(path: str, args: argparse.Namespace, git: Git, use_cache: bool) -> FileCheck:
+    """Analyze one file, hold it against its budgets and its baseline."""
+    from tripcount.cache import analyze_file_cached, read_source
+    from tripcount.cli import options_from
+
+    config = load_config(path)
+    table = effective_table(config, path)
+    budgets = budgets_from(table, config.path)
+    options = options_from(args, Config(path=config.path, table=table))
+    text, bad = read_source(path)
+    result = analyze_file_cached(path, text, options, use_cache=use_cache)
+    if bad is not None:
+        result["diagnostics"].insert(0, bad)
+    lines = text.split("\n")
+    levels = cache_levels(options)
+    sup = Suppressions.scan(text)
+    findings: list[Diagnostic] = []
+    for line, col, kind in sup.unknown:
+        findings.append(UnknownSuppression(Span(line, col, line, col + len(kind)), kind=kind, known=", ".join(KINDS)))
+    raw: list[tuple[Diagnostic, list[int]]] = []
+    nests = result.get("nests", [])
+    for n in nests:
+        outer_lines = _suppress_lines(sup, _outer_loop(n), lines)
+        for d in budget_findings(n, budgets, options, lines, levels):
+            raw.append((d, outer_lines + sup.lines_for(d.span.line, d.span.end_line)))
+    rev, origin = baseline_rev(args, budgets, path, git)
+    if rev is not None:
+        old_nests, problem = _baseline_nests(path, rev, origin, git, options, use_cache)
+        if problem:
+            findings.append(BaselineUnavailable(Span(1, 1, 1, 1), reason=problem))
+        for i, j in match_nests(old_nests, nests):
+            n = nests[j]
+            outer_lines = _suppress_lines(sup, _outer_loop(n), lines)
+            for d in regression_findings(old_nests[i], n, budgets, options, lines, levels, rev):
+                raw.append((d, outer_lines + sup.lines_for(d.span.line, d.span.end_line)))
+    for d, ls in raw:
+        if not sup.allows(d.code, ls):
+            findings.append(d)
+    for d in findings:
+        d.path = path
+    tool_errors = [d for d in result.get("diagnostics", []) if str(d.get("code", "")).startswith("TC9")]
+    return FileCheck(path, result, findings, tool_errors, dict(options.at))
+
+
+def _suppress_lines(sup: Suppressions, loop: dict[str, Any], lines: list[str]) -> list[int]:
+    span = _loop_span(loop, lines)
+    return sup.lines_for(span.line, span.end_line)
+
+
+class BaselineError(Exception):
+    """An explicit --baseline that cannot be used (exit status 2)."""
+
+
+def _baseline_nests(path: str, rev: str, origin: str, git: Git, options: Any,
+                    use_cache: bool) -> tuple[list[dict[str, Any]], str | None]:
+    """The nests of the baseline version of `path` (empty when the file is new there).
+
+    A revision from the command line that cannot be used is an error (exit
+    2); one from the configuration gives a TC630 warning; the default one
+    (HEAD) silently means nothing to compare with, e.g. before the first commit.
+    """
+    from tripcount.cache import analyze_file_cached
+
+    def problem(reason: str) -> tuple[list[dict[str, Any]], str | None]:
+        if origin == "cli":
+            raise BaselineError(f"--baseline {rev}: {reason}")
+        return [], (f"baseline = '{rev}' in the configuration: {reason}" if origin == "config" else None)
+
+    try:
+        top = git.toplevel(os.path.dirname(os.path.abspath(path)))
+        if top is None:
+            return problem(f"{path} is not in a git work tree")
+        commit = git.resolve(top, rev)
+        if commit is None:
+            return problem(f"no such revision in {top}")
+        old_text = git.show(top, commit, path)
+    except GitError as exc:
+        return problem(str(exc))
+    if old_text is None:
+        return [], None  # a new file: budgets only
+    old = analyze_file_cached(path, old_text, options, use_cache=use_cache)
+    return old.get("nests", []), None
+
+
+def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
+    """`tripcount check [FILES...]`; returns the exit status."""
+    use_cache = not getattr(args, "no_cache", False)
+    git = Git()
+    paths = list(getattr(args, "paths", []) or [])
+    if not paths:
+        paths = _staged_sources(git)
+        if not paths:
+            stderr.write("tripcount check: nothing to check (give C files, or stage some in git)\n")
+            return EXIT_OK if git.toplevel(os.getcwd()) is not None else EXIT_USAGE
+    missing = [p for p in paths if not os.path.exists(p)]
+    if missing:
+        stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
+        return EXIT_USAGE
+    files = expand_paths(paths)
+    checks: list[FileCheck] = []
+    status = EXIT_OK
+    for path in files:
+        try:
+            checks.append(check_file(path, args, git, use_cache))
+        except OSError as exc:
+            stderr.write(f"tripcount: error: cannot read {path}: {exc.strerror or exc}\n")
+            status = EXIT_USAGE
+        except BaselineError as exc:
+            stderr.write(f"tripcount: error: {exc}\n")
+            return EXIT_USAGE
+    n_find = sum(1 for c in checks for d in c.findings if d.severity == "error")
+    if n_find and status == EXIT_OK:
+        status = EXIT_FINDINGS
+    if any(c.tool_errors for c in checks):
+        status = EXIT_USAGE
+    out = stdout
+    if getattr(args, "output", None):
+        out = open(args.output, "w", encoding="utf-8")
+    try:
+        write_results(checks, getattr(args, "format", "text"), out, args)
+    finally:
+        if out is not stdout:
+            out.close()
+    n_nests = sum(len(c.result.get("nests", [])) for c in checks)
+    if n_find:
+        stderr.write(f"tripcount check: {n_find} finding(s) in {len(checks)} file(s), {n_nests} nest(s); "
+                     "see `tripcount: allow` comments to accept one on purpose\n")
+    elif status == EXIT_OK:
+        stderr.write(f"tripcount check: {len(checks)} file(s), {n_nests} nest(s) within budget\n")
+    return status
+
+
+def shown_diagnostics(c: FileCheck) -> list[dict[str, Any]]:
+    """What the gate reports for a file: its findings and the analysis errors that limit them."""
+    out = [d.to_dict() for d in c.findings]
+    out += [d for d in c.result.get("diagnostics", []) if d.get("severity") == "error"]
+    return sorted(out, key=lambda d: (d["line"], d["column"], d["code"]))
+
+
+def write_results(checks: list[FileCheck], fmt: str, out: TextIO, args: argparse.Namespace) -> None:
+    """Render the findings: compiler-style lines, the JSON report, or SARIF."""
+    if fmt == "text":
+        for c in checks:
+            for d in shown_diagnostics(c):
+                out.write(f"{c.path}:{d['line']}:{d['column']}: {d['severity']}: {d['message']} [{d['code']}]\n")
+        return
+    report = check_report(checks, args)
+    if fmt == "json":
+        json.dump(report, out, indent=2)
+        out.write("\n")
+        return
+    from tripcount.report.sarif import SarifReporter
+
+    SarifReporter(out).write({**report, "files": [
+        {"path": c.path, "nests": [], "diagnostics": shown_diagnostics(c)} for c in checks]})
+
+
+def check_report(checks: list[FileCheck], args: argparse.Namespace) -> dict[str, Any]:
+    """The JSON report of a check run: the analysis of each file with the findings added."""
+    from tripcount import __version__
+
+    files = []
+    at: dict[str, int] = {}
+    for c in checks:
+        diags = list(c.result.get("diagnostics", [])) + [d.to_dict() for d in c.findings]
+        files.append({**c.result, "path": c.path,
+                      "diagnostics": sorted(diags, key=lambda d: (d["line"], d["column"], d["code"]))})
+        at.update(c.at)
+    return {"schema_version": 1, "tool": {"name": "tripcount", "version": __version__},
+            "at": at, "settings": {}, "files": files}
+
+
+if __name__ == "__main__":  # pragma: no cover - convenience for profiling
+    from tripcount.cli import main
+
+    sys.exit(main(["check", *sys.argv[1:]]))

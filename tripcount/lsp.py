@@ -1,0 +1,541 @@
+# The language server (`tripcount serve`, LSP over stdio, pygls + lsprotocol).
+#
+# Diagnostics on open, on change (debounced) and on save: the analysis'
+# own diagnostics plus the budget findings of `tripcount check` (no baseline
+# in the editor); hover on a loop header or a statement shows its count
+# formula, its value at the configured sizes, the working set and the
+# thread balance; an inlay hint after each loop header gives its trip count.
+#
+# Analyses go through the result cache and run on one worker thread, so the
+# event loop keeps answering (hover reads the last finished analysis) and
+# islpy is never entered from two threads. Positions: ours are 1-based with
+# an exclusive end, in code points; LSP's are 0-based, in the code units of
+# the negotiated position encoding (UTF-16 unless the client offers more).
+#
+# Everything but `make_server`/`serve` is plain Python on JSON data, so that
+# it can be tested without a client; the server is tested with pytest-lsp.
+
+from __future__ import annotations
+
+import argparse
+import asyncio
+import logging
+import os
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from typing import Any
+
+from tripcount import __version__
+
+log = logging.getLogger("tripcount.lsp")
+
+DEBOUNCE_S = 0.3
+MAX_LIVE_CHARS = 2 * 1024 * 1024  # larger documents are not analyzed while typing
+SEVERITY = {"error": 1, "warning": 2, "note": 3}  # lsprotocol DiagnosticSeverity values
+
+
+# --------------------------------------------------------------------------
+# Positions
+
+
+def units(text: str, encoding: str) -> int:
+    """Length of `text` in the code units of a position encoding ('utf-8', 'utf-16', 'utf-32')."""
+    if encoding == "utf-32":
+        return len(text)
+    if encoding == "utf-8":
+        return len(text.encode("utf-8", "surrogatepass"))
+    return len(text) + sum(1 for ch in text if ord(ch) > 0xFFFF)
+
+
+def to_lsp(line: int, column: int, lines: list[str], encoding: str = "utf-16") -> tuple[int, int]:
+    """Our 1-based (line, column in code points) -> LSP 0-based (line, character in code units)."""
+    ln = max(line - 1, 0)
+    if ln >= len(lines):
+        return (len(lines), 0) if lines else (0, 0)
+    text = lines[ln]
+    return ln, units(text[: max(column - 1, 0)], encoding)
+
+
+def from_lsp(line: int, character: int, lines: list[str], encoding: str = "utf-16") -> tuple[int, int]:
+    """LSP 0-based (line, character) -> our 1-based (line, column)."""
+    if line < 0:
+        return 1, 1
+    if line >= len(lines):
+        return line + 1, 1
+    text = lines[line]
+    if encoding == "utf-32":
+        return line + 1, min(character, len(text)) + 1
+    n = 0
+    for k, ch in enumerate(text):
+        if n >= character:
+            return line + 1, k + 1
+        n += units(ch, encoding)
+    return line + 1, len(text) + 1
+
+
+def _contains(d: dict[str, Any], line: int, col: int) -> bool:
+    a = (d.get("line", 0), d.get("column", 0))
+    b = (d.get("end_line", 0), d.get("end_column", 0))
+    return a <= (line, col) < b
+
+
+# --------------------------------------------------------------------------
+# Analysis of one document (no pygls)
+
+
+@dataclass
+class Analysis:
+    """The result of analyzing one version of a document."""
+
+    text: str
+    result: dict[str, Any]  # file JSON
+    findings: list[dict[str, Any]] = field(default_factory=list)  # TC6xx budget findings
+    at: dict[str, int] = field(default_factory=dict)
+    levels: dict[str, int] = field(default_factory=dict)
+    lines: list[str] = field(default_factory=list)
+    headers: dict[tuple[int, int], tuple[int, int, int, int]] = field(default_factory=dict)
+
+    def header(self, loop: dict[str, Any]) -> tuple[int, int, int, int]:
+        """(line, column, end_line, end_column) of a loop's `for (...)`."""
+        key = (loop.get("line", 1), loop.get("column", 1))
+        if key not in self.headers:
+            from tripcount.check import header_span
+
+            s = header_span(self.lines, *key)
+            self.headers[key] = (s.line, s.column, s.end_line, s.end_column)
+        return self.headers[key]
+
+
+def _default_args() -> argparse.Namespace:
+    from tripcount.cli import build_parser
+
+    return build_parser().parse_args(["check"])
+
+
+def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Analysis:
+    """Analyze a document's text with the configuration found from its path."""
+    from tripcount.cache import analyze_file_cached
+    from tripcount.check import (
+        Suppressions,
+        budget_findings,
+        budgets_from,
+        cache_levels,
+        effective_table,
+    )
+    from tripcount.cli import options_from
+    from tripcount.config import Config, load_config
+
+    where = path or os.getcwd()
+    config = load_config(where)
+    table = effective_table(config, where) if path else dict(config.table)
+    budgets = budgets_from(table, config.path)
+    options = options_from(_default_args(), Config(path=config.path, table=table))
+    result = analyze_file_cached(path or "<untitled>", text, options, use_cache=use_cache)
+    lines = text.split("\n")
+    levels = cache_levels(options)
+    a = Analysis(text=text, result=result, at=dict(options.at), levels=levels, lines=lines)
+    if budgets.any():
+        sup = Suppressions.scan(text)
+        for n in result.get("nests", []):
+            outer = next((lp for lp in n.get("loops", []) if lp.get("parent") is None), None)
+            base = sup.lines_for(outer["line"]) if outer else []
+            try:
+                found = budget_findings(n, budgets, options, lines, levels)
+            except ValueError as exc:  # e.g. a budget naming a cache level the machine lacks
+                a.findings.append({"line": n["line"], "column": n["column"], "end_line": n["line"],
+                                   "end_column": n["column"] + 3, "severity": "warning", "code": "TC604",
+                                   "message": f"budgets not checked: {exc}"})
+                continue
+            for d in found:
+                if not sup.allows(d.code, base + sup.lines_for(d.span.line, d.span.end_line)):
+                    a.findings.append(d.to_dict())
+    return a
+
+
+def lsp_diagnostics(a: Analysis, encoding: str = "utf-16") -> list[dict[str, Any]]:
+    """LSP Diagnostic objects (as dicts) for an analysis."""
+    out = []
+    for d in list(a.result.get("diagnostics", [])) + a.findings:
+        sl, sc = to_lsp(d.get("line", 1), d.get("column", 1), a.lines, encoding)
+        el, ec = to_lsp(d.get("end_line", d.get("line", 1)), d.get("end_column", d.get("column", 1)),
+                        a.lines, encoding)
+        if (el, ec) < (sl, sc):
+            el, ec = sl, sc
+        out.append({"range": {"start": {"line": sl, "character": sc}, "end": {"line": el, "character": ec}},
+                    "severity": SEVERITY.get(d.get("severity", "warning"), 2), "code": d.get("code"),
+                    "source": "tripcount", "message": d.get("message", "")})
+    return out
+
+
+# --------------------------------------------------------------------------
+# Hover
+
+
+def _fmt_value(v: Any) -> str:
+    if isinstance(v, int) and not isinstance(v, bool):
+        return f"{v:,}"
+    return str(v)
+
+
+def _count_md(c: dict[str, Any] | None, unit: str = "") -> list[str]:
+    """Markdown lines of a count object: the formula (generic case first) and its value."""
+    if not c:
+        return ["unknown"]
+    pieces = c.get("pieces")
+    out = []
+    if pieces is None:
+        out.append(c.get("note") or "no formula")
+    elif not pieces:
+        out.append("`0`")
+    else:
+        first = pieces[0]
+        when = f" when `{first['when']}`" if first.get("when") not in (None, "", "true") else ""
+        out.append(f"`{first['expr']}`{unit}{when}")
+        for p in pieces[1:4]:
+            out.append(f"- `{p['expr']}` when `{p['when']}`")
+        if len(pieces) > 4:
+            out.append(f"- ... {len(pieces) - 4} more case(s)")
+    if c.get("value") is not None:
+        out[0] += f" = **{_fmt_value(c['value'])}**{unit}"
+    return out
+
+
+def _ws_md(ws: dict[str, Any], levels: dict[str, int]) -> list[str]:
+    from tripcount.check import fmt_bytes, level_of, working_set_bytes
+
+    out = [f"**working set** ({ws.get('scope', 'this loop')}): " + _count_md(ws.get("bytes"), " bytes")[0]]
+    size = working_set_bytes(ws)
+    if size is not None:
+        out.append(f"occupies {fmt_bytes(size)} in whole cache lines: fits {level_of(size, levels)} "
+                   "(model estimate)")
+    return out
+
+
+def _parallel_md(par: dict[str, Any]) -> list[str]:
+    bits = []
+    if par.get("directive"):
+        bits.append(f"`omp {par['directive']}`")
+    if par.get("schedule"):
+        sched = par["schedule"] + (f", {par['chunk']}" if par.get("chunk") not in (None, "") else "")
+        bits.append(f"schedule({sched})")
+    if par.get("threads"):
+        bits.append(f"{par['threads']} threads")
+    line = "**balance**: " + ", ".join(bits) if bits else "**balance**"
+    if isinstance(par.get("imbalance"), (int, float)):
+        line += f"; imbalance {par['imbalance']:.3g} (busiest thread / mean)"
+        if isinstance(par.get("efficiency"), (int, float)):
+            line += f", efficiency {par['efficiency']:.0%}"
+    out = [line]
+    if par.get("recommendation"):
+        out.append(str(par["recommendation"]))
+    return out
+
+
+def _at_md(at: dict[str, int]) -> str:
+    return ("values at " + ", ".join(f"{k}={v}" for k, v in at.items())) if at else \
+        "give sizes (`at` in [tool.tripcount]) for values"
+
+
+def hover_at(a: Analysis, line: int, column: int) -> str | None:
+    """Markdown hover for our 1-based position, or None when nothing is there."""
+    best_stmt = None
+    for n in a.result.get("nests", []):
+        for s in n.get("statements", []):
+            if _contains(s, line, column):
+                size = (s["end_line"] - s["line"], s["end_column"] - s["column"])
+                if best_stmt is None or size < best_stmt[0]:
+                    best_stmt = (size, n, s)
+    if best_stmt is not None:
+        _, n, s = best_stmt
+        text = " ".join(str(s.get("text", "")).split())
+        if len(text) > 80:
+            text = text[:77] + "..."
+        md = [f"**{s['id']}** `{text}` in `{n.get('function', '?')}()`", "",
+              "**runs** " + "\n".join(_count_md(s.get("count")))]
+        fl = s.get("flops")
+        if isinstance(fl, dict) and fl.get("per_execution"):
+            md += ["", f"**flops** {fl['per_execution']} per run; " + _count_md(fl)[0] + " in all"]
+        md += ["", f"_{_at_md(a.at)}_"]
+        return "\n".join(md)
+    best_loop = None
+    for n in a.result.get("nests", []):
+        for lp in n.get("loops", []):
+            hl, hc, hel, hec = a.header(lp)
+            on_header = (hl, hc) <= (line, column) < (hel, hec)
+            on_first_line = line == lp.get("line") and column >= lp.get("column", 1)
+            if on_header or on_first_line:
+                rank = (0 if on_header else 1, -lp.get("depth", 0))
+                if best_loop is None or rank < best_loop[0]:
+                    best_loop = (rank, n, lp)
+    if best_loop is None:
+        return None
+    _, n, lp = best_loop
+    md = [f"**loop `{lp.get('var', '?')}`** (line {lp.get('line')}, depth {lp.get('depth', 0)}) "
+          f"in `{n.get('function', '?')}()`", ""]
+    md.append("**trips** " + "\n".join(_count_md(lp.get("trips"))))
+    if lp.get("depth", 0) > 0 and lp.get("trips_per_entry"):
+        md += ["", "**per entry** " + "\n".join(_count_md(lp.get("trips_per_entry")))]
+    if isinstance(lp.get("working_set"), dict):
+        md += [""] + _ws_md(lp["working_set"], a.levels)
+    if isinstance(lp.get("parallel"), dict):
+        md += [""] + _parallel_md(lp["parallel"])
+    if lp.get("parent") is None:
+        from tripcount.check import nest_work
+
+        degree, leads, who = nest_work(n)
+        if degree is not None:
+            md += ["", f"**work** of the nest: degree {degree} ({who} ~ `{' + '.join(leads)}`)"]
+        if isinstance(n.get("flops"), dict):
+            md += ["**flops** " + _count_md(n["flops"])[0]]
+    md += ["", f"_{_at_md(a.at)}_"]
+    return "\n".join(md)
+
+
+# --------------------------------------------------------------------------
+# Inlay hints
+
+
+def _short(c: dict[str, Any] | None) -> str | None:
+    if not c or not c.get("pieces"):
+        return None
+    expr = c["pieces"][0]["expr"]
+    return expr if len(expr) <= 40 else (c.get("leading") and f"~{c['leading']}") or expr[:37] + "..."
+
+
+def inlay_hints(a: Analysis, first_line: int = 1, last_line: int | None = None) -> list[dict[str, Any]]:
+    """(line, column, label) hints after each loop header in [first_line, last_line] (1-based)."""
+    out = []
+    for n in a.result.get("nests", []):
+        for lp in n.get("loops", []):
+            if lp.get("line", 0) < first_line or (last_line is not None and lp.get("line", 0) > last_line):
+                continue
+            per = lp.get("trips_per_entry") if lp.get("depth", 0) > 0 else lp.get("trips")
+            label = _short(per)
+            if label is None:
+                continue
+            text = f"{label} trips"
+            if lp.get("depth", 0) > 0:
+                text += " per entry"
+                total = lp.get("trips") or {}
+                if total.get("value") is not None:
+                    text += f" ({_fmt_value(total['value'])} in all)"
+            elif (lp.get("trips") or {}).get("value") is not None:
+                text += f" = {_fmt_value(lp['trips']['value'])}"
+            _l, _c, el, ec = a.header(lp)
+            out.append({"line": el, "column": ec, "label": text})
+    return out
+
+
+# --------------------------------------------------------------------------
+# The server
+
+
+def _path_of(uri: str) -> str | None:
+    from pygls.uris import to_fs_path
+
+    if not uri.startswith("file:"):
+        return None
+    try:
+        return to_fs_path(uri)
+    except Exception:  # a malformed URI: analyze without a path
+        return None
+
+
+def make_server() -> Any:
+    """The pygls LanguageServer with tripcount's features registered."""
+    from types import SimpleNamespace
+
+    from lsprotocol import types
+    from pygls.exceptions import JsonRpcException
+    from pygls.lsp.server import LanguageServer
+    from pygls.protocol import LanguageServerProtocol
+
+    class Protocol(LanguageServerProtocol):
+        """Answers requests whose parameters cannot be read, and ignores non-messages.
+
+        pygls drops a request it cannot deserialize without answering, which
+        leaves the client waiting; JSON-RPC wants an error response.
+        """
+
+        def structure_message(self, data: Any) -> Any:
+            try:
+                return super().structure_message(data)
+            except JsonRpcException as exc:
+                if isinstance(data, dict) and "id" in data and "method" in data:
+                    self._send_response(data["id"], error=types.ResponseError(code=exc.code, message=exc.message))
+                    return SimpleNamespace(jsonrpc="answered")  # handle_message skips it
+                raise
+
+        def handle_message(self, message: Any) -> Any:
+            if not hasattr(message, "jsonrpc"):  # JSON that is no JSON-RPC message (a list, a number)
+                log.warning("ignored a message that is not JSON-RPC")
+                return None
+            return super().handle_message(message)
+
+    class Server(LanguageServer):
+        def __init__(self) -> None:
+            super().__init__("tripcount", __version__, text_document_sync_kind=types.TextDocumentSyncKind.Incremental,
+                             protocol_cls=Protocol)
+            self.analyses: dict[str, Analysis] = {}
+            self.timers: dict[str, asyncio.Task[Any]] = {}
+            self.running: dict[str, asyncio.Future[Any]] = {}
+            self.pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="tripcount-analysis")
+
+        def encoding(self) -> str:
+            try:
+                enc = self.workspace.position_encoding
+            except Exception:  # before initialize
+                return "utf-16"
+            return str(getattr(enc, "value", enc) or "utf-16")
+
+        def text_of(self, uri: str) -> tuple[str, int | None] | None:
+            try:
+                doc = self.workspace.text_documents.get(uri)
+            except Exception:  # before initialize
+                return None
+            if doc is None:
+                return None
+            return doc.source, doc.version
+
+        def publish(self, uri: str, diags: list[dict[str, Any]], version: int | None) -> None:
+            items = [types.Diagnostic(
+                range=types.Range(start=types.Position(**d["range"]["start"]), end=types.Position(**d["range"]["end"])),
+                message=d["message"], severity=types.DiagnosticSeverity(d["severity"]), code=d["code"],
+                source=d["source"]) for d in diags]
+            self.text_document_publish_diagnostics(
+                types.PublishDiagnosticsParams(uri=uri, diagnostics=items, version=version))
+
+        def schedule(self, uri: str, delay: float) -> None:
+            old = self.timers.pop(uri, None)
+            if old is not None:
+                old.cancel()
+            self.timers[uri] = asyncio.ensure_future(self._later(uri, delay))
+
+        async def _later(self, uri: str, delay: float) -> None:
+            if delay > 0:
+                await asyncio.sleep(delay)
+            await self.run_analysis(uri)
+
+        async def run_analysis(self, uri: str) -> None:
+            snap = self.text_of(uri)
+            if snap is None:
+                return
+            text, version = snap
+            if len(text) > MAX_LIVE_CHARS:
+                self.publish(uri, [{"range": {"start": {"line": 0, "character": 0}, "end": {"line": 0, "character": 0}},
+                                    "severity": 3, "code": None, "source": "tripcount",
+                                    "message": f"document too large for live analysis ({len(text) // 1024} KiB); "
+                                               "run `tripcount analyze` on it"}], version)
+                return
+            prev = self.analyses.get(uri)
+            if prev is not None and prev.text == text:
+                self.publish(uri, lsp_diagnostics(prev, self.encoding()), version)
+                return
+            loop = asyncio.get_running_loop()
+            fut = loop.run_in_executor(self.pool, _safe_analyze, _path_of(uri), text)
+            self.running[uri] = fut
+            try:
+                a = await fut
+            finally:
+                if self.running.get(uri) is fut:
+                    del self.running[uri]
+            self.analyses[uri] = a
+            now = self.text_of(uri)
+            if now is not None and now[0] == text:  # still the current text: its diagnostics hold
+                self.publish(uri, lsp_diagnostics(a, self.encoding()), version)
+                try:
+                    caps = self.client_capabilities.workspace
+                    if caps and caps.inlay_hint and caps.inlay_hint.refresh_support:
+                        self.workspace_inlay_hint_refresh(None)
+                except Exception:  # refresh is a courtesy
+                    pass
+
+        async def current(self, uri: str) -> Analysis | None:
+            """The latest analysis; before the first one, waits (boundedly) for it."""
+            if uri not in self.analyses:
+                pending = self.timers.get(uri)
+                if pending is not None and not pending.done():
+                    try:
+                        await asyncio.wait_for(asyncio.shield(pending), timeout=30)
+                    except Exception:  # still running or failed: answer with what there is
+                        pass
+            return self.analyses.get(uri)
+
+    server = Server()
+
+    @server.feature(types.TEXT_DOCUMENT_DID_OPEN)
+    def did_open(ls: Server, params: types.DidOpenTextDocumentParams) -> None:
+        ls.schedule(params.text_document.uri, 0)
+
+    @server.feature(types.TEXT_DOCUMENT_DID_CHANGE)
+    def did_change(ls: Server, params: types.DidChangeTextDocumentParams) -> None:
+        ls.schedule(params.text_document.uri, DEBOUNCE_S)
+
+    @server.feature(types.TEXT_DOCUMENT_DID_SAVE)
+    def did_save(ls: Server, params: types.DidSaveTextDocumentParams) -> None:
+        ls.schedule(params.text_document.uri, 0)
+
+    @server.feature(types.TEXT_DOCUMENT_DID_CLOSE)
+    def did_close(ls: Server, params: types.DidCloseTextDocumentParams) -> None:
+        uri = params.text_document.uri
+        t = ls.timers.pop(uri, None)
+        if t is not None:
+            t.cancel()
+        ls.analyses.pop(uri, None)
+        ls.publish(uri, [], None)
+
+    @server.feature(types.TEXT_DOCUMENT_HOVER)
+    async def hover(ls: Server, params: types.HoverParams) -> types.Hover | None:
+        uri = params.text_document.uri
+        a = await ls.current(uri)
+        if a is None:
+            return None
+        line, col = from_lsp(params.position.line, params.position.character, a.lines, ls.encoding())
+        md = hover_at(a, line, col)
+        if md is None:
+            return None
+        return types.Hover(contents=types.MarkupContent(kind=types.MarkupKind.Markdown, value=md))
+
+    @server.feature(types.TEXT_DOCUMENT_INLAY_HINT, types.InlayHintOptions(resolve_provider=False))
+    async def inlay_hint(ls: Server, params: types.InlayHintParams) -> list[types.InlayHint]:
+        a = await ls.current(params.text_document.uri)
+        if a is None:
+            return []
+        enc = ls.encoding()
+        out = []
+        for h in inlay_hints(a, params.range.start.line + 1, params.range.end.line + 1):
+            ln, ch = to_lsp(h["line"], h["column"], a.lines, enc)
+            out.append(types.InlayHint(position=types.Position(line=ln, character=ch), label=h["label"],
+                                       padding_left=True))
+        return out
+
+    return server
+
+
+def _safe_analyze(path: str | None, text: str) -> Analysis:
+    """analyze_document that never raises: a failure becomes one diagnostic."""
+    try:
+        return analyze_document(path, text)
+    except Exception as exc:  # configuration errors, internal errors: keep serving
+        log.exception("analysis failed")
+        lines = text.split("\n")
+        diag = {"line": 1, "column": 1, "end_line": 1, "end_column": 1, "severity": "error", "code": "TC900",
+                "message": f"tripcount could not analyze this file: {type(exc).__name__}: {exc}"}
+        return Analysis(text=text, result={"path": path or "<untitled>", "nests": [], "diagnostics": [diag]},
+                        lines=lines)
+
+
+def serve() -> int:
+    """Run the language server on stdin/stdout until the client exits."""
+    logging.basicConfig(level=os.environ.get("TRIPCOUNT_LSP_LOG", "WARNING").upper(),
+                        format="tripcount-lsp %(levelname)s %(message)s")
+    try:
+        server = make_server()
+    except ImportError as exc:  # pygls/lsprotocol are the optional `lsp` extra
+        import sys
+
+        sys.stderr.write(f"tripcount: error: the language server needs pygls and lsprotocol ({exc}); "
+                         "install them with: pip install 'tripcount[lsp]'\n")
+        return 2
+    server.start_io()
+    return 0
