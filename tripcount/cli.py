@@ -39,7 +39,7 @@ def add_common(p: argparse.ArgumentParser) -> None:
                    help="assumptions on the parameters (affine comparisons, comma separated)")
     p.add_argument("--format", choices=("text", "json", "sarif"), default="text", help="output format")
     p.add_argument("-o", "--output", metavar="FILE", help="write the report to FILE instead of stdout")
-    p.add_argument("--time-limit", type=float, metavar="SECONDS", help="engine time limit per formula (default 20)")
+    p.add_argument("--time-limit", type=float, metavar="SECONDS", help="time limit per nest (default 20)")
     p.add_argument("--max-pieces", type=int, metavar="K", help="cap on pieces of one formula (default 256)")
     p.add_argument("--line-size", type=int, metavar="BYTES", help="cache line size (default: host, else 64)")
     p.add_argument("--cache", action="append", default=[], metavar="L1=48KiB",
@@ -118,7 +118,7 @@ def options_from(args: argparse.Namespace, config: Config) -> Options:
     o.imbalance_threshold = float(cfg.get("imbalance_threshold", o.imbalance_threshold))
     o.peak_gflops = cfg.get("peak_gflops")
     o.bandwidth_gbs = cfg.get("bandwidth_gbs")
-    if o.time_limit <= 0 or o.max_pieces <= 0:
+    if not (0 < o.time_limit < float("inf")) or o.max_pieces <= 0:
         raise UsageError("--time-limit and --max-pieces must be positive")
     return o
 
@@ -232,7 +232,17 @@ def settings_of(options: Options) -> dict:
 
 def main(argv: Sequence[str] | None = None, stdin: TextIO | None = None,
          stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
-    """Run tripcount with `argv` (without the program name); returns the exit status."""
+    """Run tripcount with `argv` (without the program name); returns the exit status.
+
+    Never raises: an unexpected failure becomes a one-line tool error, status 2.
+    """
+    from tripcount.guard import last_resort
+
+    return last_resort(lambda: _main(argv, stdin, stdout, stderr), stderr or sys.stderr)
+
+
+def _main(argv: Sequence[str] | None, stdin: TextIO | None,
+          stdout: TextIO | None, stderr: TextIO | None) -> int:
     stdin = stdin or sys.stdin
     stdout = stdout or sys.stdout
     stderr = stderr or sys.stderr
@@ -271,11 +281,11 @@ def main(argv: Sequence[str] | None = None, stdin: TextIO | None = None,
     except ValueError as exc:  # bad --assume and similar input
         stderr.write(f"tripcount: error: {exc}\n")
         return EXIT_USAGE
-    except BrokenPipeError:
+    except BrokenPipeError:  # the reader (e.g. `| head`) went away: not an error
         return EXIT_OK
-    except KeyboardInterrupt:
-        stderr.write("tripcount: interrupted\n")
-        return 130
+    except OSError as exc:  # e.g. -o into a directory that does not exist
+        stderr.write(f"tripcount: error: {exc.strerror or exc}: {exc.filename or ''}\n")
+        return EXIT_USAGE
     return EXIT_USAGE
 
 

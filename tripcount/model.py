@@ -117,9 +117,11 @@ class _Space:
 
     def pw(self, x: af.Lin) -> isl.PwAff:
         """The PwAff of a Lin (C division and remainder exact for every sign)."""
-        out = self.zero + x.const
+        # through isl.Val: Python ints beyond 64 bits are exact there, not in `+ int`
+        ctx = self.zero.get_ctx()
+        out = self.zero.add_constant_val(isl.Val.read_from_str(ctx, str(x.const)))
         for a, k in x.terms:
-            out = out + self._atom(a) * k
+            out = out + self._atom(a).scale_val(isl.Val.read_from_str(ctx, str(k)))
         return out
 
     def _atom(self, a: af.Atom) -> isl.PwAff:

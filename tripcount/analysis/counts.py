@@ -196,7 +196,7 @@ def verification_points(formula: engine.Piecewise, s: isl.Set, limit: int = 40) 
     import itertools
 
     for combo in itertools.islice(itertools.product(grid, repeat=len(names)), limit):
-        points.append(dict(zip(names, combo)))
+        points.append(dict(zip(names, combo, strict=True)))
     for piece in formula.pieces:
         try:
             dom = piece.domain

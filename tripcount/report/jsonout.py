@@ -9,7 +9,14 @@ import json
 from typing import Any
 
 from tripcount import __version__
-from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, Report, StatementResult
+from tripcount.analysis.results import (
+    Count,
+    FileResult,
+    LoopResult,
+    NestResult,
+    Report,
+    StatementResult,
+)
 from tripcount.ir import OmpClauses, Span
 from tripcount.report.base import Reporter
 

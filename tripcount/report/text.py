@@ -154,7 +154,7 @@ class TextReporter(Reporter):
                     per = f" ({short_formula(lr.per_entry)} per entry)"
                 row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   trips {head}{per}",
                     f"= {fmt_value(lr.trips.value)}" if lr.trips.value is not None else "")
-            for key, extra in lr.extras.items():
+            for _key, extra in lr.extras.items():
                 if hasattr(extra, "text_lines"):
                     for line in extra.text_lines():
                         w(f"{pre}    {line}\n")
@@ -183,7 +183,7 @@ class TextReporter(Reporter):
             row(f"{pre}    runs {head}", f"= {fmt_value(sr.count.value)}" if sr.count.value is not None else "")
             for line in rest:
                 w(f"{pre}      edge case: {line}\n")
-            for key, extra in sr.extras.items():
+            for _key, extra in sr.extras.items():
                 if hasattr(extra, "text_lines"):
                     for line in extra.text_lines():
                         w(f"{pre}    {line}\n")
@@ -193,7 +193,7 @@ class TextReporter(Reporter):
         for root in by_parent.get(None, []):
             walk(root, 1)
         self.write_summary(nr)
-        for key, extra in nr.extras.items():
+        for _key, extra in nr.extras.items():
             if hasattr(extra, "text_lines"):
                 for line in extra.text_lines():
                     w(f"  {line}\n")
