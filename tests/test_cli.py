@@ -93,3 +93,22 @@ def test_refusal_is_not_failure(run_cli):
 def test_python_dash_m_and_version():
     r = subprocess.run([sys.executable, "-m", "tripcount", "--version"], capture_output=True, text=True, cwd=ROOT)
     assert r.returncode == 0 and "tripcount" in r.stdout
+
+
+def test_snippet_with_refusal_points_into_the_snippet(run_cli):
+    code = "for (i = 1; i < n; i *= 2)\n  x[i] = 0;\nfor (j = 0; j < n; j++) y[j] = 1;"
+    status, out, _ = run_cli("analyze", "--code", code, "--at", "n=8", "--format", "json")
+    assert status == 0  # a refusal is a diagnostic, not a failure
+    f = json.loads(out)["files"][0]
+    (d,) = [d for d in f["diagnostics"] if d["code"] == "TC201"]
+    assert (d["line"], d["column"]) == (1, 20)  # the step `i *= 2`
+    assert f["nests"][1]["statements"][0]["count"]["value"] == 8
+
+
+def test_snippet_with_declarations_gives_bytes(run_cli):
+    code = "double a[64][64]; for (int i = 0; i < 64; i++) for (int j = 0; j < 64; j++) a[i][j] = 0.0;"
+    status, out, _ = run_cli("analyze", "--code", code, "--format", "json")
+    assert status == 0
+    nest = json.loads(out)["files"][0]["nests"][0]
+    assert nest["statements"][0]["count"]["value"] == 4096
+    assert nest["footprint"]["bytes"]["value"] == 64 * 64 * 8
