@@ -254,6 +254,27 @@ def _frame(obj) -> bytes:
     return b"Content-Length: %d\r\n\r\n" % len(body) + body
 
 
+@needs_pipeline
+@pytest.mark.asyncio
+async def test_rapid_changes_are_debounced(client: LanguageClient):
+    uri = await _open(client, "typing.c", HARBOUR)
+    text = HARBOUR
+    for v in range(2, 8):  # six edits 50 ms apart: one analysis after the last
+        text = text.replace("Velin harbour imaging", f"Velin harbour imaging {v}")
+        client.text_document_did_change(types.DidChangeTextDocumentParams(
+            text_document=types.VersionedTextDocumentIdentifier(uri=uri, version=v),
+            content_changes=[types.TextDocumentContentChangeWholeDocument(text=text)]))
+        await asyncio.sleep(0.05)
+    published = 0
+    while True:
+        try:
+            await asyncio.wait_for(client.wait_for_notification("textDocument/publishDiagnostics"), 3)
+        except asyncio.TimeoutError:
+            break
+        published += 1
+    assert 1 <= published <= 2
+
+
 class RawServer:
     """The server as a subprocess, spoken to with raw bytes (for input no client would send)."""
 

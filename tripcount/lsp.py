@@ -378,7 +378,7 @@ def make_server() -> Any:
                              protocol_cls=Protocol)
             self.analyses: dict[str, Analysis] = {}
             self.timers: dict[str, asyncio.Task[Any]] = {}
-            self.running: dict[str, asyncio.Future[Any]] = {}
+            self.active: dict[str, asyncio.Task[Any]] = {}  # the latest scheduled analysis of each document
             self.pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="tripcount-analysis")
 
         def encoding(self) -> str:
@@ -405,18 +405,22 @@ def make_server() -> Any:
             self.text_document_publish_diagnostics(
                 types.PublishDiagnosticsParams(uri=uri, diagnostics=items, version=version))
 
-        def schedule(self, uri: str, delay: float) -> None:
+        def schedule(self, uri: str, delay: float, force: bool = False) -> None:
+            """Analyze `uri` after `delay` seconds unless another change comes first (the debounce)."""
             old = self.timers.pop(uri, None)
             if old is not None:
-                old.cancel()
-            self.timers[uri] = asyncio.ensure_future(self._later(uri, delay))
+                old.cancel()  # only waiting timers are in `timers`; a started analysis runs to its end
+            task = asyncio.ensure_future(self._later(uri, delay, force))
+            self.timers[uri] = self.active[uri] = task
 
-        async def _later(self, uri: str, delay: float) -> None:
+        async def _later(self, uri: str, delay: float, force: bool) -> None:
             if delay > 0:
                 await asyncio.sleep(delay)
-            await self.run_analysis(uri)
+            if self.timers.get(uri) is asyncio.current_task():
+                del self.timers[uri]
+            await self.run_analysis(uri, force)
 
-        async def run_analysis(self, uri: str) -> None:
+        async def run_analysis(self, uri: str, force: bool = False) -> None:
             snap = self.text_of(uri)
             if snap is None:
                 return
@@ -428,20 +432,16 @@ def make_server() -> Any:
                                                "run `tripcount analyze` on it"}], version)
                 return
             prev = self.analyses.get(uri)
-            if prev is not None and prev.text == text:
+            if prev is not None and prev.text == text and not force:
                 self.publish(uri, lsp_diagnostics(prev, self.encoding()), version)
                 return
             loop = asyncio.get_running_loop()
-            fut = loop.run_in_executor(self.pool, _safe_analyze, _path_of(uri), text)
-            self.running[uri] = fut
-            try:
-                a = await fut
-            finally:
-                if self.running.get(uri) is fut:
-                    del self.running[uri]
-            self.analyses[uri] = a
+            a = await loop.run_in_executor(self.pool, _safe_analyze, _path_of(uri), text)
             now = self.text_of(uri)
-            if now is not None and now[0] == text:  # still the current text: its diagnostics hold
+            if now is None:  # closed meanwhile
+                return
+            self.analyses[uri] = a  # kept for hover even when the text moved on
+            if now[0] == text:  # still the current text: its diagnostics hold
                 self.publish(uri, lsp_diagnostics(a, self.encoding()), version)
                 try:
                     caps = self.client_capabilities.workspace
@@ -453,7 +453,7 @@ def make_server() -> Any:
         async def current(self, uri: str) -> Analysis | None:
             """The latest analysis; before the first one, waits (boundedly) for it."""
             if uri not in self.analyses:
-                pending = self.timers.get(uri)
+                pending = self.active.get(uri)
                 if pending is not None and not pending.done():
                     try:
                         await asyncio.wait_for(asyncio.shield(pending), timeout=30)
@@ -473,7 +473,7 @@ def make_server() -> Any:
 
     @server.feature(types.TEXT_DOCUMENT_DID_SAVE)
     def did_save(ls: Server, params: types.DidSaveTextDocumentParams) -> None:
-        ls.schedule(params.text_document.uri, 0)
+        ls.schedule(params.text_document.uri, 0, force=True)  # the configuration may have changed too
 
     @server.feature(types.TEXT_DOCUMENT_DID_CLOSE)
     def did_close(ls: Server, params: types.DidCloseTextDocumentParams) -> None:
@@ -481,6 +481,7 @@ def make_server() -> Any:
         t = ls.timers.pop(uri, None)
         if t is not None:
             t.cancel()
+        ls.active.pop(uri, None)
         ls.analyses.pop(uri, None)
         ls.publish(uri, [], None)
 

@@ -202,8 +202,8 @@ def verification_points(formula: engine.Piecewise, s: isl.Set, limit: int = 40) 
             dom = piece.domain
             box = isl.Set.universe(dom.get_space())
             for i in range(len(names)):
-                box = box.lower_bound_val(isl.dim_type.param, i, isl.Val.int_from_si(dom.get_ctx(), -4))
-                box = box.upper_bound_val(isl.dim_type.param, i, isl.Val.int_from_si(dom.get_ctx(), 24))
+                box = box.lower_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(dom.get_ctx(), str(-4)))
+                box = box.upper_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(dom.get_ctx(), str(24)))
             sample = dom.intersect(box).sample_point()
             if sample.is_void():
                 continue
@@ -246,7 +246,7 @@ def _in_context(context: isl.Set, pt: Mapping[str, int]) -> bool:
     for i in range(s.dim(isl.dim_type.param)):
         name = s.get_dim_name(isl.dim_type.param, i)
         if name in pt:
-            s = s.fix_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), pt[name]))
+            s = s.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(s.get_ctx(), str(pt[name])))
     return not s.is_empty()
 
 

@@ -362,7 +362,7 @@ def fix_params(s: isl.Set, values: Mapping[str, int]) -> isl.Set | None:
     for i, name in enumerate(_params(s)):
         if name not in values:
             return None
-        s = s.fix_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), int(values[name])))
+        s = s.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(s.get_ctx(), str(int(values[name]))))
     return s
 
 
@@ -586,7 +586,7 @@ def _outer_part(dom: isl.Set, fixed: Sequence[str], sizes: Mapping[str, int]) ->
             continue
         if nm not in sizes:
             return None
-        dom = dom.fix_val(isl.dim_type.param, i, isl.Val.int_from_si(dom.get_ctx(), int(sizes[nm])))
+        dom = dom.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(dom.get_ctx(), str(int(sizes[nm]))))
     for k, nm in enumerate(fixed):
         idx = _params(dom).index(nm)
         dom = dom.move_dims(isl.dim_type.set, k, isl.dim_type.param, idx, 1)
@@ -610,7 +610,7 @@ def _fix_dims(s: isl.Set, names: Sequence[str], values: Mapping[str, int]) -> is
     """`s` with the named set dimensions fixed."""
     for k, nm in enumerate(names):
         if nm in values:
-            s = s.fix_val(isl.dim_type.set, k, isl.Val.int_from_si(s.get_ctx(), int(values[nm])))
+            s = s.fix_val(isl.dim_type.set, k, isl.Val.read_from_str(s.get_ctx(), str(int(values[nm]))))
     return s
 
 
@@ -1194,7 +1194,7 @@ def _in_context(context: isl.Set | None, values: Mapping[str, int]) -> bool:
     s = context
     for i, name in enumerate(_params(s)):
         if name in values:
-            s = s.fix_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), int(values[name])))
+            s = s.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(s.get_ctx(), str(int(values[name]))))
     return not s.is_empty()
 
 
@@ -1206,7 +1206,7 @@ def _context_min(context: isl.Set, param: str, others: Mapping[str, int]) -> int
         return 0
     for i, name in enumerate(names):
         if name in others:
-            s = s.fix_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), int(others[name])))
+            s = s.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(s.get_ctx(), str(int(others[name]))))
     k = names.index(param)
     s = s.move_dims(isl.dim_type.set, 0, isl.dim_type.param, k, 1)
     try:
@@ -1223,8 +1223,8 @@ def _context_min(context: isl.Set, param: str, others: Mapping[str, int]) -> int
 def _sample(context: isl.Set, params: list[str], lo: int, hi: int) -> dict[str, int] | None:
     s = context
     for i in range(s.dim(isl.dim_type.param)):
-        s = s.lower_bound_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), lo))
-        s = s.upper_bound_val(isl.dim_type.param, i, isl.Val.int_from_si(s.get_ctx(), hi))
+        s = s.lower_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(s.get_ctx(), str(lo)))
+        s = s.upper_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(s.get_ctx(), str(hi)))
     pt = s.sample_point()
     if pt.is_void():
         return None

@@ -267,12 +267,12 @@ def _relaxed(b: isl.BasicSet, x: str, cons) -> isl.BasicSet | None:
             aff = c.get_aff()
             lower, upper = (aff, aff.neg()) if a > 0 else (aff.neg(), aff)
             res = res.add_constraint(isl.Constraint.inequality_from_aff(lower))
-            upper = upper.add_constant_val(isl.Val.int_from_si(ctx, abs(a)))
+            upper = upper.add_constant_val(isl.Val.read_from_str(ctx, str(abs(a))))
             res = res.add_constraint(isl.Constraint.inequality_from_aff(upper))
         elif a > 0:
             res = res.add_constraint(c)
         else:
-            aff = c.get_aff().add_constant_val(isl.Val.int_from_si(ctx, -a))
+            aff = c.get_aff().add_constant_val(isl.Val.read_from_str(ctx, str(-a)))
             res = res.add_constraint(isl.Constraint.inequality_from_aff(aff))
     del k
     return res
