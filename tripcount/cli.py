@@ -236,9 +236,23 @@ def main(argv: Sequence[str] | None = None, stdin: TextIO | None = None,
 
     Never raises: an unexpected failure becomes a one-line tool error, status 2.
     """
-    from tripcount.guard import last_resort
-
-    return last_resort(lambda: _main(argv, stdin, stdout, stderr), stderr or sys.stderr)
+    err = stderr or sys.stderr
+    try:
+        return _main(argv, stdin, stdout, stderr)
+    except KeyboardInterrupt:
+        err.write("tripcount: interrupted\n")
+        return 130
+    except SystemExit as exc:  # argparse's --help/--version
+        return exc.code if isinstance(exc.code, int) else EXIT_OK
+    except BaseException as exc:  # noqa: BLE001 - the last resort: never a traceback
+        # (kept free of islpy imports: the cached `check` path must stay light)
+        tb = exc.__traceback__
+        while tb is not None and tb.tb_next is not None:
+            tb = tb.tb_next
+        where = f" at {os.path.basename(tb.tb_frame.f_code.co_filename)}:{tb.tb_lineno}" if tb else ""
+        err.write(f"tripcount: error: internal error ({type(exc).__name__}: {str(exc)[:200]}{where}); "
+                  "please report it\n")
+        return EXIT_USAGE
 
 
 def _main(argv: Sequence[str] | None, stdin: TextIO | None,
