@@ -48,6 +48,11 @@ def run_check(workdir: Path, env: dict[str, str], *extra: str) -> tuple[float, i
     return time.perf_counter() - t0, p.returncode, p.stdout + p.stderr
 
 
+def say(text: str) -> None:
+    """Progress on stderr (a cold run can take long while the engine is slow)."""
+    print(text, file=sys.stderr, flush=True)
+
+
 def median(xs: list[float]) -> float:
     return statistics.median(xs) if xs else float("nan")
 
@@ -143,6 +148,7 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--cold-repeat", type=int, default=1, help="repeats of the cold measurement")
     p.add_argument("--hover-rounds", type=int, default=3)
     p.add_argument("--json", action="store_true", help="print the figures as JSON")
+    p.add_argument("--no-uncached", action="store_true", help="skip the --no-cache run (as slow as a cold one)")
     args = p.parse_args(argv)
     with tempfile.TemporaryDirectory(prefix="tripcount-bench-") as tmp:
         work = Path(tmp)
@@ -157,10 +163,12 @@ def main(argv: list[str] | None = None) -> int:
             env = {**base_env, "TRIPCOUNT_CACHE_DIR": str(work / f"cache-cold-{k}")}
             t, status, out = run_check(work, env)
             colds.append(t)
+            say(f"cold {t:.2f} s (exit status {status})")
         figures["cold_s"] = median(colds)
         figures["status"] = status
         env = {**base_env, "TRIPCOUNT_CACHE_DIR": str(work / "cache-cold-0")}
         figures["warm_s"] = median([run_check(work, env)[0] for _ in range(args.repeat)])
+        say(f"warm {figures['warm_s']:.2f} s")
         # a comment edit: every nest from the cache, but the file must be parsed to find them
         (work / "kernels.c").write_text("/* reviewed */\n" + text)
         figures["warm_comment_edit_s"] = run_check(work, env)[0]
@@ -169,8 +177,11 @@ def main(argv: list[str] | None = None) -> int:
         (work / "kernels.c").write_text(edited)
         figures["warm_one_nest_edit_s"] = run_check(work, env)[0]
         (work / "kernels.c").write_text(text)
-        figures["no_cache_s"] = run_check(work, env, "--no-cache")[0]
+        say(f"comment edit {figures['warm_comment_edit_s']:.2f} s, one nest edited "
+            f"{figures['warm_one_nest_edit_s']:.2f} s")
         figures.update(bench_hover(work, env, text, args.hover_rounds))
+        say(f"hover median {figures['hover_median_ms']:.1f} ms")
+        figures["no_cache_s"] = float("nan") if args.no_uncached else run_check(work, env, "--no-cache")[0]
     if args.json:
         print(json.dumps(figures, indent=2))
     else:

@@ -3,8 +3,11 @@
 
 from __future__ import annotations
 
+import atexit
 import os
+import shutil
 import sys
+import tempfile
 
 import pytest
 
@@ -15,6 +18,13 @@ CORPUS = os.path.join(ROOT, "corpus")
 
 if HERE not in sys.path:  # lets test modules import tests/oracle.py as `oracle`
     sys.path.insert(0, HERE)
+
+# The tool's own cache (results, compiled grammar) goes to a directory of this
+# test session, inherited by the subprocesses tests start, never to the user's
+# ~/.cache; tests that study the cache set their own.
+_SESSION_CACHE = tempfile.mkdtemp(prefix="tripcount-test-cache-")
+os.environ["TRIPCOUNT_CACHE_DIR"] = _SESSION_CACHE
+atexit.register(shutil.rmtree, _SESSION_CACHE, True)
 
 
 def corpus_files() -> list[str]:

@@ -74,6 +74,24 @@ def test_unwritable_cache_is_no_error(tmp_path, monkeypatch):
     assert st.get("nest", "ef" * 20) is None
 
 
+def test_prune_removes_least_recently_used(cache_dir):
+    st = cache.Store()
+    for k in range(10):
+        key = f"{k:02d}" * 20
+        st.put("nest", key, {"payload": "x" * 10_000})
+        p = cache_dir / "v1" / "nest" / key[:2] / (key + ".json")
+        os.utime(p, (1_000_000 + k, 1_000_000 + k))  # entry k used at time k
+    assert st.prune(max_bytes=10**9) == 0
+    removed = st.prune(max_bytes=60_000)
+    assert removed >= 4
+    left = sorted(p.name[:2] for p in (cache_dir / "v1" / "nest").rglob("*.json"))
+    assert left == [f"{k:02d}" for k in range(10 - len(left), 10)]  # the newest stay
+    # a hit refreshes an old entry's time, so it is kept over entries not used since
+    key = left[0] * 20
+    assert st.get("nest", key) is not None
+    assert (cache_dir / "v1" / "nest" / key[:2] / (key + ".json")).stat().st_mtime > 2_000_000
+
+
 def _writer(args):
     root, n = args
     st = cache.Store(root=root)
@@ -256,3 +274,16 @@ def test_read_source_reports_bad_bytes(tmp_path):
     p.write_bytes(b"int x;\nint \xff y;\n")
     text, diag = cache.read_source(str(p))
     assert "\ufffd" in text and diag["code"] == "TC190" and (diag["line"], diag["column"]) == (2, 5)
+
+
+def test_results_cut_short_by_time_are_not_kept():
+    # a time limit depends on the machine's load: such results are computed again
+    keep = {"code": "TC301", "message": "no closed formula for S1: more than 256 pieces"}
+    assert not cache._depends_on_time(keep)
+    for d in ({"code": "TC310", "message": "analysis of this nest stopped"},
+              {"code": "TC311", "message": "nest not analyzed"},
+              {"code": "TC900", "message": "internal error"},
+              {"code": "TC301", "message": "no closed formula for S1: time limit of 2 s exceeded (sum)"},
+              {"code": "TC402", "message": "no footprint formula: no formula within the footprint "
+                                           "analysis's time of 0.5 s per formula"}):
+        assert cache._depends_on_time(d), d

@@ -269,7 +269,7 @@ async def test_rapid_changes_are_debounced(client: LanguageClient):
     while True:
         try:
             await asyncio.wait_for(client.wait_for_notification("textDocument/publishDiagnostics"), 3)
-        except asyncio.TimeoutError:
+        except TimeoutError:
             break
         published += 1
     assert 1 <= published <= 2

@@ -453,3 +453,20 @@ def test_reading_never_raises(pieces, snippet):
 def test_arbitrary_text_never_raises(text):
     parse_text(text)
     parse_text(text, snippet=True)
+
+
+def test_compiled_grammar_is_kept_in_the_cache_directory(tmp_path, monkeypatch):
+    # the LALR tables are written once (atomically) and loaded afterwards; a
+    # corrupt file is only a miss, an unwritable directory only no cache
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "c"))
+    first = fp._compile(fp.IRBuilder())
+    files = list((tmp_path / "c").glob("grammar-*.lark"))
+    assert len(files) == 1 and not list((tmp_path / "c").glob("*.tmp"))
+    again = fp._compile(fp.IRBuilder())
+    assert again.terminals and len(again.terminals) == len(first.terminals)
+    files[0].write_bytes(b"not a grammar")
+    assert fp._compile(fp.IRBuilder()).terminals
+    blocked = tmp_path / "file"
+    blocked.write_text("x")
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(blocked / "sub"))
+    assert fp._compile(fp.IRBuilder()).terminals

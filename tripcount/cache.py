@@ -40,25 +40,18 @@ from typing import Any, TextIO
 
 from tripcount import __version__
 from tripcount.options import Options
+from tripcount.paths import cache_dir
 
 LAYOUT = "v1"
 KINDS = ("file", "nest", "fn", "out")
-ENV_DIR = "TRIPCOUNT_CACHE_DIR"
+ENV_MAX = "TRIPCOUNT_CACHE_MAX_MB"  # size cap; the least recently used entries go first
+DEFAULT_MAX_MB = 512
+TOUCH_AFTER_S = 24 * 3600  # a hit refreshes an entry's time at most daily (one utime, not one per read)
 POSITION_KEYS = (("line", "column"), ("end_line", "end_column"))
 
 
 # --------------------------------------------------------------------------
 # Where the cache lives
-
-
-def cache_dir() -> str:
-    """The cache directory (not created here)."""
-    env = os.environ.get(ENV_DIR)
-    if env:
-        return os.path.abspath(os.path.expanduser(env))
-    xdg = os.environ.get("XDG_CACHE_HOME")
-    base = xdg if xdg and os.path.isabs(xdg) else os.path.join(os.path.expanduser("~"), ".cache")
-    return os.path.join(base, "tripcount")
 
 
 _FINGERPRINT: str | None = None
@@ -140,7 +133,56 @@ class Store:
             self.misses += 1
             return None
         self.hits += 1
+        self._touch(self._path(kind, key))
         return data
+
+    @staticmethod
+    def _touch(path: str) -> None:
+        try:
+            if os.stat(path).st_mtime < _now() - TOUCH_AFTER_S:
+                os.utime(path)
+        except OSError:
+            pass
+
+    def prune(self, max_bytes: int | None = None) -> int:
+        """Remove the least recently used entries while the cache exceeds its cap; returns how many.
+
+        Entries of older versions of the tool are never hit again and so age
+        out first. The cap is $TRIPCOUNT_CACHE_MAX_MB (default 512 MiB).
+        """
+        if max_bytes is None:
+            try:
+                max_bytes = int(float(os.environ.get(ENV_MAX, DEFAULT_MAX_MB)) * 1024 * 1024)
+            except ValueError:
+                max_bytes = DEFAULT_MAX_MB * 1024 * 1024
+        entries = []
+        total = 0
+        for dirpath, _dirs, files in os.walk(self.root):
+            for name in files:
+                if not name.endswith(".json"):
+                    continue
+                p = os.path.join(dirpath, name)
+                try:
+                    st = os.stat(p)
+                except OSError:
+                    continue
+                if name.startswith(".tmp-") and st.st_mtime > _now() - 3600:
+                    continue  # another process is writing it
+                entries.append((st.st_mtime, st.st_size, p))
+                total += st.st_size
+        removed = 0
+        if total <= max_bytes:
+            return 0
+        for _mtime, size, p in sorted(entries):
+            if total <= max_bytes * 0.8:  # some headroom, so that pruning is rare
+                break
+            try:
+                os.unlink(p)
+                total -= size
+                removed += 1
+            except OSError:
+                pass
+        return removed
 
     def put(self, kind: str, key: str, data: dict[str, Any]) -> None:
         """Write an entry atomically (temporary file in the same directory, then os.replace)."""
@@ -185,6 +227,12 @@ class Store:
         n = sum(c for c, _ in self.stats().values())
         shutil.rmtree(self.root, ignore_errors=True)
         return n
+
+
+def _now() -> float:
+    import time
+
+    return time.time()
 
 
 def run_cache_command(action: str, stdout: TextIO) -> int:
@@ -607,10 +655,22 @@ def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool 
     result = _assemble(layout, store)
     if result is None:
         result = _compute(layout, path, text, options, store)
+        _prune_once(store)
     out = {"path": path, "nests": result[0], "diagnostics": _sort_diags(result[1])}
     if result[2]:  # every part is cacheable
         store.put("file", fkey, {"file": {"nests": out["nests"], "diagnostics": out["diagnostics"]}})
     return out
+
+
+_PRUNED = False
+
+
+def _prune_once(store: Store) -> None:
+    """Keep the cache under its cap; checked after computing (already slow), once per process."""
+    global _PRUNED
+    if not _PRUNED:
+        _PRUNED = True
+        store.prune()
 
 
 def _assemble(layout: Layout, store: Store) -> tuple[list, list, bool] | None:
@@ -709,6 +769,15 @@ def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[
     return out
 
 
+def _depends_on_time(diag: dict[str, Any]) -> bool:
+    """A result not worth keeping: an internal error, or one cut short by a time
+    limit or budget (a less busy machine, or the next run, may do better)."""
+    code = diag.get("code", "")
+    if code.startswith("TC9") or code in ("TC310", "TC311"):
+        return True
+    return code in ("TC301", "TC402") and "time" in diag.get("message", "")
+
+
 def _compute(layout: Layout, path: str, text: str, options: Options,
              store: Store) -> tuple[list, list, bool]:
     """Analyze what the cache lacks; write the new entries."""
@@ -738,7 +807,7 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
         found[k] = (site, nj, nd)
         if site is None:
             cacheable = False  # a nest the front end did not show us: no key to store it under
-        elif not any(d["code"].startswith("TC9") for d in nd):  # do not keep internal errors
+        elif not any(_depends_on_time(d) for d in nd):
             store.put("nest", site.key, {
                 "nest": _slices_out(nj, toks), "diagnostics": nd,
                 **_entry_anchors(toks, site.anchors, layout.outside, site.lo, site.stop, [nj, nd])})

@@ -135,6 +135,35 @@ def _with_factor(c: Fraction, factors: list[tuple[QPoly, int]], rest: QPoly) -> 
     return f"-{s}" if c < 0 else s
 
 
+# Root tests are formal (atoms are independent symbols), so a polynomial that
+# is nonzero at one point modulo a large prime is not zero; the probe values
+# are fixed so that the printed form never depends on chance.
+_PRIME = (1 << 61) - 1
+
+
+def _probe_point(atoms: list) -> dict:
+    return {a: (0x9E3779B97F4A7C15 * (k + 1) + 12345) % _PRIME for k, a in enumerate(atoms)}
+
+
+def _eval_mod(p: QPoly, point: dict) -> int:
+    total = 0
+    for m, c in p.terms.items():
+        v = c.numerator % _PRIME
+        if c.denominator != 1:
+            v = v * pow(c.denominator, -1, _PRIME) % _PRIME
+        for a, e in m:
+            v = v * pow(point[a], e, _PRIME) % _PRIME
+        total += v
+    return total % _PRIME
+
+
+def _horner_mod(coeffs: dict[int, int], value: int) -> int:
+    out = 0
+    for k in range(max(coeffs), -1, -1):
+        out = (out * value + coeffs.get(k, 0)) % _PRIME
+    return out
+
+
 def _horner(coeffs: dict[int, QPoly], value: QPoly) -> QPoly:
     out = QPoly()
     for k in range(max(coeffs), -1, -1):
@@ -188,11 +217,24 @@ def format_qpoly(p: QPoly) -> str:
             break
         found = False
         atoms = sorted(q.atoms(), key=atom_key)
+        point = _probe_point(atoms)
+        cands = [(b, mult, k, _root_mod(b, mult, k, point)) for b, mult, k in _root_candidates(None, atoms)]
         for a in atoms:
             coeffs = q.coeffs_in_atom(a)
             if max(coeffs) < 1:
                 continue
-            for root in _root_candidates(a, atoms):
+            mod_coeffs = {k: _eval_mod(c, point) for k, c in coeffs.items()}
+            target = None
+            if max(coeffs) == 1 and mod_coeffs.get(1, 0):
+                target = -mod_coeffs.get(0, 0) * pow(mod_coeffs[1], -1, _PRIME) % _PRIME
+            for b, mult, k, value in cands:
+                # a nonzero value at one point proves 'not a root'; only the
+                # survivors are built and pay for the exact symbolic test
+                if b == a:
+                    continue  # factoring is formal: atoms are independent symbols here
+                if (value != target) if target is not None else _horner_mod(mod_coeffs, value) != 0:
+                    continue
+                root = QPoly.const(k) if b is None else QPoly.atom(b) * mult + k
                 if _horner(coeffs, root).is_zero():
                     quo = _rebuild(_divide_linear(coeffs, root), a)
                     lin = QPoly.atom(a) - root
@@ -235,19 +277,28 @@ def _negativity(p: QPoly) -> int:
     return sum(-1 if v > 0 else 1 for m, v in p.terms.items() if m)
 
 
-def _root_candidates(a, atoms) -> list[QPoly]:
-    out = [QPoly.const(k) for k in (0, -1, 1, -2, 2, -3, 3, -4, 4, -5, 5, -6, 6)]
-    out += [QPoly.const(Fraction(s * n, d)) for d in (2, 3) for n in (1, 2, 4, 5) for s in (1, -1) if n % d]
+_CONST_ROOTS = [Fraction(k) for k in (0, -1, 1, -2, 2, -3, 3, -4, 4, -5, 5, -6, 6)] + [
+    Fraction(s * n, d) for d in (2, 3) for n in (1, 2, 4, 5) for s in (1, -1) if n % d]
+_ATOM_ROOTS = [(m, k) for k in (0, -1, 1, -2, 2) for m in (1, -1)] + [(m, k) for k in (0, -1, 1) for m in (2, -2)]
+
+
+def _root_candidates(a, atoms) -> list[tuple]:
+    """Roots tried for a linear factor (a - root), as (atom or None, multiplier, constant):
+    integers, small fractions, +-b + k, and +-2*b + k (halos on both sides: (H + 2*B)*(W + 2*B))."""
+    out: list[tuple] = [(None, 0, c) for c in _CONST_ROOTS]
     for b in atoms:
-        if b == a:
-            continue  # factoring is formal: atoms are independent symbols here
-        for k in (0, -1, 1, -2, 2):
-            out.append(QPoly.atom(b) + k)
-            out.append(-QPoly.atom(b) + k)
-        for k in (0, -1, 1):  # (H + 2*B)*(W + 2*B): halos on both sides
-            out.append(QPoly.atom(b) * 2 + k)
-            out.append(QPoly.atom(b) * -2 + k)
+        if b != a:
+            out += [(b, m, k) for m, k in _ATOM_ROOTS]
     return out
+
+
+def _root_mod(b, mult: int, k: Fraction, point: dict) -> int:
+    v = k.numerator % _PRIME
+    if k.denominator != 1:
+        v = v * pow(k.denominator, -1, _PRIME) % _PRIME
+    if b is not None:
+        v = (v + mult * point[b]) % _PRIME
+    return v
 
 
 # ---------------------------------------------------------------------------

@@ -412,15 +412,17 @@ def _simplify_on_residues(r: isl.Set, f: QPoly, params: tuple[str, ...]) -> QPol
                 period = lcm(period, atom_period(a, p)[0])
         if period == 1 or period > 64:
             continue
-        for c in range(period):
-            cls = params_set(r.get_ctx(), params, f"exists q : {p} = {period}*q + {c}")
-            if not r.is_subset(cls):
-                continue
+        # only the class of one point of r can contain all of r
+        if r.is_empty():
+            return f
+        pt = r.sample_point()
+        c = pt.get_coordinate_val(_dt.param, params.index(p)).to_python() % period
+        cls = params_set(r.get_ctx(), params, f"exists q : {p} = {period}*q + {c}")
+        if r.is_subset(cls):
             k = QPoly.var("_k_")
             g = f.subs({p: k * period + c}).subs({"_k_": (QPoly.var(p) - c) / period})
             if g.n_terms() < f.n_terms() or len(g.floors()) < len(fl):
                 f, fl = g, g.floors()
-            break
     return f
 
 

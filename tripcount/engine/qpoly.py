@@ -435,10 +435,9 @@ class QPoly:
         e.g. floor((N + 1)/2) for N - floor(N/2); computed once per object.
         """
         if self._text is None:
-            from tripcount.engine.fmt import format_qpoly
-            from tripcount.engine.readable import format_grouped, readable
+            from tripcount.engine.readable import readable
 
-            self._text = readable(self, lambda q: format_grouped(q, format_qpoly))
+            self._text = readable(self)
         return self._text
 
     def to_expanded(self) -> str:

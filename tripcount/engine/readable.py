@@ -23,11 +23,13 @@
 
 from __future__ import annotations
 
+import os
 from fractions import Fraction
 from itertools import combinations
 from math import lcm
 
-from tripcount.engine.qpoly import Floor, QPoly, atom_period
+from tripcount.engine.fmt import _PRIME, _eval_mod, _probe_point, format_qpoly
+from tripcount.engine.qpoly import Floor, QPoly, atom_key, atom_period
 
 _K = "_rk_"
 _ZERO = Fraction(0)
@@ -36,6 +38,14 @@ _ZERO = Fraction(0)
 _MAX_PERIOD = 64
 _MAX_DEGREE = 6
 _MAX_TERMS = 60
+# Work per formula, counted in candidate bases tried (deterministic, so the
+# printed form never depends on machine speed): most formulas settle within a
+# dozen; long per-level footprints of strided loops would try hundreds.
+_MAX_BASES = int(os.environ.get("TRIPCOUNT_READABLE_BASES", "40"))
+# Texts already chosen, by formula: reports print the same counts many times
+# (bytes and lines of each array, per level, in text and JSON).
+_MEMO: dict[QPoly, str] = {}
+_MEMO_MAX = 20_000
 
 
 def text_cost(text: str) -> tuple[int, int]:
@@ -151,6 +161,38 @@ def _rref(rows: list[list[Fraction]], rhs: list[QPoly]):
     return piv, rows, rhs
 
 
+def _consistent_mod(rows: list[list[Fraction]], rhs: list[QPoly]) -> bool:
+    """False when rows * x = rhs has no solution at one point of the other atoms,
+    modulo a large prime: then it has none as quasi-polynomials either, and the
+    exact elimination (QPoly right-hand sides) is not worth running. (A wrong
+    True only costs that elimination; a wrong False, with chance about 2^-61,
+    only a less readable form.)"""
+    atoms = sorted({a for q in rhs for a in q.atoms()}, key=atom_key)
+    point = _probe_point(atoms)
+    mat = [[_frac_mod(x) for x in r] + [_eval_mod(q, point)] for r, q in zip(rows, rhs, strict=True)]
+    n = len(mat[0]) - 1 if mat else 0
+    rank = 0
+    for col in range(n):
+        pr = next((i for i in range(rank, len(mat)) if mat[i][col]), None)
+        if pr is None:
+            continue
+        mat[rank], mat[pr] = mat[pr], mat[rank]
+        inv = pow(mat[rank][col], -1, _PRIME)
+        piv = [x * inv % _PRIME for x in mat[rank]]
+        mat[rank] = piv
+        for i in range(len(mat)):
+            if i != rank and mat[i][col]:
+                f = mat[i][col]
+                mat[i] = [(x - f * y) % _PRIME for x, y in zip(mat[i], piv, strict=True)]
+        rank += 1
+    return all(r[n] == 0 for r in mat[rank:])
+
+
+def _frac_mod(c: Fraction) -> int:
+    v = c.numerator % _PRIME
+    return v if c.denominator == 1 else v * pow(c.denominator, -1, _PRIME) % _PRIME
+
+
 def _solutions(rows: list[list[Fraction]], rhs: list[QPoly], n: int) -> list[list[QPoly]]:
     """Sparse solutions of rows * x = rhs: the particular one, then for each choice of
     as many unknowns as the nullity, the solution that makes them 0 (if unique)."""
@@ -217,6 +259,8 @@ def _rewrite_in(p: QPoly, v: str, basis: list, m: int, classes: list[dict[int, Q
         for j in range(top + 1):
             rows.append([c[j] if j < len(c) else _ZERO for c in cols])
             rhs.append(cls.get(j, QPoly()))
+    if not _consistent_mod(rows, rhs):
+        return []
     out = []
     seen = set()
     for x in _solutions(rows, rhs, len(monos)):
@@ -260,7 +304,14 @@ def _candidate_atoms(fl: list[Floor], v: str, m: int) -> list:
     return out
 
 
-def _rewrite_variable(p: QPoly, v: str, cost) -> QPoly:
+class _Budget:
+    __slots__ = ("left",)
+
+    def __init__(self, n: int) -> None:
+        self.left = n
+
+
+def _rewrite_variable(p: QPoly, v: str, cost, budget: _Budget) -> QPoly:
     fl = _simple_floors_of(p, v)
     if not fl:
         return p
@@ -281,6 +332,9 @@ def _rewrite_variable(p: QPoly, v: str, cost) -> QPoly:
         bases += [list(pair) for pair in combinations(atoms, 2)]
     best, best_cost = p, cost(p)
     for basis in bases:
+        if budget.left <= 0:
+            break
+        budget.left -= 1
         for q in _rewrite_in(p, v, basis, m, coeffs, d):
             if q == best or len(q.terms) > _MAX_TERMS:
                 continue
@@ -290,8 +344,21 @@ def _rewrite_variable(p: QPoly, v: str, cost) -> QPoly:
     return best
 
 
-def readable(p: QPoly, fmt) -> str:
-    """Cheapest text (see text_cost) among forms of p proven equal to it; fmt prints one form."""
+def readable(p: QPoly, fmt=None) -> str:
+    """Cheapest text (see text_cost) among forms of p proven equal to it; fmt prints one
+    form (default: the factored printer, grouped; only that one is memoized)."""
+    if fmt is not None:
+        return _readable(p, fmt)
+    text = _MEMO.get(p)
+    if text is None:
+        text = _readable(p, lambda q: format_grouped(q, format_qpoly))
+        if len(_MEMO) >= _MEMO_MAX:
+            _MEMO.clear()
+        _MEMO[p] = text
+    return text
+
+
+def _readable(p: QPoly, fmt) -> str:
     memo: dict[QPoly, tuple] = {}
 
     def cost(q: QPoly) -> tuple:
@@ -307,10 +374,11 @@ def readable(p: QPoly, fmt) -> str:
     memo[p] = (*text_cost(base), base)
     q = p
     names = sorted({v for f in p.floors() for v in f.variables()})
+    budget = _Budget(_MAX_BASES)
     for _ in range(2):  # a second pass lets one parameter profit from another's rewriting
         before = q
         for v in names:
-            q = _rewrite_variable(q, v, cost)
+            q = _rewrite_variable(q, v, cost, budget)
         if q is before:
             break
     if q is p:

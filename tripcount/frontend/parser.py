@@ -13,13 +13,18 @@
 
 from __future__ import annotations
 
+import contextlib
+import hashlib
+import os
 import re
+import sys
 import threading
 from bisect import bisect_right
 from dataclasses import replace
 from pathlib import Path
 
 from lark import Lark, Token
+from lark import __version__ as lark_version
 from lark.exceptions import UnexpectedInput
 from lark.lexer import Lexer
 
@@ -28,6 +33,7 @@ from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.build import IRBuilder, PragmaToken, cover
 from tripcount.frontend.preprocess import Preprocessed, SourceMap, Tok
+from tripcount.paths import cache_dir
 
 # Statement nesting the recovery follows before giving up on the inner part.
 MAX_RECOVERY_DEPTH = 120
@@ -199,15 +205,41 @@ class _Driver:
                 return value_stack[-1]
 
 
+_LARK_OPTIONS = dict(parser="lalr", lexer=_ListLexer, keep_all_tokens=True, maybe_placeholders=True,
+                     start=["body_start", "item_start", "expr_start", "decl_start"])
+
+
+def _compile(builder: IRBuilder) -> Lark:
+    """The LALR parser of the grammar; its tables are kept in the cache directory
+    (about 0.3 s to compute, a few ms to load). The file is written under a
+    private name and renamed into place, so concurrent processes never read
+    half of one; any failure just means compiling again."""
+    text = _grammar_text()
+    key = hashlib.sha256(f"{text}\0{lark_version}\0{sys.version_info[:2]}".encode()).hexdigest()[:20]
+    final = os.path.join(cache_dir(), f"grammar-{key}.lark")
+    if os.path.isfile(final):
+        try:
+            return Lark(text, transformer=builder, cache=final, **_LARK_OPTIONS)
+        except Exception:  # noqa: BLE001 - a bad cache file is only a miss
+            pass
+    tmp = f"{final}.{os.getpid()}.{threading.get_ident()}.tmp"
+    try:
+        os.makedirs(os.path.dirname(final), exist_ok=True)
+        parser = Lark(text, transformer=builder, cache=tmp, **_LARK_OPTIONS)
+        os.replace(tmp, final)
+        return parser
+    except Exception:  # noqa: BLE001 - unwritable cache directory: no grammar cache
+        with contextlib.suppress(OSError):
+            os.remove(tmp)
+        return Lark(text, transformer=builder, **_LARK_OPTIONS)
+
+
 class _Engine:
     """The compiled grammar, its callbacks, and the terminal names of keywords/punctuators."""
 
     def __init__(self) -> None:
         self.builder = IRBuilder()
-        self.lark = Lark(_grammar_text(), parser="lalr", lexer=_ListLexer,
-                         transformer=self.builder, keep_all_tokens=True,
-                         maybe_placeholders=True,
-                         start=["body_start", "item_start", "expr_start", "decl_start"])
+        self.lark = _compile(self.builder)
         self.terms: dict[str, str] = {}
         for t in self.lark.terminals:
             if t.pattern.type == "str":
