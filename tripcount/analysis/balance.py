@@ -31,6 +31,7 @@ from tripcount import ir
 from tripcount.analysis import schedules as sch
 from tripcount.analysis.results import Count, NestResult
 from tripcount.diagnostics import Diagnostic, InternalError
+from tripcount.engine import PieceList
 from tripcount.model import Loop, Nest
 from tripcount.options import Options
 
@@ -841,36 +842,12 @@ class ThreadPiece:
         return self.test(values[self.tname], int(self.poly.n.evaluate(values)))
 
 
-class ThreadPiecewise:
+class ThreadPiecewise(PieceList):
     """A per-thread formula whose pieces may carry non-affine conditions (same JSON as the engine's)."""
 
     def __init__(self, pieces: list[ThreadPiece], params: tuple[str, ...]) -> None:
         self.pieces = pieces
         self.params = params
-
-    def evaluate(self, values: Mapping[str, int]) -> Fraction:
-        """Exact value at integer parameter values (0 outside all pieces)."""
-        for p in self.pieces:
-            if p.contains(values):
-                return p.poly.evaluate(values)
-        return Fraction(0)
-
-    def degree(self) -> int:
-        """Total degree of the first piece."""
-        return self.pieces[0].poly.degree() if self.pieces else 0
-
-    def leading(self) -> str:
-        """Leading homogeneous part of the first piece."""
-        return self.pieces[0].poly.leading() if self.pieces else "0"
-
-    def is_zero(self) -> bool:
-        """True without pieces."""
-        return not self.pieces
-
-    def to_json(self) -> dict[str, Any]:
-        """Same fields as an engine formula: pieces (when, expr), degree, leading."""
-        return {"pieces": [{"when": p.when, "expr": p.poly.to_expr()} for p in self.pieces],
-                "degree": self.degree(), "leading": self.leading()}
 
 
 def _iteration_shares(ntext: str, tname: str, threads: int, chunk: int | None

@@ -14,7 +14,7 @@ from collections.abc import Mapping
 
 import islpy as isl
 
-from tripcount.engine.piecewise import Piece, Piecewise, build, qpoly_identical
+from tripcount.engine.piecewise import Piece, PieceList, Piecewise, build, qpoly_identical
 from tripcount.engine.qpoly import Floor, QPoly
 from tripcount.engine.summation import EngineLimit, Limits, _State, sum_set
 
@@ -23,6 +23,7 @@ __all__ = [
     "Floor",
     "Limits",
     "Piece",
+    "PieceList",
     "Piecewise",
     "QPoly",
     "count",

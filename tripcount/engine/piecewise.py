@@ -72,21 +72,11 @@ class Piece:
         return cond.contains(values)
 
 
-class Piecewise:
-    """Disjoint pieces; the value is 0 outside all of them. Generic piece first."""
+class PieceList:
+    """Evaluation and JSON shared by piecewise formulas: `pieces` hold `poly`,
+    `when` and `contains(values)`; disjoint, generic piece first, 0 outside."""
 
-    def __init__(
-        self,
-        pieces: list[Piece],
-        params: tuple[str, ...],
-        context: isl.Set | None = None,
-    ) -> None:
-        self.pieces = pieces
-        self.params = tuple(params)
-        self.context = context
-
-    def __repr__(self) -> str:
-        return "Piecewise(" + "; ".join(f"{p.when}: {p.poly.to_expr()}" for p in self.pieces) + ")"
+    pieces: list
 
     def evaluate(self, values: Mapping[str, int]) -> Fraction:
         """Exact value at integer parameter values (0 outside all pieces)."""
@@ -104,14 +94,33 @@ class Piecewise:
         return self.pieces[0].poly.leading() if self.pieces else "0"
 
     def is_zero(self) -> bool:
+        """True without pieces."""
         return not self.pieces
 
     def to_json(self) -> dict:
+        """pieces (when, expr), degree, leading."""
         return {
             "pieces": [{"when": p.when, "expr": p.poly.to_expr()} for p in self.pieces],
             "degree": self.degree(),
             "leading": self.leading(),
         }
+
+
+class Piecewise(PieceList):
+    """Disjoint pieces; the value is 0 outside all of them. Generic piece first."""
+
+    def __init__(
+        self,
+        pieces: list[Piece],
+        params: tuple[str, ...],
+        context: isl.Set | None = None,
+    ) -> None:
+        self.pieces = pieces
+        self.params = tuple(params)
+        self.context = context
+
+    def __repr__(self) -> str:
+        return "Piecewise(" + "; ".join(f"{p.when}: {p.poly.to_expr()}" for p in self.pieces) + ")"
 
     def _terms(self) -> list[tuple[isl.Set, QPoly]]:
         return [(p.domain, p.poly) for p in self.pieces]

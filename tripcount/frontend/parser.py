@@ -158,38 +158,8 @@ class _Driver:
         value_stack: list = []
         push_state = state_stack.append
         push_value = value_stack.append
-        for tok in tokens:
-            ty = tok.type
-            while True:
-                try:
-                    is_shift, arg = states[state_stack[-1]][ty]
-                except KeyError:
-                    raise ParseFailure(_describe(tok), tok) from None
-                if is_shift:
-                    push_state(arg)
-                    push_value(tok)
-                    break
-                size, origin, cb = arg
-                if cb is None:
-                    state_stack.pop()
-                else:
-                    if size:
-                        children = value_stack[-size:]
-                        del state_stack[-size:]
-                        del value_stack[-size:]
-                    else:
-                        children = []
-                    push_value(cb(children))
-                push_state(states[state_stack[-1]][origin][1])
-        end_state = self.end_states[start]
-        while True:
-            try:
-                is_shift, arg = states[state_stack[-1]]["$END"]
-            except KeyError:
-                raise ParseFailure(_describe(None)) from None
-            if is_shift:
-                raise ParseFailure(_describe(None))
-            size, origin, cb = arg
+
+        def reduce(size: int, origin: str, cb) -> None:
             if cb is None:
                 state_stack.pop()
             else:
@@ -201,6 +171,28 @@ class _Driver:
                     children = []
                 push_value(cb(children))
             push_state(states[state_stack[-1]][origin][1])
+
+        for tok in tokens:
+            ty = tok.type
+            while True:
+                try:
+                    is_shift, arg = states[state_stack[-1]][ty]
+                except KeyError:
+                    raise ParseFailure(_describe(tok), tok) from None
+                if is_shift:
+                    push_state(arg)
+                    push_value(tok)
+                    break
+                reduce(*arg)
+        end_state = self.end_states[start]
+        while True:
+            try:
+                is_shift, arg = states[state_stack[-1]]["$END"]
+            except KeyError:
+                raise ParseFailure(_describe(None)) from None
+            if is_shift:
+                raise ParseFailure(_describe(None))
+            reduce(*arg)
             if state_stack[-1] == end_state:
                 return value_stack[-1]
 
