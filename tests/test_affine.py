@@ -392,3 +392,82 @@ def test_internal_failure_is_contained(monkeypatch):
     monkeypatch.setattr(af._NestBuilder, "walk_for", boom)
     nests = nests_of("for (i = 0; i < n; i++) a[i] = 0;")
     assert [d.code for d in nests[0].diagnostics] == ["TC900"] and nests[0].loops == []
+
+
+# --------------------------------------------------------------------------
+# Nesting depth (issue 7): the front end builds any depth; this stage and the
+# later ones recurse, so code nested past af.MAX_DEPTH levels is cut with a
+# diagnostic, and a nest holding such code is not counted at all.
+
+def _deep_run(text: str) -> tuple[list[af.ANest], list, float]:
+    import time
+
+    start = time.monotonic()
+    unit, _ = parse_text(text, path="velin.c")
+    nests, file_diags = af.extract_nests(unit)
+    return nests, file_diags, time.monotonic() - start
+
+
+def test_three_thousand_nested_ifs_stop_at_the_limit_with_a_position():
+    head = "void f(int N, int x, double *A) { for (int i = 0; i < N; i++) "
+    text = head + "if (x) " * 3000 + "A[i] = 1; }\n"
+    nests, file_diags, elapsed = _deep_run(text)
+    assert elapsed < 2.0
+    (nest,) = nests
+    assert "TC900" not in codes(nest) and file_diags == []
+    deep = [d for d in nest.diagnostics if d.code == "TC112"]
+    assert len(deep) == 1
+    # the for loop is level 1 below the function body, the k-th `if` level k + 1: the first one past
+    # the limit is `if` number MAX_DEPTH, at column len(head) + 1 + 7 * (MAX_DEPTH - 1)
+    assert (deep[0].span.line, deep[0].span.column) == (1, len(head) + 1 + 7 * (af.MAX_DEPTH - 1))
+    assert str(af.MAX_DEPTH) in deep[0].message
+    assert all(lp.refusal is deep[0] for lp in nest.loops)  # nothing in the nest is counted
+    assert nest.stmts and all(st.refusal is deep[0] for st in nest.stmts)
+
+
+def test_twenty_thousand_nested_blocks_are_cut_inside_and_outside_nests():
+    inner = "void f(int N, double *A) { for (int i = 0; i < N; i++) " + "{" * 20000 + "A[i] = 1;" + "}" * 20000 + " }\n"
+    outer = "void g(int N, double *A) { " + "{" * 20000 + "A[0] = 1;" + "}" * 20000 + "\n for (int i = 0; i < N; i++) A[i] = 2; }\n"
+    nests, file_diags, elapsed = _deep_run(inner + outer)
+    assert elapsed < 2.0
+    f_nest, g_nest = nests
+    assert [d.code for d in f_nest.diagnostics] == ["TC112"]
+    assert f_nest.diagnostics[0].span.line == 1
+    assert all(lp.refusal is not None for lp in f_nest.loops)
+    # outside any nest the cut is a file-level diagnostic; the loop after it is counted as usual
+    assert [(d.code, d.span.line) for d in file_diags] == [("TC112", 2)]
+    assert g_nest.diagnostics == [] and all(lp.refusal is None for lp in g_nest.loops)
+
+
+def test_deep_expression_gets_its_own_diagnostic():
+    text = "void f(int N, double *A) { for (int i = 0; i < N; i++) A[i] = " + " + ".join(["A[i]"] * 5000) + "; }\n"
+    nests, file_diags, elapsed = _deep_run(text)
+    assert elapsed < 2.0
+    (nest,) = nests
+    deep = [d for d in nest.diagnostics if d.code == "TC220"]
+    assert len(deep) == 1 and deep[0].span.line == 1
+    assert "expression" in deep[0].message
+    assert all(st.refusal is deep[0] for st in nest.stmts)
+
+
+def test_cut_code_before_a_nest_may_write_its_bound():
+    # `n` is set again inside the skipped part: its initializer must not be used as the bound
+    text = ("void f(double *A) { int n = 10; " + "{" * 300 + "n = 20;" + "}" * 300
+            + " for (int i = 0; i < n; i++) A[i] = 1; }\n")
+    nests, file_diags, _ = _deep_run(text)
+    (nest,) = nests
+    assert [d.code for d in file_diags] == ["TC112"]
+    assert nest.params == ("n",)  # a size parameter, not the constant 10
+
+
+def test_nesting_just_below_the_limit_is_counted_exactly_through_the_pipeline():
+    from tripcount.options import Options
+    from tripcount.pipeline import analyze_text
+
+    depth = af.MAX_DEPTH - 10
+    text = ("void f(int N, double *A) { for (int i = 0; i < N; i++) " + "{" * depth + "A[i] += 1.0;"
+            + "}" * depth + " }\n")
+    fr = analyze_text(text, "velin.c", Options(at={"N": 7}))
+    assert [d.code for d in fr.all_diagnostics()] == []
+    (nr,) = fr.nests
+    assert nr.statements[0].count.value == 7  # one statement, N executions (direct count)

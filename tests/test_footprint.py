@@ -12,6 +12,7 @@
 from __future__ import annotations
 
 import itertools
+import os
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -589,3 +590,107 @@ def test_tiled_transpose_against_brute_force():
                 point = {"H": H, "W": W, **dict(zip(("ii", "jj", "i")[:k], prefix, strict=True))}
                 assert got.formula.evaluate(point) == len(groups[prefix]), (var, prefix)
     assert r.extras["footprint"].footprint.elements.value == 2 * H * W
+
+
+# --------------------------------------------------------------------------
+# Hardening (issue 7): inputs found by fuzzing, through the whole pipeline.
+# The reference is again brute force: the touched indices are listed here.
+
+HARDENING = os.path.join(os.path.dirname(os.path.abspath(__file__)), "inputs", "footprint")
+
+
+def _file_nests(name: str, at: dict[str, int]) -> tuple[dict[str, NestResult], list]:
+    from tripcount import pipeline
+
+    fr = pipeline.analyze_file(os.path.join(HARDENING, name), Options(at=at, line_size=64))
+    diags = fr.all_diagnostics()
+    assert not [d for d in diags if d.code.startswith("TC9")], [d.render() for d in diags]
+    return {nr.nest.function: nr for nr in fr.nests}, diags
+
+
+def test_open_array_extents_give_footprints_that_do_not_need_them():
+    """`A[N][]`, `A[][N]`, `A[]`: rows aligned and the 1-D layout use no extent; constant inner
+    extents (`A[][16]`) still give the linear layout."""
+    N = 10
+    nests, _ = _file_nests("berth_open_extents.c", {"N": N})
+    for fn in ("berth_rows", "berth_cols"):
+        fp = nests[fn].extras["footprint"].footprint
+        a = fp.by_array["A"]
+        assert a.layout == "rows aligned", fn
+        assert a.elements.value == N  # A[i][0]: one element per row
+        assert a.lines.value == len({(i, (0 * 8) // 64) for i in range(N)}), fn
+    fp = nests["berth_list"].extras["footprint"].footprint
+    assert fp.by_array["A"].layout == "linear"
+    assert fp.lines.value == len({(i * 8) // 64 for i in range(N)})
+    fp = nests["berth_fixed"].extras["footprint"].footprint
+    assert fp.by_array["A"].layout == "linear"
+    assert fp.lines.value == len({((i * 16 + j) * 8) // 64 for i in range(N) for j in range(16)})
+
+
+def test_line_map_with_missing_extents_never_fails():
+    """line_map on every shape of open extents (None) and dimension counts."""
+    for extents in [(), (None,), ("N", None), (None, "N"), (None, None, "8"), (None, "4", "8"), ("N", None, "8")]:
+        for n in (1, 2, 3):
+            xs = ", ".join(f"x{k}" for k in range(n))
+            acc = Access("A", "read", isl.Map(f"{{ S1[{xs}] -> A[{xs}] }}"), (), Span(1, 1, 1, 2), "double", 8,
+                         extents)
+            m, layout = footprint.line_map(acc, 8, 64)
+            constant = len(extents) == n and n >= 2 and all(x is not None and x.isdigit() for x in extents[1:])
+            assert layout == ("linear" if n == 1 or constant else "rows aligned"), (extents, n)
+            assert m.dim(isl.dim_type.in_) == n
+
+
+def test_refused_statement_beside_an_exact_loop_is_left_out_honestly():
+    """A store under a data-dependent test (not counted) next to an exact inner loop: the inner
+    loop's working set is exact, the outer loop's is unknown (TC404), the nest's a lower bound,
+    and reuse by the outer loop is not claimed either way."""
+    N = 10
+    nests, diags = _file_nests("tide_unmodelled.c", {"N": N})
+    nr = nests["gauge_flagged"]
+    ws = levels(nr)
+    assert set(ws) == {"j"}
+    assert ws["j"].whole.elements.value == N  # C[i][0..N-1] for one i
+    assert ws["j"].reuse is None  # the unmodelled store could touch the same lines
+    assert "TC404" in [d.code for d in nr.diagnostics]
+    fp = nr.extras["footprint"].footprint
+    assert fp.lower_bound and fp.elements.value == N * N
+    assert any(n.startswith("lower bound") for n in fp.notes)
+
+
+def test_non_affine_subscripts_mark_every_scope_that_misses_them():
+    """`A[i*j]` and `A[idx[i]]` are left out: each working set that would contain them is marked a
+    lower bound (text '>=', JSON lower_bound), and the fit claims only what the lower bound proves."""
+    N = 10
+    nests, _ = _file_nests("tide_unmodelled.c", {"N": N})
+    nr = nests["gauge_scatter"]
+    ws = levels(nr)
+    for var in ("i", "j"):
+        whole = ws[var].whole
+        assert whole.lower_bound, var
+        assert whole.to_json()["lower_bound"] is True
+        assert any("A[i * j]" in n for n in whole.notes), whole.notes
+        assert all(not ok for ok in ws[var].fits.values()), var  # 'fits' is never claimed
+        assert not ws[var].thresholds
+    touched = {("C", (i, j)) for i in range(N) for j in range(N)} | {("idx", (i,)) for i in range(N)}
+    assert ws["i"].whole.elements.value == len(touched)  # what is modelled: C[i][j] and idx[i]
+    text = "\n".join(nr.extras["footprint"].text_lines())
+    assert ">= 840 B" in text and "lower bound" in text  # 8 * 100 (C) + 4 * 10 (idx)
+
+
+def test_array_with_two_subscript_counts_gets_a_diagnostic_and_the_rest_is_counted():
+    """`S[i][j]` and `S[i]` in one nest: S has no footprint (TC404 at the second form), B is counted."""
+    N = 10
+    nests, _ = _file_nests("silt_mixed_ranks.c", {"N": N})
+    for fn in ("silt_mixed", "silt_pointer"):
+        nr = nests[fn]
+        found = [d for d in nr.diagnostics if d.code == "TC404" and "'S'" in d.message]
+        assert found, fn
+        assert "1 subscript" in found[0].message and "2 subscripts" in found[0].message
+        fp = nr.extras["footprint"].footprint
+        assert set(fp.by_array) == {"B"}, fn
+        assert fp.by_array["B"].elements.value == N
+        assert fp.lower_bound
+        assert levels(nr)["j"].whole.lower_bound
+    # S is undeclared there, but it is out of the footprint: no element-size note for it
+    assert not [d for d in nests["silt_mixed"].diagnostics if d.code == "TC403"]
+

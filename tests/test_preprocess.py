@@ -262,3 +262,70 @@ def test_harbour_macros_file():
     assert "NB" in pre.defined and "TMP" not in pre.defined
     assert [d.code for d in pre.diagnostics] == ["TC103"]
     assert "never" not in [t.value for t in pre.tokens]
+
+
+# ------------------------------------------------------------------ expansion size (issue 7)
+def _doubling(levels: int, use: str) -> str:
+    lines = ["#define A0 x"] + [f"#define A{k} A{k - 1} A{k - 1}" for k in range(1, levels + 1)]
+    return "\n".join(lines) + "\n" + use
+
+
+def test_exponential_macro_use_is_capped_quickly_and_left_as_written():
+    import resource
+    import time
+
+    text = _doubling(40, "void f(int N) { for (int i = 0; i < N; i++) { A40; } }\n")
+    assert len(text) < 1100  # a 1 KB file asking for 2^40 tokens
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    start = time.monotonic()
+    pre = preprocess(text)
+    elapsed = time.monotonic() - start
+    grown_kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss - before
+    assert elapsed < 0.5, elapsed
+    assert grown_kib < 200 * 1024, grown_kib  # bounded memory (ru_maxrss is in KiB on Linux)
+    (diag,) = [d for d in pre.diagnostics if d.code == "TC118"]
+    line = text.count("\n", 0, text.index("A40;")) + 1
+    column = text.index("A40;") - text.rfind("\n", 0, text.index("A40;"))
+    assert (diag.span.line, diag.span.column) == (line, column)
+    assert str(pp.MAX_USE_TOKENS) in diag.message
+    # the use is kept as written (no partial expansion), the rest of the file is expanded as usual
+    vals = [t.value for t in pre.tokens]
+    assert vals[-5:] == ["{", "A40", ";", "}", "}"]
+    assert "x" not in vals
+
+
+def test_many_capped_uses_are_bounded_by_the_file_budget():
+    import time
+
+    text = _doubling(40, "y = " + " + ".join(["A40"] * 200) + ";\nz = A3;\n")
+    start = time.monotonic()
+    pre = preprocess(text)
+    assert time.monotonic() - start < 1.5
+    codes = [d.code for d in pre.diagnostics]
+    assert codes[-1] == "TC108" and set(codes[:-1]) == {"TC118"}  # capped uses, then the file budget
+    assert "budget" in pre.diagnostics[-1].message
+    vals = [t.value for t in pre.tokens]
+    assert vals[-4:] == ["z", "=", "A3", ";"]  # past the file budget nothing more is expanded
+
+
+def test_large_but_reasonable_expansion_is_kept_whole():
+    # 2^12 = 4096 tokens from one use: below the per-use cap, expanded in full
+    pre = preprocess(_doubling(12, "y = A12;"))
+    assert [d.code for d in pre.diagnostics] == []
+    assert [t.value for t in pre.tokens].count("x") == 4096
+
+
+def test_function_like_macro_capped_use_keeps_its_arguments_as_written():
+    lines = ["#define F0(a) a"] + [f"#define F{k}(a) F{k - 1}(a) F{k - 1}(a)" for k in range(1, 31)]
+    text = "\n".join(lines) + "\ny = F30(q + 1); w = F2(r);\n"
+    pre = preprocess(text)
+    assert [d.code for d in pre.diagnostics] == ["TC118"]
+    vals = [t.value for t in pre.tokens]
+    assert vals[:8] == ["y", "=", "F30", "(", "q", "+", "1", ")"]
+    assert vals[8:] == [";", "w", "=", "r", "r", "r", "r", ";"]
+
+
+def test_capped_macro_in_an_if_condition_is_not_evaluated():
+    pre = preprocess(_doubling(40, "#if A40\nyes;\n#else\nno;\n#endif\n"))
+    assert [d.code for d in pre.diagnostics] == ["TC118", "TC113"]  # not read as 0: the first branch is taken
+    assert [t.value for t in pre.tokens] == ["yes", ";"]

@@ -18,12 +18,13 @@
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic, InternalError
-from tripcount.ir import Span
+from tripcount.frontend.diagnostics import NestingTooDeep
+from tripcount.ir import Span, c_text
 
 # --------------------------------------------------------------------------
 # Diagnostics of this stage (TC2xx). Refusals are warnings: the file is fine,
@@ -199,6 +200,16 @@ class FloatingLoop(Diagnostic):
     severity = "warning"
     title = "floating-loop"
     template = "{loop}: the loop variable '{var}' has the floating type '{type}'; only integer loops are counted"
+
+
+class ExpressionTooDeep(Diagnostic):
+    """An expression nested beyond what the analysis follows; its statement (and nest) is skipped."""
+
+    code = "TC220"
+    severity = "warning"
+    title = "expression-too-deep"
+    template = ("the expression at {pos} is nested more than {limit} levels deep (with its statements); "
+                "the statement holding it is skipped{effect}")
 
 
 # --------------------------------------------------------------------------
@@ -692,70 +703,6 @@ def closure(c: Cond, key: tuple[Any, ...]) -> str | None:
 # --------------------------------------------------------------------------
 # C text of IR expressions and statements (messages, display, hashing)
 
-_PREC = {
-    ",": 1,
-    "||": 4,
-    "&&": 5,
-    "|": 6,
-    "^": 7,
-    "&": 8,
-    "==": 9,
-    "!=": 9,
-    "<": 10,
-    "<=": 10,
-    ">": 10,
-    ">=": 10,
-    "<<": 11,
-    ">>": 11,
-    "+": 12,
-    "-": 12,
-    "*": 13,
-    "/": 13,
-    "%": 13,
-}
-
-
-def c_text(e: ir.Expr | None, prec: int = 0) -> str:
-    """C source text of an IR expression (minimal parentheses)."""
-    if e is None:
-        return ""
-    s, p = _text(e)
-    return f"({s})" if p < prec else s
-
-
-def _text(e: ir.Expr) -> tuple[str, int]:
-    if isinstance(e, ir.IntLit):
-        return (str(e.value), 16) if e.value >= 0 else (str(e.value), 14)
-    if isinstance(e, ir.FloatLit):
-        return e.text, 16
-    if isinstance(e, ir.Name):
-        return e.name, 16
-    if isinstance(e, ir.Opaque):
-        return e.text, 16
-    if isinstance(e, ir.Unary):
-        inner = c_text(e.operand, 14)
-        sep = " " if inner.startswith(e.op) and e.op in "+-" else ""
-        return f"{e.op}{sep}{inner}", 14
-    if isinstance(e, ir.Cast):
-        return f"({e.type_name}){c_text(e.operand, 14)}", 14
-    if isinstance(e, ir.Binary):
-        p = _PREC.get(e.op, 3)
-        sep = ", " if e.op == "," else f" {e.op} "
-        return f"{c_text(e.left, p)}{sep}{c_text(e.right, p + 1)}", p
-    if isinstance(e, ir.Ternary):
-        return f"{c_text(e.cond, 4)} ? {c_text(e.then, 3)} : {c_text(e.other, 3)}", 3
-    if isinstance(e, ir.Call):
-        return f"{e.func}({', '.join(c_text(a, 2) for a in e.args)})", 15
-    if isinstance(e, ir.ArrayRef):
-        return e.array + "".join(f"[{c_text(i)}]" for i in e.indices), 15
-    if isinstance(e, ir.Assign):
-        return f"{c_text(e.target, 14)} {e.op} {c_text(e.value, 2)}", 2
-    if isinstance(e, ir.IncDec):
-        t = c_text(e.target, 15)
-        return (f"{e.op}{t}", 14) if e.prefix else (f"{t}{e.op}", 15)
-    return type(e).__name__, 16
-
-
 def stmt_text(s: ir.Stmt | None, indent: int = 0) -> str:
     """C text of an IR statement (canonical layout)."""
     pad = "  " * indent
@@ -1193,7 +1140,9 @@ _ASSIGN_TEXT = r"(?<![=!<>+\-*/%&|^])\b{name}\s*(?:[-+*/%&|^]|<<|>>)?=(?!=)|\b{n
 
 
 def unparsed_writes(text: str, name: str) -> bool:
-    """Whether unread source text may assign `name` (conservative)."""
+    """Whether unread source text may assign `name` (conservative; code cut for its depth may assign anything)."""
+    if text == DEEP_TEXT:
+        return True
     return re.search(_ASSIGN_TEXT.format(name=re.escape(name)), text) is not None
 
 
@@ -1205,6 +1154,7 @@ class Writes:
     arrays: set[str] = field(default_factory=set)
     passed: set[str] = field(default_factory=set)  # arrays handed to calls in statements
     unparsed: list[str] = field(default_factory=list)
+    unparsed_at: list[Span] = field(default_factory=list)  # where each unparsed text is
 
     def writes(self, name: str) -> bool:
         """Whether the region assigns the scalar `name`."""
@@ -1223,6 +1173,7 @@ def collect_writes(node: ir.Node) -> Writes:
         n, in_header = stack.pop()
         if isinstance(n, ir.Unparsed):
             w.unparsed.append(n.text)
+            w.unparsed_at.append(n.span)
         if isinstance(n, (ir.Assign, ir.IncDec)):
             t = n.target
             name = _write_target(t)
@@ -1259,6 +1210,7 @@ def collect_outer_writes(node: ir.Node) -> Writes:
     def go(n: ir.Node, shadow: frozenset[str]) -> None:
         if isinstance(n, ir.Unparsed):
             w.unparsed.append(n.text)
+            w.unparsed_at.append(n.span)
         if isinstance(n, ir.For) and isinstance(n.init, ir.Decl):
             inner = shadow | {d.name for d in n.init.declarators}
             for c in ir.children(n):
@@ -1353,6 +1305,133 @@ def _find_var_write(body: ir.Stmt, name: str) -> Span | None:
 
 
 # --------------------------------------------------------------------------
+# Nesting depth
+#
+# The front end builds statements and expressions of any depth without
+# recursion; the visitors of this stage and of the later ones recurse, two or
+# three Python frames per level. So before anything looks at a function, code
+# nested too deeply is cut: a statement more than MAX_DEPTH levels below the
+# function body, or a statement holding an expression node more than
+# MAX_EXPR_LEVEL levels below it, becomes an ir.Unparsed with DEEP_TEXT. What
+# the cut code does (assign a bound, jump out of a loop) is unknown, so it
+# counts as writing every variable, and a nest holding it is not counted.
+
+MAX_DEPTH = 200  # statement levels below the function body (its statements are level 1)
+MAX_EXPR_LEVEL = 240  # levels of an expression node, its statements included
+DEEP_TEXT = "/* nested too deeply: not read */"
+DEEP_REASON = "nested too deeply"
+
+
+@dataclass
+class DeepCut:
+    """A statement replaced because of its depth: the replacement, and what went too deep."""
+
+    node: ir.Unparsed
+    kind: str  # "statement" or "expression"
+    at: Span  # the statement past MAX_DEPTH, or the expression node past MAX_EXPR_LEVEL
+
+    def diagnostic(self, path: str | None, in_nest: bool) -> Diagnostic:
+        """TC112 for statements, TC220 for an expression."""
+        if self.kind == "statement":
+            return NestingTooDeep(self.at, path=path, where=_pos(self.at), limit=MAX_DEPTH)
+        effect = "; the nest around it is not counted" if in_nest else ""
+        return ExpressionTooDeep(self.at, path=path, pos=_pos(self.at), limit=MAX_EXPR_LEVEL, effect=effect)
+
+
+def is_deep_cut(n: ir.Node) -> bool:
+    """An ir.Unparsed that stands for code cut because of its depth."""
+    return isinstance(n, ir.Unparsed) and n.reason == DEEP_REASON and n.text == DEEP_TEXT
+
+
+class _DepthCut:
+    """Rebuilds IR with the too-deep parts cut (two frames per statement level, at most MAX_DEPTH + 1)."""
+
+    def __init__(self) -> None:
+        self.cuts: list[DeepCut] = []
+
+    def _cut(self, s: ir.Stmt, kind: str, at: Span) -> ir.Unparsed:
+        u = ir.Unparsed(s.span, DEEP_TEXT, DEEP_REASON)
+        self.cuts.append(DeepCut(u, kind, at))
+        return u
+
+    def stmt(self, s: ir.Stmt, level: int) -> ir.Stmt:
+        """`s` (at `level`) with its too-deep parts cut; `s` itself when nothing is."""
+        if level > MAX_DEPTH:
+            return self._cut(s, "statement", s.span)
+        changed: dict[str, Any] = {}
+        for name in s.__dataclass_fields__:
+            if name in ("span", "header"):
+                continue
+            v = getattr(s, name)
+            nv = self.field(v, level + 1)
+            if isinstance(nv, Span):  # an expression below `s` is too deep
+                return self._cut(s, "expression", nv)
+            if nv is not v:
+                changed[name] = nv
+        return replace(s, **changed) if changed else s
+
+    def field(self, v: Any, level: int) -> Any:
+        """A field value with its statements rebuilt; the Span of a too-deep expression node instead."""
+        if isinstance(v, ir.Stmt):
+            return self.stmt(v, level)
+        if isinstance(v, ir.Node):
+            deep = _too_deep(v, level, MAX_EXPR_LEVEL)
+            return v if deep is None else deep.span
+        if isinstance(v, tuple):
+            out = []
+            changed = False
+            for x in v:
+                nx = self.stmt(x, level) if isinstance(x, ir.Stmt) else self.field(x, level)
+                if isinstance(nx, Span):
+                    return nx
+                changed = changed or nx is not x
+                out.append(nx)
+            return tuple(out) if changed else v
+        return v
+
+
+def _too_deep(node: ir.Node, level: int, limit: int) -> ir.Node | None:
+    """The first node under `node` (at `level`) more than `limit` levels deep, found without recursion."""
+    stack = [(node, level)]
+    while stack:
+        n, k = stack.pop()
+        if k > limit:
+            return n
+        stack.extend((c, k + 1) for c in reversed(ir.children(n)))
+    return None
+
+
+def cut_deep_function(fn: ir.Function) -> tuple[ir.Function, list[DeepCut]]:
+    """`fn` with code nested too deeply cut (the body's statements are level 1), and the cuts."""
+    dc = _DepthCut()
+    body = fn.body
+    items = tuple(dc.stmt(x, 1) for x in body.body)
+    if any(a is not b for a, b in zip(items, body.body, strict=True)):
+        body = replace(body, body=items)
+    params = []
+    for p in fn.params:  # array extents written as absurdly deep expressions: read as `[]`
+        deep = _too_deep(p, 1, MAX_EXPR_LEVEL)
+        if deep is not None:
+            dc.cuts.append(DeepCut(ir.Unparsed(p.span, DEEP_TEXT, DEEP_REASON), "expression", deep.span))
+            p = replace(p, dims=tuple(None for _ in p.dims))
+        params.append(p)
+    if body is fn.body and all(a is b for a, b in zip(params, fn.params, strict=True)):
+        return fn, dc.cuts
+    return replace(fn, body=body, params=tuple(params)), dc.cuts
+
+
+def cut_deep_globals(globals_: tuple[ir.Decl, ...]) -> tuple[tuple[ir.Decl, ...], list[DeepCut]]:
+    """Global declarations without the ones nested too deeply (those are dropped), and the cuts."""
+    dc = _DepthCut()
+    kept = []
+    for g in globals_:
+        ng = dc.stmt(g, 1)
+        if isinstance(ng, ir.Decl):
+            kept.append(ng)
+    return tuple(kept), dc.cuts
+
+
+# --------------------------------------------------------------------------
 # Declarations visible to a function
 
 
@@ -1386,9 +1465,11 @@ def _before(a: Span, b: Span) -> bool:
 class FunctionInfo:
     """Declarations and assignments of one function (plus the globals)."""
 
-    def __init__(self, fn: ir.Function, globals_: list[VarDecl]) -> None:
+    def __init__(self, fn: ir.Function, globals_: list[VarDecl], cuts: list[DeepCut] | None = None) -> None:
         self.fn = fn
         self.globals = {g.name: g for g in globals_}
+        self.cuts = {id(c.node): c for c in cuts or ()}  # code cut for its depth, by its ir.Unparsed
+        self.cuts_reported: set[int] = set()
         self.params = {
             p.name: VarDecl(p.name, p.type_name, p.pointer, p.dims, None, "param", p.span)
             for p in fn.params
@@ -1430,9 +1511,13 @@ class FunctionInfo:
         return out
 
     def written_between(self, name: str, start: Span, end: Span) -> bool:
-        """Whether `name` is assigned in the function between two positions."""
+        """Whether `name` is (or may be, in unread code) assigned in the function between two positions."""
+        stop = Span.point(end.end_line, end.end_column)
         for s in self.writes.scalars.get(name, ()):
-            if _before(start, s) and _before(s, Span.point(end.end_line, end.end_column)):
+            if _before(start, s) and _before(s, stop):
+                return True
+        for text, at in zip(self.writes.unparsed, self.writes.unparsed_at, strict=True):
+            if _before(start, at) and _before(at, stop) and unparsed_writes(text, name):
                 return True
         return False
 
@@ -1527,6 +1612,7 @@ class _NestBuilder:
         self.outer_cache: dict[str, Lin] = {}
         self.outer_busy: set[str] = set()
         self.local_texts: dict[str, str] = {}  # invariant local -> its non-affine initializer
+        self.cut_refused = False  # the nest holds code cut for its depth (see build)
 
     # ---- diagnostics
 
@@ -1614,9 +1700,24 @@ class _NestBuilder:
         self._pending_symbols: list[tuple[tuple[Any, ...], Span]] = []
         unknown = None
         first = self.node
+        # Code cut for its depth may do anything (assign a bound, jump out): nothing in the nest is certain.
+        # One diagnostic, at the first cut, says so.
+        cuts = self.info.cuts
+        for n in _all_nodes(first) if cuts else ():
+            if is_deep_cut(n) and id(n) in cuts:
+                self.info.cuts_reported.add(id(n))
+                if unknown is None:
+                    unknown = cuts[id(n)].diagnostic(self.path, in_nest=True)
+                    self.diags.append(unknown)
+        self.cut_refused = unknown is not None
+        if unknown is not None:  # refused already: "may write anything" would only add noise to the walk
+            for w in (self.nest_writes, self.outer_writes):
+                keep = [k for k, t in enumerate(w.unparsed) if t != DEEP_TEXT]
+                w.unparsed = [w.unparsed[k] for k in keep]
+                w.unparsed_at = [w.unparsed_at[k] for k in keep]
         # After a return or goto nothing later in the nest is certain: all of it is unknown.
         jumps = _find_jumps(first, {"return", "goto"}, into_loops=True)
-        if jumps:
+        if jumps and unknown is None:
             j = jumps[0]
             if isinstance(j, ir.Jump):
                 kind = j.kind
@@ -1666,6 +1767,8 @@ class _NestBuilder:
                     ctx.body.kills.append(conj(list(ctx.guards)))
         elif isinstance(s, ir.Empty):
             return
+        elif is_deep_cut(s):  # reported where it was cut; the nest is refused (see build)
+            self.add_stmt(s, ctx, s.text, accesses=False)
         elif isinstance(s, ir.Unparsed):
             reason = f" ({s.reason})" if s.reason else ""
             self.diag(UnreadStatement, s.span, pos=_pos(s.span), reason=reason)
@@ -1764,7 +1867,7 @@ class _NestBuilder:
             brk = _find_jumps(s, {"break"}, into_loops=False)
             if brk:
                 own = self.diag(EarlyBreak, brk[0].span, pos=_pos(brk[0].span), loop=label)
-        if own is None:
+        if own is None and not self.cut_refused:  # cut code "writes" every variable: no news there
             w = _find_var_write(s.body, lp.display)
             if w is not None:
                 own = self.diag(LoopVarModified, w, loop=label, var=lp.display, pos=_pos(w))
@@ -2162,13 +2265,16 @@ def extract_nests(unit: ir.TranslationUnit, path: str | None = None) -> tuple[li
     nests: list[ANest] = []
     file_diags: list[Diagnostic] = []
     try:
-        globs = global_decls(unit)
+        kept, cuts = cut_deep_globals(unit.globals)
+        file_diags.extend(c.diagnostic(path, in_nest=False) for c in cuts)
+        globs = global_decls(replace(unit, globals=kept))
     except Exception as exc:  # pragma: no cover - defensive
         globs = []
         file_diags.append(InternalError(unit.span, path=path, what=f"globals: {type(exc).__name__}: {exc}"))
     for fn in unit.functions:
         try:
-            info = FunctionInfo(fn, globs)
+            fn, cuts = cut_deep_function(fn)
+            info = FunctionInfo(fn, globs, cuts)
             fors = outermost_fors(fn.body)
         except Exception as exc:
             file_diags.append(InternalError(fn.span, path=path, what=f"function {fn.name}: {type(exc).__name__}: {exc}"))
@@ -2179,4 +2285,8 @@ def extract_nests(unit: ir.TranslationUnit, path: str | None = None) -> tuple[li
             except Exception as exc:
                 err = InternalError(f.span, path=path, what=f"{type(exc).__name__}: {exc}")
                 nests.append(ANest(path, fn.name, f.span, [], [], [err], {}, (), {}, ""))
+        # cuts outside every nest: the first one of the function is reported for the file
+        outside = [c for c in cuts if id(c.node) not in info.cuts_reported]
+        if outside:
+            file_diags.append(outside[0].diagnostic(path, in_nest=False))
     return nests, file_diags

@@ -388,3 +388,68 @@ def children(node: Node) -> list[Node]:
             out.extend(v for v in value if isinstance(v, Node))
     return out
 
+
+# C text of expressions (minimal parentheses): messages, reports, cache keys
+
+_PREC = {
+    ",": 1,
+    "||": 4,
+    "&&": 5,
+    "|": 6,
+    "^": 7,
+    "&": 8,
+    "==": 9,
+    "!=": 9,
+    "<": 10,
+    "<=": 10,
+    ">": 10,
+    ">=": 10,
+    "<<": 11,
+    ">>": 11,
+    "+": 12,
+    "-": 12,
+    "*": 13,
+    "/": 13,
+    "%": 13,
+}
+
+
+def c_text(e: Expr | None, prec: int = 0) -> str:
+    """C source text of an IR expression (minimal parentheses)."""
+    if e is None:
+        return ""
+    s, p = _text(e)
+    return f"({s})" if p < prec else s
+
+
+def _text(e: Expr) -> tuple[str, int]:
+    if isinstance(e, IntLit):
+        return (str(e.value), 16) if e.value >= 0 else (str(e.value), 14)
+    if isinstance(e, FloatLit):
+        return e.text, 16
+    if isinstance(e, Name):
+        return e.name, 16
+    if isinstance(e, Opaque):
+        return e.text, 16
+    if isinstance(e, Unary):
+        inner = c_text(e.operand, 14)
+        sep = " " if inner.startswith(e.op) and e.op in "+-" else ""
+        return f"{e.op}{sep}{inner}", 14
+    if isinstance(e, Cast):
+        return f"({e.type_name}){c_text(e.operand, 14)}", 14
+    if isinstance(e, Binary):
+        p = _PREC.get(e.op, 3)
+        sep = ", " if e.op == "," else f" {e.op} "
+        return f"{c_text(e.left, p)}{sep}{c_text(e.right, p + 1)}", p
+    if isinstance(e, Ternary):
+        return f"{c_text(e.cond, 4)} ? {c_text(e.then, 3)} : {c_text(e.other, 3)}", 3
+    if isinstance(e, Call):
+        return f"{e.func}({', '.join(c_text(a, 2) for a in e.args)})", 15
+    if isinstance(e, ArrayRef):
+        return e.array + "".join(f"[{c_text(i)}]" for i in e.indices), 15
+    if isinstance(e, Assign):
+        return f"{c_text(e.target, 14)} {e.op} {c_text(e.value, 2)}", 2
+    if isinstance(e, IncDec):
+        t = c_text(e.target, 15)
+        return (f"{e.op}{t}", 14) if e.prefix else (f"{t}{e.op}", 15)
+    return type(e).__name__, 16

@@ -76,6 +76,25 @@ HOSTILE = {
                 "     if ((i*7+j*5+k*3+l*11)%61==0 && (i+2*j+3*k)%59 < 3 && (3*i+j)%53==1) A[0] += 1;\n}\n"),
     "huge_at_size": "void f(int N, double *A)\n{\n  for (int i = 0; i < N; i++)\n    for (int j = 0; j < N; j++)\n"
                     "      for (int k = 0; k < N; k++)\n        if ((i + j + k) % 3 == 0) A[0] += 1;\n}\n",
+    # found by fuzzing (issue 7): each used to end in an internal error or cost far too much
+    "open_extents": ("void f(int N, double A[N][]) { for (int i = 0; i < N; i++) A[i][0] = 1; }\n"
+                     "void g(int N, double A[][N]) { for (int i = 0; i < N; i++) A[i][0] = 1; }\n"
+                     "void h(int N, double A[]) { for (int i = 0; i < N; i++) A[i] = 1; }\n"),
+    "refused_with_accesses": ("void f(int N, double *A, double *B, double *C)\n{\n  for (int i = 0; i < N; i++) {\n"
+                              "    if (A[i] > 0) B[i] = 1;\n    for (int j = 0; j < N; j++) C[i * N + j] = A[i * j];\n"
+                              "  }\n}\n"),
+    "mixed_ranks": ("void f(int N, double *A)\n{\n  for (int i = 0; i < N; i++)\n    for (int j = 0; j < N; j++)\n"
+                    "      A[i][j] = A[i] + B[i][j] + B[j];\n}\n"),
+    "deep_expression": "void f(int N, double *A) { for (int i = 0; i < N; i++) A[i] = " + " + ".join(["A[i]"] * 5000)
+                       + "; }\n",
+    "at_the_depth_limits": ("double g(double);\nvoid f(int N, double *A) { for (int i = 0; i < N; i++) " + "{" * 198
+                            + "A[i] = " + "g(" * 36 + "A[i]" + ")" * 36 + ";" + "}" * 198 + " }\n"
+                            + "void h(int N, double *A) { for (int i = 0; i < N; i++) A[i] = " + "g(" * 234 + "A[i]"
+                            + ")" * 234 + "; }\n"
+                            + "void k(int N, double *A) { for (int i = 0; i < N; i++) " + "if (i > 0) " * 198
+                            + "A[i] = -A[i - 1]; }\n"),
+    "macro_chain_40": "#define A0 x\n" + "".join(f"#define A{k} A{k - 1} A{k - 1}\n" for k in range(1, 41))
+                      + "void f(int N, double *X) { for (int i = 0; i < N; i++) { A40; X[i] = 1; } }\n",
 }
 
 
@@ -95,6 +114,23 @@ def test_hostile_inputs_end_with_diagnostics(name):
             for sr in nr.statements:
                 if sr.count.value is not None:
                     assert sr.count.value == _residue_count(10**7)
+
+
+@pytest.mark.parametrize("name", ["deep_ifs", "deep_braces", "deep_parens", "open_extents", "refused_with_accesses",
+                                  "mixed_ranks", "deep_expression", "at_the_depth_limits", "macro_chain_40",
+                                  "recursive_macros",
+                                  "macro_doubling", "unbalanced_braces"])
+def test_hostile_inputs_end_without_internal_errors_within_seconds(name):
+    text = HOSTILE[name]
+    options = fuzz_options({"N": 6})
+    options.time_limit = 1.0
+    start = time.monotonic()
+    fr = analyze_text(text, f"{name}.c", options)
+    elapsed = time.monotonic() - start
+    internal = [d.render() for d in fr.all_diagnostics() if d.code.startswith("TC9")]
+    assert not internal, internal
+    check_locations(fr.all_diagnostics(), text)
+    assert elapsed < 2.0, f"{name}: {elapsed:.1f} s"
 
 
 def _residue_count(n: int) -> int:

@@ -112,7 +112,7 @@ class ElementSizeUnknown(Diagnostic):
 
 
 class FootprintRefused(Diagnostic):
-    """Statements of a loop could not be modelled, so its footprint is unknown."""
+    """Statements of a loop, or an array's references, could not be modelled, so their footprint is unknown."""
 
     code = "TC404"
     severity = "note"
@@ -131,14 +131,17 @@ class FCount(Count):
     value_is: str | None = None
     bound: bool = False
     worst_at: dict[str, int] | None = None
+    lower_bound: bool = False  # references are left out: the true count is at least this
 
     def to_json(self) -> dict[str, Any]:
-        """Count object plus `value_is`, `bound` and `worst_at` when set."""
+        """Count object plus `value_is`, `bound`, `lower_bound` and `worst_at` when set."""
         out = super().to_json()
         if self.value_is:
             out["value_is"] = self.value_is
         if self.bound:
             out["bound"] = True
+        if self.lower_bound:
+            out["lower_bound"] = True
         if self.worst_at:
             out["worst_at"] = dict(self.worst_at)
         return out
@@ -183,6 +186,7 @@ class Worst:
     values: dict[str, int | Fraction | None] = field(default_factory=dict)  # at the --at sizes
     counts: dict[str, Count] | None = None  # the bound's count objects
     evaluate: Callable[[str, Mapping[str, int]], int | Fraction | None] | None = field(default=None, repr=False)
+    lower_bound: bool = False  # the footprint it bounds leaves references out
 
     def value(self, key: str, sizes: Mapping[str, int]) -> int | Fraction | None:
         """Exact worst-case (or bound) value of 'elements', 'bytes' or 'lines' at some sizes."""
@@ -191,6 +195,8 @@ class Worst:
     def to_json(self) -> dict[str, Any]:
         """bound, method, where, and elements/bytes/lines (value, expr, degree, leading)."""
         out: dict[str, Any] = {"bound": self.bound, "method": self.method, "where": self.where}
+        if self.lower_bound:
+            out["lower_bound"] = True
         for key in ("elements", "bytes", "lines"):
             if self.counts is not None:
                 c = self.counts.get(key)
@@ -224,6 +230,7 @@ class Footprint:
     notes: list[str] = field(default_factory=list)
     quantities: dict[str, Any] = field(default_factory=dict, repr=False)  # totals, for evaluation
     typical_piece: int | None = None  # piece holding for most outer values at the --at sizes (text)
+    lower_bound: bool = False  # references of the scope are left out (the notes say which)
 
     def to_json(self) -> dict[str, Any]:
         """The footprint shape of the JSON report."""
@@ -231,6 +238,8 @@ class Footprint:
                                "elements": self.elements.to_json(), "bytes": self.bytes.to_json(),
                                "lines": self.lines.to_json(),
                                "by_array": {k: v.to_json() for k, v in self.by_array.items()}}
+        if self.lower_bound:
+            out["lower_bound"] = True
         if self.fixed:
             out["worst"] = None if self.worst is None else self.worst.to_json()
         if self.notes:
@@ -311,6 +320,7 @@ class Intensity:
     asymptotic: str | None
     roofline: dict[str, Any] | None
     note: str | None = None
+    upper_bound: bool = False  # the footprint is a lower bound, so the ratio is at most this
 
     def to_json(self) -> dict[str, Any]:
         """value (float), exact (fraction text), asymptotic (text), roofline (or None)."""
@@ -323,6 +333,8 @@ class Intensity:
         }
         if self.note:
             out["note"] = self.note
+        if self.upper_bound:
+            out["upper_bound"] = True
         return out
 
 
@@ -470,7 +482,8 @@ def line_map(acc: Access, elem: int, line: int) -> tuple[isl.Map, str]:
     def fl(expr: str) -> str:
         return f"floor(({e}*({expr}))/{ln})" if ln > 1 else f"{e}*({expr})"
 
-    inner = [x.strip() for x in acc.extents[1:]] if acc.extents else []
+    # an open extent (`[]`, a pointer level) is None: only the linear layout needs the values
+    inner = [None if x is None else x.strip() for x in acc.extents[1:]] if acc.extents else []
     if n == 0:
         return isl.Map(f"{{ {name}[] -> {name}[] }}"), "linear"
     if n >= 2 and len(inner) == n - 1 and all(x is not None and x.isdigit() for x in inner):
@@ -516,7 +529,7 @@ def _formula(s: isl.Set, context: isl.Set | None, options: Options, budget: _Bud
         if budget.left() <= 0:
             return None, spent
         if allowed < options.time_limit and "time" in str(exc):
-            return None, f"no formula within the footprint analysis's {allowed:.2g} s per formula"
+            return None, f"no formula within the footprint analysis's time of {allowed:.2g} s per formula"
         return None, str(exc)
 
 
@@ -709,6 +722,7 @@ class _Analyzer:
         self.budget = _Budget(min(BUDGET_S, options.time_limit))
         self.at = {k: v for k, v in options.at.items() if k in self.nest.params}
         self.has_at = all(p in options.at for p in self.nest.params) and (bool(options.at) or not self.nest.params)
+        self.mixed = self._mixed_ranks()
         self.arrays = self._arrays()
         self._cache: dict[tuple, Footprint] = {}
         self._formulas: dict[tuple[str, str], tuple[Any, str | None]] = {}
@@ -717,11 +731,44 @@ class _Analyzer:
         self.probes = self._probes()
 
     # --- setup
+    def _mixed_ranks(self) -> dict[str, tuple[Access, Access]]:
+        """Arrays used with different numbers of subscripts (`A[i][j]` and `A[i]`), with the first
+        reference of each kind: their element sets live in different spaces, so they are left out."""
+        first: dict[str, Access] = {}
+        out: dict[str, tuple[Access, Access]] = {}
+        for s in self.nest.statements:
+            if s.domain is None:
+                continue
+            for a in s.accesses:
+                if a.map is None or a.array in out:
+                    continue
+                seen = first.setdefault(a.array, a)
+                if seen.map.dim(isl.dim_type.out) != a.map.dim(isl.dim_type.out):
+                    out[a.array] = (seen, a)
+        return out
+
+    def usable(self, a: Access) -> bool:
+        """Whether a reference is in the model: affine subscripts, an array of one rank."""
+        return a.map is not None and a.array not in self.mixed
+
+    def left_out(self, stmts: Sequence[Statement]) -> dict[str, str]:
+        """The references of `stmts` that the footprints leave out, as written, and their arrays."""
+        out: dict[str, str] = {}
+        for s in stmts:
+            if s.domain is None:
+                continue
+            for a in s.accesses:
+                if not self.usable(a):
+                    out.setdefault(f"{a.array}[{']['.join(a.subscripts)}]", a.array)
+        return out
+
     def _arrays(self) -> dict[str, _ArrayInfo]:
         out: dict[str, _ArrayInfo] = {}
         for s in self.nest.statements:
+            if s.domain is None:  # not modelled: in no footprint
+                continue
             for a in s.accesses:
-                if a.map is None:  # a subscript that is not affine: left out (the model says so)
+                if not self.usable(a):  # left out (the model says so)
                     continue
                 info = out.get(a.array)
                 elem = a.elem_size if a.elem_size else None
@@ -780,8 +827,10 @@ class _Analyzer:
         """
         images: dict[str, isl.Set] = {}
         for s in stmts:
+            if s.domain is None:
+                continue
             for a in s.accesses:
-                if a.map is None:
+                if not self.usable(a):
                     continue
                 # simplified one by one: each reference's image is usually a plain polyhedron
                 img = simplify(access_image(s, a, n, restrict))
@@ -856,7 +905,7 @@ class _Analyzer:
         if key in self._cache:
             fp = self._cache[key]
             return Footprint(label, fp.fixed, fp.elements, fp.bytes, fp.lines, fp.by_array, fp.worst,
-                             list(fp.notes), fp.quantities, fp.typical_piece)
+                             list(fp.notes), fp.quantities, fp.typical_piece, fp.lower_bound)
         n = len(fixed)
         aq = self._quantities(stmts, n, None, self._context(outer, n), line_formulas)
         totals = self._totals(aq)
@@ -883,10 +932,30 @@ class _Analyzer:
             fp.typical_piece = self._typical_piece(tot_el.formula, outer, fixed, tot_el.worst_at)
         if reasons:
             fp.notes.append("formula not available (" + "; ".join(reasons) + "): values at the --at sizes only")
+        missing = self.left_out(stmts)
+        if missing:
+            self._mark_lower_bound(fp, "references that are not modelled are left out (" + ", ".join(missing)
+                                   + ")", set(missing.values()))
         if n and stmts and outer is not None:
             self._worst(fp, stmts, fixed, outer, totals)
+            if fp.lower_bound and fp.worst is not None:
+                fp.worst.lower_bound = True
         self._cache[key] = fp
         return fp
+
+    @staticmethod
+    def _mark_lower_bound(fp: Footprint, why: str, arrays: set[str] | None = None) -> None:
+        """The footprint misses some references (of `arrays`; None: of any array): its totals, and
+        those arrays' shares, are at least what is shown."""
+        fp.lower_bound = True
+        fp.notes.append("lower bound: " + why)
+        counts = [fp.elements, fp.bytes, fp.lines]
+        for name, a in fp.by_array.items():
+            if arrays is None or name in arrays:
+                counts += [a.elements, a.bytes, a.lines]
+        for c in counts:
+            if isinstance(c, FCount):
+                c.lower_bound = True
 
     def _context(self, outer: isl.Set | None, n: int) -> isl.Set:
         ctx = self.nest.context
@@ -1017,8 +1086,10 @@ class _Analyzer:
         """Per array: { L[first depth+1 loop variables] -> cache line (element if size unknown) }."""
         rel: dict[str, isl.Map] = {}
         for s in stmts:
+            if s.domain is None:  # not modelled: what it touches is unknown (see reuse)
+                continue
             for a in s.accesses:
-                if a.map is None:
+                if not self.usable(a):
                     continue
                 m = _name_in(a.map.intersect_domain(s.domain), s.loop_vars)
                 nin = m.dim(isl.dim_type.in_)
@@ -1047,6 +1118,9 @@ class _Analyzer:
                 pairs = m.apply_range(dst[name].reverse())
                 if not pairs.intersect(later).is_empty():
                     return True
+            # no reuse among what is modelled; what is left out may still touch the same lines
+            if any(s.domain is None for s in outer) or self.left_out(outer):
+                return None
             return False
         except isl.Error:
             return None
@@ -1076,12 +1150,17 @@ class _Analyzer:
             safe = False
             has_formula = q.formula is not None
         value = fp.lines.value
+        if fp.lower_bound and (fp.lines.bound or (fp.worst is not None and fp.worst.bound)):
+            return  # an upper bound of a footprint that misses references bounds nothing
         if value is not None:
             ws.occupancy = int(value) * self.line
             for lv in self.caches.levels:
-                ws.fits[lv.name] = ws.occupancy <= lv.size
-        if not has_formula:  # a search by enumeration would count ever larger sets
-            return
+                if not fp.lower_bound:
+                    ws.fits[lv.name] = ws.occupancy <= lv.size
+                elif ws.occupancy > lv.size:  # a lower bound proves only that a cache is exceeded
+                    ws.fits[lv.name] = False
+        if not has_formula or fp.lower_bound:  # a search by enumeration would count ever larger sets;
+            return  # a threshold of a lower bound is no threshold of the working set
         ws.lines_at, ws.line_size = lines_at, self.line
         param = self._solve_param(lines_at)
         if param is None:
@@ -1177,7 +1256,8 @@ def _scaled_count(c: FCount, k: int) -> FCount:
     """k times a count (bytes from elements: the maximum is at the same place)."""
     return FCount(value=None if c.value is None else c.value * k,
                   formula=None if c.formula is None else c.formula.scale(k), note=c.note,
-                  at_piece=c.at_piece, value_is=c.value_is, bound=c.bound, worst_at=c.worst_at)
+                  at_piece=c.at_piece, value_is=c.value_is, bound=c.bound, worst_at=c.worst_at,
+                  lower_bound=c.lower_bound)
 
 
 def _zero(nest: Nest) -> Any:
@@ -1421,7 +1501,9 @@ def intensity(nest_flops: flops_mod.Flops, footprint: Footprint, nest: Nest, opt
     note = None
     if bc.value is None and bc.note:
         note = bc.note
-    return Intensity(value, asym, roof, note)
+    if footprint.lower_bound:
+        note = "upper bound: the footprint it divides by leaves references out (a lower bound)"
+    return Intensity(value, asym, roof, note, upper_bound=footprint.lower_bound)
 
 
 # --------------------------------------------------------------------------
@@ -1460,8 +1542,12 @@ def _value_text(c: Count | None, unit: str = "") -> str:
         text = fmt_bytes(v)
     else:
         text = f"{int(v):,}" if isinstance(v, int) else str(v)
+    if getattr(c, "bound", False) and getattr(c, "lower_bound", False):
+        return "unknown"  # an upper bound of a footprint that misses references bounds nothing
     if getattr(c, "bound", False):
         text = "<= " + text
+    elif getattr(c, "lower_bound", False):
+        text = ">= " + text
     return text
 
 
@@ -1518,6 +1604,8 @@ def text_table(nf: NestFootprint) -> list[str]:
             if nf.at and fp.bytes.value is None and fp.elements.value is not None:
                 value = f"{_value_text(fp.elements)} elements"
             in_lines = fmt_bytes(ws.occupancy) if ws.occupancy is not None else ("-" if nf.at else "")
+            if ws.occupancy is not None and fp.lower_bound and not fp.lines.bound:
+                in_lines = ">= " + in_lines
             rows.append((f"{ws.loop.var} (line {ws.loop.span.line})", expr, value, in_lines, fits, reuse))
         widths = [min(max(len(r[k]) for r in rows), 60) for k in range(6)]
         for r in rows:
@@ -1526,6 +1614,10 @@ def text_table(nf: NestFootprint) -> list[str]:
         if nf.at:
             out.append("  (values: the largest over the outer loop variables; 'in lines': the whole cache lines "
                        "they occupy; 'fits': the smallest cache holding them)")
+        partial = [ws for ws in nf.levels if ws.whole.lower_bound]
+        if partial:
+            out.append("  (>=: a lower bound, the loop's references that are not modelled are left out: "
+                       + ", ".join(f"loop {ws.loop.var}" for ws in partial) + ")")
     fp = nf.footprint
     n_arr = len(fp.by_array)
     if n_arr:
@@ -1535,7 +1627,7 @@ def text_table(nf: NestFootprint) -> list[str]:
         if by is not None:
             line += f", {_short(by, fp.bytes)} bytes"
         if nf.at and fp.bytes.value is not None:
-            line += f" = {fmt_bytes(fp.bytes.value)} at {at}"
+            line += f" {'>=' if fp.lower_bound else '='} {fmt_bytes(fp.bytes.value)} at {at}"
         elif fp.bytes.note and fp.bytes.value is None:
             line += f" ({fp.bytes.note})"
         out.append(line)
@@ -1577,11 +1669,13 @@ def _flops_lines(nf: NestFootprint, at: str) -> list[str]:
             parts.append(f"{it.asymptotic} flop/byte for large sizes")
         if it.value is not None:
             parts.append(f"{float(it.value):.3g} at {at}")
-        out.append("arithmetic intensity " + "; ".join(parts)
-                   + " (model estimate: flops / compulsory bytes, each moved once)")
+        out.append("arithmetic intensity " + ("at most " if it.upper_bound else "") + "; ".join(parts)
+                   + " (model estimate: flops / compulsory bytes, each moved once"
+                   + ("; the footprint is a lower bound)" if it.upper_bound else ")"))
         if it.roofline:
             r = it.roofline
-            out.append(f"roofline estimate: {r['attainable_gflops']:g} GFLOP/s attainable, bound by {r['bound_by']} "
+            out.append(f"roofline estimate: {'at most ' if it.upper_bound else ''}{r['attainable_gflops']:g} "
+                       f"GFLOP/s attainable, bound by {r['bound_by']} "
                        f"(model estimate: peak {r['peak_gflops']:g} GFLOP/s, {r['bandwidth_gbs']:g} GB/s)")
     return out
 
@@ -1600,6 +1694,14 @@ def analyze(result: NestResult, options: Options) -> None:
     unknown = sorted(a.name for a in an.arrays.values() if not a.elem)
     if unknown:
         diags.append(ElementSizeUnknown(nest.span, arrays=", ".join(f"'{a}'" for a in unknown)))
+    for name, (first, other) in sorted(an.mixed.items()):
+        k, m = first.map.dim(isl.dim_type.out), other.map.dim(isl.dim_type.out)
+        diags.append(FootprintRefused(
+            other.span, what=f"array '{name}'",
+            reason=(f"it is used with {m} subscript{'s' if m != 1 else ''} here and with {k} "
+                    f"subscript{'s' if k != 1 else ''} at {first.span.line}:{first.span.column}, so its elements "
+                    "have no single index space; its references are left out and the working sets that contain "
+                    "them are lower bounds")))
     assumptions = LAYOUT_NOTE + "; cache fit: " + CACHE_ASSUMPTIONS
     levels: list[WorkingSet] = []
     by_index: dict[int, LoopResult] = {lr.loop.index: lr for lr in result.loops}
@@ -1636,12 +1738,8 @@ def analyze(result: NestResult, options: Options) -> None:
     good = [s for s in nest.statements if s.domain is not None]
     nest_fp = an.scope(good, (), None, "the whole nest (compulsory footprint)")
     if refused_stmts:
-        nest_fp.notes.append("lower bound: statements that could not be modelled are left out ("
+        an._mark_lower_bound(nest_fp, "statements that could not be modelled are left out ("
                              + ", ".join(s.id for s in refused_stmts) + ")")
-    dropped = sorted({f"{a.array}[{']['.join(a.subscripts)}]" for s in good for a in s.accesses if a.map is None})
-    if dropped:
-        nest_fp.notes.append("lower bound: references with subscripts that are not affine are left out ("
-                             + ", ".join(dropped) + ")")
     limit_notes: list[str] = []
     for fp in [nest_fp] + [w.whole for w in levels] + [w.per_iteration for w in levels if w.per_iteration]:
         for note in fp.notes:
@@ -1688,6 +1786,7 @@ def _flag(ws: WorkingSet, an: _Analyzer, diags: list[Diagnostic]) -> None:
     if fp.fixed:
         at += " (largest over " + ", ".join(fp.fixed) + ")"
     diags.append(WorkingSetExceedsCache(
-        ws.loop.header, var=ws.loop.var, line=ws.loop.span.line, size=fmt_bytes(ws.occupancy), at=at,
+        ws.loop.header, var=ws.loop.var, line=ws.loop.span.line,
+        size=("at least " if fp.lower_bound else "") + fmt_bytes(ws.occupancy), at=at,
         level=largest.name, capacity=fmt_bytes(largest.size), outer=ws.outer_var, fits=fits_text, threshold=threshold,
         assumptions=CACHE_MODEL_SHORT + f", whole {an.caches.line_size} B lines; cache sizes {_sources(an.caches)}"))

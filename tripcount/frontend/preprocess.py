@@ -28,11 +28,33 @@ PREDEFINED = {
     "_OPENMP": "201511",
 }
 
-# Expansion budget: tokens produced by all expansions together, as a multiple
-# of the input size (plus a floor), and how deep macro arguments may nest.
+# Expansion budgets, in tokens produced (every expansion step counts, the
+# rescans and the argument pre-expansions too): per use of a macro in the text,
+# and for all expansions of the file together (a multiple of the input size
+# plus a floor); and how deep macro arguments may nest. A use past its budget
+# is read as written (TC118); past the file's, nothing more is expanded (TC108).
+MAX_USE_TOKENS = 20_000
 EXPANSION_FACTOR = 20
-EXPANSION_FLOOR = 2_000_000
+EXPANSION_FLOOR = 100_000
 MAX_ARG_DEPTH = 64
+
+
+class MacroUseTooLarge(Diagnostic):
+    """One use of a macro would expand to more tokens than its budget; it is read as written."""
+
+    code = "TC118"
+    severity = "warning"
+    title = "macro-use-too-large"
+    template = ("the use of macro '{name}' at {where} would produce more than {limit} tokens; "
+                "it is read as written, unexpanded")
+
+
+class _Overrun(Exception):
+    """An expansion step went past a budget (`file`: the file's, else the use's)."""
+
+    def __init__(self, file: bool) -> None:
+        super().__init__("file" if file else "use")
+        self.file = file
 
 
 class SourceMap:
@@ -281,6 +303,7 @@ class Preprocessor:
         self.recorded: list[ir.Macro] = []
         self.budget = 0
         self.exhausted = False
+        self.use_left: int | None = None  # tokens the current macro use may still produce
         self.recursion_noted: set[str] = set()
         for name, value in PREDEFINED.items():
             self.macros[name] = MacroDef(name, None, tokenize(value))
@@ -480,7 +503,10 @@ class Preprocessor:
                 continue
             pre.append(t)
             k += 1
+        before = len(self.diags)
         expanded = self._expand(pre)
+        if any(isinstance(x, (MacroUseTooLarge, d.ExpansionLimit)) for x in self.diags[before:]):
+            raise _CondEvalError("a macro in it expands past the budget")  # its name would read as 0
         values: list[int | str] = []
         for idx, t in enumerate(expanded):
             if t.kind == "num":
@@ -511,14 +537,28 @@ class Preprocessor:
 
     # ------------------------------------------------------------------ expansion
     def _expand(self, toks: list[Tok], depth: int = 0) -> list[Tok]:
-        """Expand macros in `toks` (C's rescanning rules, with hide sets)."""
+        """Expand macros in `toks` (C's rescanning rules, with hide sets).
+
+        At depth 0 (text, not a macro argument) each macro use is expanded
+        under its own budget: when it or the file's budget runs out, what the
+        use produced is dropped and its source tokens are kept as written.
+        """
         macros = self.macros
         if not macros or self.exhausted:
             return list(toks)
         out: list[Tok] = []
         stack = toks[::-1]
         pop = stack.pop
+        n = len(toks)
+        top = depth == 0
+        # the use being expanded (depth 0): its first token, where its output starts in `out`,
+        # its first source token, and the stack height below which the stack is untouched source
+        use_tok: Tok | None = None
+        use_out = use_src = use_base = 0
         while stack:
+            if use_tok is not None and len(stack) <= use_base:
+                use_tok = None  # everything the use produced has been read
+                self.use_left = None
             t = pop()
             if t.kind != "id":
                 out.append(t)
@@ -531,32 +571,66 @@ class Preprocessor:
                 self._note_recursion(t)
                 out.append(t)
                 continue
+            if m.params is not None and (not stack or stack[-1].value != "("):
+                out.append(t)  # a function-like macro name without arguments is a plain name
+                continue
+            starts = top and use_tok is None
+            if starts:
+                use_tok, use_out, use_src = t, len(out), n - 1 - len(stack)
+                self.use_left = MAX_USE_TOKENS
             hide = (t.hide or frozenset()) | {m.name}
-            if m.params is None:
-                body = self._substitute(m, [], t.start, t.end, hide, depth)
+            try:
+                if m.params is None:
+                    body = self._substitute(m, [], t.start, t.end, hide, depth)
+                else:
+                    args, close = self._collect_args(stack, m, t)
+                    if args is None:
+                        if starts:
+                            use_tok = None
+                            self.use_left = None
+                        out.append(t)
+                        continue
+                    body = self._substitute(m, args, t.start, close.end, hide, depth)
                 if body:
                     body[0].space = t.space
-            else:
-                if not stack or stack[-1].value != "(":
-                    out.append(t)  # a function-like macro name without arguments is a plain name
-                    continue
-                args, close = self._collect_args(stack, m, t)
-                if args is None:
-                    out.append(t)
-                    continue
-                body = self._substitute(m, args, t.start, close.end, hide, depth)
-                if body:
-                    body[0].space = t.space
-            self.budget -= len(body)
-            if self.budget < 0:
-                self.exhausted = True
-                self.diags.append(d.ExpansionLimit(self._span(t), where=self._where(t),
-                                                   reason="the expansion grew too large"))
-                out.append(t)
-                out.extend(reversed(stack))
-                return out
+                self._charge(len(body))
+            except _Overrun as over:
+                if not top:
+                    raise
+                assert use_tok is not None
+                use_base = min(use_base, len(stack)) if not starts else len(stack)
+                del out[use_out:]
+                del stack[use_base:]
+                out.extend(toks[use_src:n - use_base])  # the use as written
+                if over.file:
+                    self.exhausted = True
+                    self.diags.append(d.ExpansionLimit(self._span(use_tok), where=self._where(use_tok),
+                                                       reason="the file's expansion budget is spent"))
+                    out.extend(reversed(stack))
+                    return out
+                self.diags.append(MacroUseTooLarge(self._span(use_tok), name=use_tok.value,
+                                                   where=self._where(use_tok), limit=MAX_USE_TOKENS))
+                use_tok = None
+                self.use_left = None
+                continue
+            if starts:
+                use_base = len(stack)
+            elif use_tok is not None:
+                use_base = min(use_base, len(stack))  # a rescan may take source tokens as arguments
             stack.extend(reversed(body))
+        if top:
+            self.use_left = None
         return out
+
+    def _charge(self, produced: int) -> None:
+        """Count `produced` tokens against the file's budget and the current use's."""
+        self.budget -= produced
+        if self.budget < 0:
+            raise _Overrun(file=True)
+        if self.use_left is not None:
+            self.use_left -= produced
+            if self.use_left < 0:
+                raise _Overrun(file=False)
 
     def _note_recursion(self, t: Tok) -> None:
         if t.value not in self.recursion_noted:

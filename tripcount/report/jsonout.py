@@ -17,7 +17,7 @@ from tripcount.analysis.results import (
     Report,
     StatementResult,
 )
-from tripcount.ir import OmpClauses, Span
+from tripcount.ir import OmpClauses, Span, c_text
 from tripcount.report.base import Reporter
 
 SCHEMA_VERSION = 1
@@ -45,14 +45,13 @@ def omp_json(omp: OmpClauses | None) -> dict[str, Any] | None:
     """The pragma part of a loop's `parallel` object."""
     if omp is None:
         return None
-    from tripcount.report.text import expr_text
 
     return {
         "directive": omp.directive,
         "schedule": omp.schedule,
-        "chunk": expr_text(omp.chunk) if omp.chunk is not None else None,
+        "chunk": c_text(omp.chunk) if omp.chunk is not None else None,
         "collapse": omp.collapse,
-        "num_threads": expr_text(omp.num_threads) if omp.num_threads is not None else None,
+        "num_threads": c_text(omp.num_threads) if omp.num_threads is not None else None,
     }
 
 

@@ -15,33 +15,6 @@ from tripcount.analysis.results import Count, FileResult, NestResult, Report
 from tripcount.report.base import Reporter
 
 
-def expr_text(e: ir.Expr | None) -> str:
-    """C text of an IR expression (for pragma clauses and labels)."""
-    if e is None:
-        return ""
-    if isinstance(e, ir.IntLit):
-        return str(e.value)
-    if isinstance(e, ir.FloatLit):
-        return e.text
-    if isinstance(e, ir.Name):
-        return e.name
-    if isinstance(e, ir.Unary):
-        return e.op + expr_text(e.operand)
-    if isinstance(e, ir.Binary):
-        return f"{expr_text(e.left)} {e.op} {expr_text(e.right)}"
-    if isinstance(e, ir.Call):
-        return f"{e.func}({', '.join(expr_text(a) for a in e.args)})"
-    if isinstance(e, ir.ArrayRef):
-        return e.array + "".join(f"[{expr_text(i)}]" for i in e.indices)
-    if isinstance(e, ir.Ternary):
-        return f"{expr_text(e.cond)} ? {expr_text(e.then)} : {expr_text(e.other)}"
-    if isinstance(e, ir.Cast):
-        return f"({e.type_name}){expr_text(e.operand)}"
-    if isinstance(e, ir.Opaque):
-        return e.text
-    return "?"
-
-
 def fmt_value(v: Any) -> str:
     """An exact value with thousands separators."""
     if v is None:
@@ -143,7 +116,7 @@ class TextReporter(Reporter):
             omp = ""
             if loop.omp is not None:
                 omp = f"  [omp {loop.omp.directive}" + (f" schedule({loop.omp.schedule}" + (
-                    f", {expr_text(loop.omp.chunk)}" if loop.omp.chunk is not None else "") + ")"
+                    f", {ir.c_text(loop.omp.chunk)}" if loop.omp.chunk is not None else "") + ")"
                     if loop.omp.schedule else "") + "]"
             if lr.trips.formula is None and lr.trips.value is None:
                 row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   not counted (see the diagnostics)", "")
