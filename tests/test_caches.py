@@ -76,3 +76,10 @@ def test_fmt_bytes_binary_units():
     assert caches.fmt_bytes(33 * 1024 + 512) == "33.5 KiB"
     assert caches.fmt_bytes(130 * 1024) == "130 KiB"
     assert caches.fmt_bytes(int(1.25 * 1024**2)) == "1.25 MiB"
+
+
+def test_fmt_bytes_beyond_gib():
+    # common practice: binary prefixes continue with TiB, PiB, EiB (IEC 80000-13)
+    assert caches.fmt_bytes(3 * 1024**4) == "3 TiB"
+    assert caches.fmt_bytes(1.5 * 1024**5) == "1.5 PiB"
+    assert caches.fmt_bytes(2**63) == "8 EiB"

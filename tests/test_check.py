@@ -111,6 +111,21 @@ def test_working_set_unknown_is_a_note_not_a_failure():
     assert "at" in found[0].message
 
 
+def test_lower_bound_working_set_is_not_a_pass():
+    # a working set that leaves out unmodelled references proves nothing under
+    # the budget (a note says so); above it, it is a finding all the same
+    levels = {"L1": 32768, "L2": 262144}
+    b = check.Budgets(max_working_set="L1")
+    nest = make_nest(ws=30000)
+    nest["loops"][1]["working_set"]["lower_bound"] = True
+    found = check.budget_findings(nest, b, Opts(at={"N": 100}), LINES, levels)
+    assert [(d.code, d.severity) for d in found] == [("TC604", "note")]
+    assert "lower bound" in found[0].message
+    nest = make_nest(ws=40000)
+    nest["loops"][1]["working_set"]["bytes"] = {"value": 40000, "pieces": None, "lower_bound": True}
+    assert [d.code for d in check.budget_findings(nest, b, Opts(at={"N": 100}), LINES, levels)] == ["TC602"]
+
+
 def test_unknown_level_is_a_configuration_error():
     with pytest.raises(ConfigError):
         check.budget_findings(make_nest(ws=10), check.Budgets(max_working_set="L4"), Opts(), LINES, {"L1": 1})

@@ -694,3 +694,21 @@ def test_array_with_two_subscript_counts_gets_a_diagnostic_and_the_rest_is_count
     # S is undeclared there, but it is out of the footprint: no element-size note for it
     assert not [d for d in nests["silt_mixed"].diagnostics if d.code == "TC403"]
 
+
+def test_gate_detail_computes_innermost_working_sets_only():
+    """`tripcount check` (detail "gate") needs only the innermost working sets: the
+    same values as the full analysis there, nothing at the outer levels."""
+    from tripcount import pipeline
+
+    path = os.path.join(HARDENING, "quay_gate_product.c")
+    at = {"N": 12, "M": 10, "K": 7}
+    full = pipeline.analyze_file(path, Options(at=at, line_size=64)).nests[0]
+    gate = pipeline.analyze_file(path, Options(at=at, line_size=64, detail="gate")).nests[0]
+    has = {lr.loop.var: "working_set" in lr.extras for lr in gate.loops}
+    assert has == {"i": False, "j": False, "k": True}
+    ws_full = next(lr for lr in full.loops if lr.loop.var == "k").extras["working_set"]
+    ws_gate = next(lr for lr in gate.loops if lr.loop.var == "k").extras["working_set"]
+    assert ws_gate.per_iteration is None and ws_full.per_iteration is not None
+    # brute force: one k loop touches K elements of A's row i and K of B's column j
+    assert ws_gate.whole.elements.value == ws_full.whole.elements.value == 2 * at["K"]
+    assert ws_gate.occupancy == ws_full.occupancy

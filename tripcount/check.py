@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import argparse
 import ast
+import dataclasses
 import difflib
 import fnmatch
 import json
@@ -32,6 +33,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Any, TextIO
 
+from tripcount.analysis.caches import fmt_bytes
 from tripcount.config import Config, ConfigError, load_config, parse_bytes
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
@@ -301,6 +303,15 @@ def working_set_bytes(ws: Any) -> float | None:
     return None
 
 
+def is_lower_bound(ws: Any) -> bool:
+    """True when a loop's working set leaves out references it could not model."""
+    if not isinstance(ws, dict):
+        return False
+    if ws.get("lower_bound"):
+        return True
+    return any(isinstance(ws.get(k), dict) and ws[k].get("lower_bound") for k in ("bytes", "worst"))
+
+
 def cache_levels(options: Any) -> dict[str, int]:
     """Cache level capacities: configuration, else host, else labelled defaults.
 
@@ -332,15 +343,6 @@ def level_of(size: float, levels: dict[str, int]) -> str:
 def _level_rank(name: str, levels: dict[str, int]) -> int:
     order = [n for n, _ in sorted(levels.items(), key=lambda kv: (kv[1], kv[0]))]
     return order.index(name) if name in order else len(order)
-
-
-def fmt_bytes(n: float) -> str:
-    """Bytes in binary units."""
-    for unit, scale in (("GiB", 1024**3), ("MiB", 1024**2), ("KiB", 1024)):
-        if n >= scale:
-            v = n / scale
-            return f"{v:.1f} {unit}" if v != int(v) else f"{int(v)} {unit}"
-    return f"{int(n)} B"
 
 
 def innermost_loops(nest: dict[str, Any]) -> list[dict[str, Any]]:
@@ -615,6 +617,10 @@ def budget_findings(nest: dict[str, Any], budgets: Budgets, options: Any, lines:
                 out.append(WorkingSetBudget(_loop_span(lp, lines), var=lp.get("var", "?"), size=fmt_bytes(size),
                                             at=_at_text(options.at), level=level_of(size, levels),
                                             budget=budget_text, where=where))
+            elif is_lower_bound(lp.get("working_set")):
+                out.append(BudgetUnchecked(nest_span, budget="max_working_set", reason=(
+                    f"the working set of loop '{lp.get('var', '?')}' is only known as a lower bound "
+                    f"({fmt_bytes(size)}: references that are not modelled are left out)")))
     if budgets.max_imbalance is not None:
         threads = getattr(options, "threads", None)
         for lp in nest.get("loops", []):
@@ -834,7 +840,7 @@ def check_file(path: str, args: argparse.Namespace, git: Git, use_cache: bool) -
     config = load_config(path)
     table = effective_table(config, path)
     budgets = budgets_from(table, config.path)
-    options = options_from(args, Config(path=config.path, table=table))
+    options = dataclasses.replace(options_from(args, Config(path=config.path, table=table)), detail="gate")
     text, bad = read_source(path)
     result = analyze_file_cached(path, text, options, use_cache=use_cache)
     if bad is not None:

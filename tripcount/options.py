@@ -34,6 +34,15 @@ class Options:
     # performance model (optional roofline)
     peak_gflops: float | None = None
     bandwidth_gbs: float | None = None
+    # "full": every analysis at every loop level; "gate": what `tripcount check`
+    # holds against budgets and baselines (statement counts, innermost working
+    # sets, balance), so that a cold pre-commit run stays fast
+    detail: str = "full"
+
+    @property
+    def gate(self) -> bool:
+        """Only what the gate needs (see `detail`)."""
+        return self.detail == "gate"
 
     def sizes(self, params: Iterable[str]) -> dict[str, int] | None:
         """Values of `params` at the --at sizes, or None unless every one is given.

@@ -177,10 +177,14 @@ def _level_number(name: str) -> int:
     return int(digits) if digits else 99
 
 
+_UNITS = tuple((u, 1024 ** k) for k, u in reversed(list(enumerate(("KiB", "MiB", "GiB", "TiB", "PiB", "EiB"), 1))))
+
+
 def fmt_bytes(n: int | float) -> str:
-    """Bytes with binary units: '512 B', '48 KiB', '1.5 MiB', '2.25 GiB' (at most 3 significant digits)."""
+    """Bytes with binary units: '512 B', '48 KiB', '1.5 MiB', '2.25 GiB', '3.5 EiB'
+    (at most 3 significant digits; beyond EiB the count grows)."""
     n = float(n)
-    for unit, scale in (("GiB", 1024**3), ("MiB", 1024**2), ("KiB", 1024)):
+    for unit, scale in _UNITS:
         if abs(n) >= scale:
             v = n / scale
             text = f"{v:.2f}" if abs(v) < 10 else (f"{v:.1f}" if abs(v) < 100 else f"{v:.0f}")

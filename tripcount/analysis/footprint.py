@@ -1707,7 +1707,11 @@ def analyze(result: NestResult, options: Options) -> None:
     by_index: dict[int, LoopResult] = {lr.loop.index: lr for lr in result.loops}
     refused_stmts = [s for s in nest.statements if s.domain is None]
     refused_loops: list[Loop] = []
+    # the gate (options.detail == "gate") holds only innermost working sets against budgets
+    has_inner = {lp.parent for lp in nest.loops if lp.parent is not None} if options.gate else set()
     for loop in nest.loops:
+        if loop.index in has_inner:
+            continue
         stmts = an.statements_in(loop)
         if loop.domain is None or any(s.domain is None for s in stmts):
             refused_loops.append(loop)
@@ -1720,7 +1724,8 @@ def analyze(result: NestResult, options: Options) -> None:
         whole = an.scope(stmts, fixed, parent.domain if parent else None, whole_label)
         it_label = (f"one iteration of loop '{loop.var}' (its body for one value of {loop.var}"
                     + (f", with {', '.join(fixed)} fixed)" if fixed else ")"))
-        per_it = an.scope(stmts, fixed + (loop.var,), loop.domain, it_label, line_formulas=False)
+        per_it = None if options.gate else an.scope(stmts, fixed + (loop.var,), loop.domain, it_label,
+                                                    line_formulas=False)
         reuse = an.reuse(stmts, an.statements_in(parent), parent.depth) if parent is not None else None
         ws = WorkingSet(loop, whole, per_it, reuse, assumptions=assumptions,
                         outer_var=parent.var if parent is not None else None)

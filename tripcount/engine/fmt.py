@@ -157,6 +157,24 @@ def _eval_mod(p: QPoly, point: dict) -> int:
     return total % _PRIME
 
 
+def _roots_mod(coeffs: dict[int, int]) -> list[int] | None:
+    """Roots modulo the prime of a polynomial of degree 1 or 2 (None: another degree,
+    or a leading coefficient that vanishes at the probe point; then test each candidate)."""
+    n = max(coeffs)
+    lead = coeffs.get(n, 0)
+    if lead == 0 or n > 2:
+        return None
+    c0, c1 = coeffs.get(0, 0), coeffs.get(1, 0)
+    if n == 1:
+        return [-c0 * pow(c1, -1, _PRIME) % _PRIME]
+    disc = (c1 * c1 - 4 * lead * c0) % _PRIME
+    root = pow(disc, (_PRIME + 1) // 4, _PRIME)  # the prime is 3 mod 4
+    if root * root % _PRIME != disc:
+        return []
+    inv = pow(2 * lead, -1, _PRIME)
+    return list({(-c1 + root) * inv % _PRIME, (-c1 - root) * inv % _PRIME})
+
+
 def _horner_mod(coeffs: dict[int, int], value: int) -> int:
     out = 0
     for k in range(max(coeffs), -1, -1):
@@ -219,21 +237,24 @@ def format_qpoly(p: QPoly) -> str:
         atoms = sorted(q.atoms(), key=atom_key)
         point = _probe_point(atoms)
         cands = [(b, mult, k, _root_mod(b, mult, k, point)) for b, mult, k in _root_candidates(None, atoms)]
+        by_value: dict[int, list[int]] = {}
+        for idx, cand in enumerate(cands):
+            by_value.setdefault(cand[3], []).append(idx)
         for a in atoms:
             coeffs = q.coeffs_in_atom(a)
             if max(coeffs) < 1:
                 continue
             mod_coeffs = {k: _eval_mod(c, point) for k, c in coeffs.items()}
-            target = None
-            if max(coeffs) == 1 and mod_coeffs.get(1, 0):
-                target = -mod_coeffs.get(0, 0) * pow(mod_coeffs[1], -1, _PRIME) % _PRIME
-            for b, mult, k, value in cands:
-                # a nonzero value at one point proves 'not a root'; only the
-                # survivors are built and pay for the exact symbolic test
+            # a nonzero value at one point proves 'not a root'; only the
+            # survivors are built and pay for the exact symbolic test
+            roots = _roots_mod(mod_coeffs)
+            if roots is None:
+                survivors = [i for i, cand in enumerate(cands) if _horner_mod(mod_coeffs, cand[3]) == 0]
+            else:
+                survivors = sorted(i for r in roots for i in by_value.get(r, ()))
+            for b, mult, k, _value in (cands[i] for i in survivors):
                 if b == a:
                     continue  # factoring is formal: atoms are independent symbols here
-                if (value != target) if target is not None else _horner_mod(mod_coeffs, value) != 0:
-                    continue
                 root = QPoly.const(k) if b is None else QPoly.atom(b) * mult + k
                 if _horner(coeffs, root).is_zero():
                     quo = _rebuild(_divide_linear(coeffs, root), a)

@@ -129,6 +129,11 @@ class Piecewise(PieceList):
         if not isinstance(other, Piecewise):
             return NotImplemented
         params = tuple(dict.fromkeys(self.params + other.params))
+        # adding nothing (an array a scope does not touch): no new pieces to build
+        if not other.pieces and params == self.params:
+            return self
+        if not self.pieces and params == other.params:
+            return other
         ctx = self.context if self.context is not None else other.context
         if self.context is not None and other.context is not None:
             ctx = self.context.intersect(other.context)

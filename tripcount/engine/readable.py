@@ -38,6 +38,10 @@ _ZERO = Fraction(0)
 _MAX_PERIOD = 64
 _MAX_DEGREE = 6
 _MAX_TERMS = 60
+# Formulas with more distinct floors than this (long per-level footprints of
+# strided loops) are printed as they are: the search grows with the square of
+# their number and rarely finds much.
+_MAX_FLOORS = int(os.environ.get("TRIPCOUNT_READABLE_FLOORS", "8"))
 # Work per formula, counted in candidate bases tried (deterministic, so the
 # printed form never depends on machine speed): most formulas settle within a
 # dozen; long per-level footprints of strided loops would try hundreds.
@@ -369,7 +373,7 @@ def _readable(p: QPoly, fmt) -> str:
         return c[:2]
 
     base = fmt(p)
-    if not p.floors() or len(p.terms) > _MAX_TERMS:
+    if not p.floors() or len(p.terms) > _MAX_TERMS or len(p.floors()) > _MAX_FLOORS:
         return base
     memo[p] = (*text_cost(base), base)
     q = p
