@@ -69,9 +69,27 @@ def sum_over(
 ) -> Piecewise:
     """Sum of `weight` (over set-dimension and parameter names) over the integer points of s."""
     limits = limits or Limits()
-    st = _State(limits)
     if context is not None and isinstance(context, isl.BasicSet):
         context = isl.Set.from_basic_set(context)
+    key = (s.to_str(), None if context is None else context.to_str(), weight, limits.max_pieces)
+    found = _MEMO.get(key)
+    if found is None:
+        found = _sum_over(s, weight, context, limits)
+        if len(_MEMO) >= _MEMO_MAX:
+            _MEMO.clear()
+        _MEMO[key] = found
+    return found
+
+
+# Results by (set, context, weight) text: kernels repeat the same loop shapes
+# (and the footprint analysis counts the same images per level), and a result
+# is exact whatever the limits it was found under. Give-ups are not kept.
+_MEMO: dict[tuple, Piecewise] = {}
+_MEMO_MAX = 4096
+
+
+def _sum_over(s: isl.Set, weight: QPoly, context: isl.Set | None, limits: Limits) -> Piecewise:
+    st = _State(limits)
     prepared, rename = _prepare(s, context)
     params = _params(prepared)
     unknown = weight.variables() - set(rename) - set(params)

@@ -72,6 +72,9 @@ class Piece:
         return cond.contains(values)
 
 
+_SUMS: dict[tuple, Piecewise] = {}
+
+
 class PieceList:
     """Evaluation and JSON shared by piecewise formulas: `pieces` hold `poly`,
     `when` and `contains(values)`; disjoint, generic piece first, 0 outside."""
@@ -134,10 +137,17 @@ class Piecewise(PieceList):
             return self
         if not self.pieces and params == other.params:
             return other
-        ctx = self.context if self.context is not None else other.context
-        if self.context is not None and other.context is not None:
-            ctx = self.context.intersect(other.context)
-        return build(self._terms() + other._terms(), params, ctx)
+        key = (self, other)  # by identity: engine results are shared between equal sets
+        found = _SUMS.get(key)
+        if found is None:
+            ctx = self.context if self.context is not None else other.context
+            if self.context is not None and other.context is not None:
+                ctx = self.context.intersect(other.context)
+            found = build(self._terms() + other._terms(), params, ctx)
+            if len(_SUMS) >= 1024:
+                _SUMS.clear()
+            _SUMS[key] = found
+        return found
 
     def scale(self, c: int | Fraction) -> Piecewise:
         """The piecewise multiplied by a constant."""

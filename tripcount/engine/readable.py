@@ -23,7 +23,6 @@
 
 from __future__ import annotations
 
-import os
 from fractions import Fraction
 from itertools import combinations
 from math import lcm
@@ -41,11 +40,11 @@ _MAX_TERMS = 60
 # Formulas with more distinct floors than this (long per-level footprints of
 # strided loops) are printed as they are: the search grows with the square of
 # their number and rarely finds much.
-_MAX_FLOORS = int(os.environ.get("TRIPCOUNT_READABLE_FLOORS", "8"))
+_MAX_FLOORS = 8
 # Work per formula, counted in candidate bases tried (deterministic, so the
 # printed form never depends on machine speed): most formulas settle within a
 # dozen; long per-level footprints of strided loops would try hundreds.
-_MAX_BASES = int(os.environ.get("TRIPCOUNT_READABLE_BASES", "40"))
+_MAX_BASES = 20
 # Texts already chosen, by formula: reports print the same counts many times
 # (bytes and lines of each array, per level, in text and JSON).
 _MEMO: dict[QPoly, str] = {}
