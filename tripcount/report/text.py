@@ -72,8 +72,9 @@ class TextReporter(Reporter):
             self.write_file(fr, at)
         n_diag = sum(len(f.all_diagnostics()) for f in report.files)
         at = at.replace("*=", "every other size=") if "*=" in at and at.count("=") > 1 else at.replace("*=", "every size=")
-        self.stream.write(f"{len(report.files)} file(s), {n_nests} nest(s), {n_diag} diagnostic(s)"
-                          + (f"; values at {at}" if at else "; give --at N=... for values") + "\n")
+        any_params = any(nr.nest.params for fr in report.files for nr in fr.nests)
+        hint = f"; values at {at}" if at else ("; give --at N=... for values" if any_params else "")
+        self.stream.write(f"{len(report.files)} file(s), {n_nests} nest(s), {n_diag} diagnostic(s){hint}\n")
 
     def write_file(self, fr: FileResult, at: str) -> None:
         """One file: its nests and diagnostics."""
@@ -89,7 +90,8 @@ class TextReporter(Reporter):
         """One nest: header, loop tree with statements, extra sections."""
         w = self.stream.write
         n = nr.nest
-        params = ", ".join(n.params) if n.params else "none"
+        modelled = any(lr.trips.formula is not None or lr.trips.value is not None for lr in nr.loops)
+        params = ", ".join(n.params) if n.params else ("none" if modelled else "unknown (the nest is not modelled)")
         w(f"{fr.path}:{n.span.line}:{n.span.column}: nest in {n.function}()   parameters: {params}\n")
         for name, text in n.symbolic.items():
             w(f"    {name} stands for {text}\n")

@@ -1,0 +1,33 @@
+# Tests of the text reporter (tripcount/report/text.py): the layout a user
+# reads in the terminal.
+
+from __future__ import annotations
+
+
+def test_triangle_nest_header_formula_and_summary(run_cli):
+    # check: n*(n + 1)/2 is OEIS A000217 (triangular numbers); 500,500 at n = 1000
+    status, out, _ = run_cli("analyze", "--code",
+                             "for (i = 0; i < n; i++) for (j = 0; j <= i; j++) s += a[i][j];", "--at", "n=1000")
+    assert status == 0
+    lines = out.splitlines()
+    assert lines[0].startswith("<code>:1:1: nest in <snippet>()") and lines[0].endswith("parameters: n")
+    s1 = next(k for k, ln in enumerate(lines) if ln.strip().startswith("S1 "))
+    assert "runs n*(n + 1)/2" in lines[s1 + 1] and lines[s1 + 1].endswith("= 500,500")
+    assert "[TC403]" in out  # undeclared array: element size unknown
+    assert lines[-1] == "1 file(s), 1 nest(s), 1 diagnostic(s); values at n=1000"
+
+
+def test_unmodelled_nest_says_so_instead_of_no_parameters(run_cli):
+    status, out, _ = run_cli("analyze", "--code", "for (i = 0; p[i] != 0; i++) A[i] += 1;")
+    assert status == 0
+    first = out.splitlines()[0]
+    assert first.endswith("parameters: unknown (the nest is not modelled)")
+    assert "not counted" in out and "[TC202]" in out
+    assert out.splitlines()[-1] == "1 file(s), 1 nest(s), 2 diagnostic(s)"  # no --at hint without sizes
+
+
+def test_constant_nest_has_no_parameters(run_cli):
+    # common practice: a 4 x 5 rectangle runs its body 20 times
+    _, out, _ = run_cli("analyze", "--code", "for (i = 0; i < 4; i++) for (j = 0; j < 5; j++) s += 1;")
+    assert out.splitlines()[0].endswith("parameters: none")
+    assert "runs 20" in out
