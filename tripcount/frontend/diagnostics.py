@@ -154,6 +154,16 @@ class FileTooLarge(Diagnostic):
                 "are not read (the limit is {limit} tokens of function bodies per file)")
 
 
+class MacroUseTooLarge(Diagnostic):
+    """One use of a macro would expand to more tokens than its budget; it is read as written."""
+
+    code = "TC118"
+    severity = "warning"
+    title = "macro-use-too-large"
+    template = ("the use of macro '{name}' at {where} would produce more than {limit} tokens; "
+                "it is read as written, unexpanded")
+
+
 class FrontEndError(Diagnostic):
     """An unexpected failure of the front end on one file; the other files are unaffected."""
 

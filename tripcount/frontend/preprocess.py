@@ -39,16 +39,6 @@ EXPANSION_FLOOR = 100_000
 MAX_ARG_DEPTH = 64
 
 
-class MacroUseTooLarge(Diagnostic):
-    """One use of a macro would expand to more tokens than its budget; it is read as written."""
-
-    code = "TC118"
-    severity = "warning"
-    title = "macro-use-too-large"
-    template = ("the use of macro '{name}' at {where} would produce more than {limit} tokens; "
-                "it is read as written, unexpanded")
-
-
 class _Overrun(Exception):
     """An expansion step went past a budget (`file`: the file's, else the use's)."""
 
@@ -505,7 +495,7 @@ class Preprocessor:
             k += 1
         before = len(self.diags)
         expanded = self._expand(pre)
-        if any(isinstance(x, (MacroUseTooLarge, d.ExpansionLimit)) for x in self.diags[before:]):
+        if any(isinstance(x, (d.MacroUseTooLarge, d.ExpansionLimit)) for x in self.diags[before:]):
             raise _CondEvalError("a macro in it expands past the budget")  # its name would read as 0
         values: list[int | str] = []
         for idx, t in enumerate(expanded):
@@ -608,7 +598,7 @@ class Preprocessor:
                                                        reason="the file's expansion budget is spent"))
                     out.extend(reversed(stack))
                     return out
-                self.diags.append(MacroUseTooLarge(self._span(use_tok), name=use_tok.value,
+                self.diags.append(d.MacroUseTooLarge(self._span(use_tok), name=use_tok.value,
                                                    where=self._where(use_tok), limit=MAX_USE_TOKENS))
                 use_tok = None
                 self.use_left = None
