@@ -60,10 +60,13 @@ def test_store_round_trip_corruption_and_clear(cache_dir):
     out = io.StringIO()
     assert cache.run_cache_command("info", out) == 0
     assert "file" in out.getvalue() and str(cache_dir) in out.getvalue()
+    (cache_dir / "grammar-0123.lark").write_bytes(b"tables")  # the compiled grammar goes too
+    (cache_dir / "mine.txt").write_text("not ours")
     out = io.StringIO()
     assert cache.run_cache_command("clear", out) == 0
     assert "removed 2 cache entries" in out.getvalue()
     assert not (cache_dir / "v1").exists()
+    assert sorted(p.name for p in cache_dir.iterdir()) == ["mine.txt"]
 
 
 def test_unwritable_cache_is_no_error(tmp_path, monkeypatch):

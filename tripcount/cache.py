@@ -27,6 +27,7 @@
 from __future__ import annotations
 
 import bisect
+import contextlib
 import hashlib
 import json
 import os
@@ -223,9 +224,19 @@ class Store:
         return out
 
     def clear(self) -> int:
-        """Remove every entry (only our layout directory); returns the number removed."""
+        """Remove every entry (only our layout directory) and the compiled grammar
+        beside it; returns the number of entries removed."""
         n = sum(c for c, _ in self.stats().values())
         shutil.rmtree(self.root, ignore_errors=True)
+        parent = os.path.dirname(self.root)
+        try:
+            names = os.listdir(parent)
+        except OSError:
+            names = []
+        for name in names:
+            if name.startswith("grammar-") and (name.endswith(".lark") or name.endswith(".tmp")):
+                with contextlib.suppress(OSError):
+                    os.remove(os.path.join(parent, name))
         return n
 
 
