@@ -290,3 +290,17 @@ def test_equal_sets_share_one_result_and_give_ups_are_not_kept():
         count(isl.Set(hard), limits=Limits(time_s=0.0))
     full = count(isl.Set(hard))  # same key: the give-up above was not remembered
     assert full.evaluate({"N": 5}) == enumerate_count(isl.Set(hard), {"N": 5})
+
+
+def test_add_all_equals_the_sum_one_by_one():
+    # check: isl enumeration of each summand; an else-if chain gives many small pieces
+    sets = [f"[N] -> {{ S[i] : 0 <= i < N and i = {k} }}" for k in range(12)]
+    sets.append("[N] -> { S[i] : 12 <= i < N }")
+    parts = [count(isl.Set(t)) for t in sets]
+    from tripcount.engine import add_all
+
+    total = add_all(parts)
+    for n in range(0, 20):
+        want = sum(enumerate_count(isl.Set(t), {"N": n}) for t in sets)
+        assert total.evaluate({"N": n}) == want == max(n, 0)
+    assert total.pieces[0].poly.to_expr() == "N"

@@ -220,3 +220,17 @@ def test_asymptotic_ratio_forms(kernels):
     assert asymptotic_ratio(nr.extras["flops"].count.formula, nr.extras["footprint"].footprint.bytes.formula) == "N/12"
     g = kernels["buoy_gaxpy"]
     assert asymptotic_ratio(g.extras["flops"].count.formula, g.extras["footprint"].footprint.bytes.formula) == "1/4"
+
+
+def test_else_if_chain_total_is_exact():
+    """A 60-branch else-if chain (one add per branch taken, none in the final else):
+    the nest's flops are min(N, 60), by counting which branch each i takes."""
+    branches = "\n".join(f"        {'if' if k == 0 else 'else if'} (i == {k}) A[i] += {k}.0;" for k in range(60))
+    src = f"void f(int N, double *A) {{\n    for (int i = 0; i < N; i++) {{\n{branches}\n        else A[i] = 0.0;\n    }}\n}}\n"
+    fr = analyze_text(src, "chain.c", Options(at={"N": 100}))
+    (nr,) = fr.nests
+    assert not [d for d in nr.diagnostics if d.code in ("TC301", "TC310")]
+    total = nr.extras["flops"].count
+    assert total.value == 60
+    for n in (0, 1, 7, 59, 60, 61, 500):
+        assert total.formula.evaluate({"N": n}) == min(n, 60)

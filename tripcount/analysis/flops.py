@@ -293,22 +293,18 @@ def scaled(count: Count, weight: int) -> Count:
 
 def add_counts(counts: list[Count]) -> Count:
     """Sum of counts; the formula is dropped (with a note) when one is missing."""
-    formula: Any = None
     value: int | Fraction | None = 0
-    missing = False
     for c in counts:
-        if c.formula is None:
-            missing = True
-        elif formula is None:
-            formula = c.formula
-        else:
-            formula = formula + c.formula
         if value is not None:
             value = None if c.value is None else value + c.value
+    formula: Any = None
     note = None
-    if missing:
-        formula = None
+    if any(c.formula is None for c in counts):
         note = "formula not available for every statement"
+    elif counts:
+        from tripcount.engine import add_all
+
+        formula = add_all([c.formula for c in counts])
     if not counts:
         value = 0
     return Count(value=_norm(value), formula=formula, note=note)

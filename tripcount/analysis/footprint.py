@@ -581,10 +581,7 @@ def _sum(qs: list[_Quantity], zero: Any) -> _Quantity:
         return _Quantity(sets, None, reasons[0] if reasons else "formula not available")
     if not qs:
         return _Quantity([], zero, None if zero is not None else "counting engine not available")
-    f = qs[0].formula
-    for q in qs[1:]:
-        f = f + q.formula
-    return _Quantity(sets, f)
+    return _Quantity(sets, engine.add_all([q.formula for q in qs]))
 
 
 def _outer_part(dom: isl.Set, fixed: Sequence[str], sizes: Mapping[str, int]) -> isl.Set | None:

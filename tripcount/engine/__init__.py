@@ -14,7 +14,7 @@ from collections.abc import Mapping
 
 import islpy as isl
 
-from tripcount.engine.piecewise import Piece, PieceList, Piecewise, build, qpoly_identical
+from tripcount.engine.piecewise import Piece, PieceList, Piecewise, add_all, build, qpoly_identical
 from tripcount.engine.qpoly import Floor, QPoly
 from tripcount.engine.summation import EngineLimit, Limits, _State, sum_set
 
@@ -26,6 +26,7 @@ __all__ = [
     "PieceList",
     "Piecewise",
     "QPoly",
+    "add_all",
     "count",
     "enumerate_count",
     "qpoly_identical",
