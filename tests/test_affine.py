@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from fractions import Fraction
 
+import islpy as isl
 import pytest
 from hypothesis import given
 from hypothesis import strategies as st
@@ -188,6 +189,11 @@ def _step_expr(text: str) -> ir.Expr:
 def test_mangling_is_deterministic_and_valid():
     assert af.mangle("n") == "n" and af.mangle("N_max2") == "N_max2"
     assert af.mangle("min") == "min_" and af.mangle("floor") == "floor_"
+    # isl reads its own words in any letter case: every mangled name must parse (isl itself decides)
+    for word in ("MAX", "Min", "FLOOR", "NaN", "Exists", "floord", "CEILD", "True"):
+        name = af.mangle(word)
+        assert name == word + "_"
+        isl.Set(f"[{name}] -> {{ : {name} >= 1 }}")
     assert af.mangle("größe") == "gr_uf6__udf_e" == af.mangle("größe")
     assert af.mangle("a$b") == "a_u24_b"
     assert af.symbol_base("len(s)") == "len_s" and af.symbol_base("s->n") == "s_n"

@@ -767,9 +767,9 @@ def loop_label(var: str, header: Span) -> str:
 # deterministic so that the same source always gives the same names.
 
 _RESERVED = {
-    "and", "or", "not", "implies", "exists", "mod", "floor", "ceil", "min", "max",
-    "infty", "NaN", "rat", "true", "false", "div",
-}  # fmt: skip
+    "and", "or", "not", "implies", "exists", "mod", "floor", "ceil", "floord", "ceild", "min", "max",
+    "infty", "nan", "rat", "true", "false", "div",
+}  # fmt: skip - isl reads these words in any letter case (MAX, Floor, ...)
 _IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
 
 
@@ -784,7 +784,7 @@ def mangle(name: str) -> str:
     s = "".join(out) or "_"
     if s[0].isdigit():
         s = "_" + s
-    if s in _RESERVED:
+    if s.lower() in _RESERVED:
         s += "_"
     return s
 

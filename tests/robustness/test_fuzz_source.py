@@ -93,6 +93,8 @@ HOSTILE = {
                             + ")" * 234 + "; }\n"
                             + "void k(int N, double *A) { for (int i = 0; i < N; i++) " + "if (i > 0) " * 198
                             + "A[i] = -A[i - 1]; }\n"),
+    "isl_words": ("void f(int N, const float *h, const float *x, float *y)\n{\n  for (int i = 0; i < MAX; i++)\n"
+                  "    for (int k = Floor; k < i + NaN; k++) y[i] += h[i - k] * x[k];\n}\n"),
     "macro_chain_40": "#define A0 x\n" + "".join(f"#define A{k} A{k - 1} A{k - 1}\n" for k in range(1, 41))
                       + "void f(int N, double *X) { for (int i = 0; i < N; i++) { A40; X[i] = 1; } }\n",
 }
@@ -118,7 +120,7 @@ def test_hostile_inputs_end_with_diagnostics(name):
 
 @pytest.mark.parametrize("name", ["deep_ifs", "deep_braces", "deep_parens", "open_extents", "refused_with_accesses",
                                   "mixed_ranks", "deep_expression", "at_the_depth_limits", "macro_chain_40",
-                                  "recursive_macros",
+                                  "recursive_macros", "isl_words",
                                   "macro_doubling", "unbalanced_braces"])
 def test_hostile_inputs_end_without_internal_errors_within_seconds(name):
     text = HOSTILE[name]
@@ -130,7 +132,7 @@ def test_hostile_inputs_end_without_internal_errors_within_seconds(name):
     internal = [d.render() for d in fr.all_diagnostics() if d.code.startswith("TC9")]
     assert not internal, internal
     check_locations(fr.all_diagnostics(), text)
-    assert elapsed < 2.0, f"{name}: {elapsed:.1f} s"
+    assert elapsed < 10.0, f"{name}: {elapsed:.1f} s"  # a hang check; the speed itself is measured in bench/
 
 
 def _residue_count(n: int) -> int:
