@@ -31,3 +31,9 @@ def test_constant_nest_has_no_parameters(run_cli):
     _, out, _ = run_cli("analyze", "--code", "for (i = 0; i < 4; i++) for (j = 0; j < 5; j++) s += 1;")
     assert out.splitlines()[0].endswith("parameters: none")
     assert "runs 20" in out
+
+
+def test_loop_without_variable_is_named_as_written(run_cli):
+    _, out, _ = run_cli("analyze", "--code", "for (;;) { if (k >= n) break; k++; }")
+    assert "for (;;)  (line 1)   not counted" in out
+    assert "_u3f_" not in out

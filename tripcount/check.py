@@ -598,8 +598,13 @@ def budget_findings(nest: dict[str, Any], budgets: Budgets, options: Any, lines:
     if budgets.max_working_set is not None and nest.get("loops"):
         lp, size = worst_innermost_ws(nest)
         if size is None:
-            reason = ("give sizes with `at` in [tool.tripcount] (or --at)" if not options.at and has_working_sets(nest)
-                      else "no working set computed for its innermost loops")
+            at = options.at or {}
+            missing = [] if "*" in at else [p for p in nest.get("parameters", []) if p not in at]
+            if has_working_sets(nest) and missing:
+                reason = (f"no value without sizes for {', '.join(missing)}: give them with `at` in "
+                          "[tool.tripcount] (or --at)")
+            else:
+                reason = "no working set computed for its innermost loops"
             out.append(BudgetUnchecked(nest_span, budget="max_working_set", reason=reason))
         else:
             assert lp is not None

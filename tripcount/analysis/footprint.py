@@ -1733,7 +1733,7 @@ def analyze(result: NestResult, options: Options) -> None:
         _flag(ws, an, diags)
     if refused_loops:
         first = refused_loops[0]
-        names = ", ".join(f"'{lp.var}'" for lp in refused_loops)
+        names = ", ".join("'for (;;)'" if lp.display == "?" else f"'{lp.var}'" for lp in refused_loops)
         diags.append(FootprintRefused(first.header, what=f"loop{'s' if len(refused_loops) > 1 else ''} {names}",
                                       reason="statements inside could not be modelled"))
     # whole nest: every statement, nothing fixed

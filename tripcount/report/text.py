@@ -120,8 +120,9 @@ class TextReporter(Reporter):
                 omp = f"  [omp {loop.omp.directive}" + (f" schedule({loop.omp.schedule}" + (
                     f", {ir.c_text(loop.omp.chunk)}" if loop.omp.chunk is not None else "") + ")"
                     if loop.omp.schedule else "") + "]"
+            name = "(;;)" if loop.display == "?" else loop.var  # a loop without a variable
             if lr.trips.formula is None and lr.trips.value is None:
-                row(f"{pre}for {loop.var}  (line {loop.span.line}){omp}   not counted (see the diagnostics)", "")
+                row(f"{pre}for {name}  (line {loop.span.line}){omp}   not counted (see the diagnostics)", "")
             else:
                 head = short_formula(lr.trips)
                 per = ""
