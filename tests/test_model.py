@@ -779,3 +779,16 @@ def test_counts_match_gcc(path, fn, nests, text):
         for (nest, s), want in zip(stmts, row, strict=True):
             got = count(s.domain, {p: pt[p] for p in nest.params})
             assert got == want, (fn.name, s.id, s.text, pt, got, want)
+
+
+def test_divisors_and_moduli_beyond_64_bits_are_exact():
+    # check: isl enumeration against C semantics (ISO C99 6.5.5p6, truncating division)
+    big = 0x7FFFFFFFFFFFFFFF2  # a hexadecimal constant past 64 bits, found by fuzzing
+    nests, diags = snippet(f"for (i = (2 * M + 2) / {big}; i <= 10; i++) A[i] += 1;\n"
+                           f"for (j = 0; j < M % {big}; j++) A[j] += 1;")
+    assert not [d for d in diags if d.code.startswith("TC9")]
+    assert [d.code for n in nests for d in n.diagnostics if d.code.startswith("TC9")] == []
+    first, second = (n.statements[0].domain for n in nests)
+    for m in (-5, -1, 0, 4, 100):
+        assert count(first, {"M": m}) == len(range(c_div(2 * m + 2, big), 11))
+        assert count(second, {"M": m}) == max(c_mod(m, big), 0)

@@ -124,17 +124,21 @@ class _Space:
             out = out + self._atom(a).scale_val(isl.Val.read_from_str(ctx, str(k)))
         return out
 
+    def _val(self, k: int) -> isl.Val:
+        # divisors too may pass 64 bits (0x7fffffffffffffff2): exact through text
+        return isl.Val.read_from_str(self.zero.get_ctx(), str(k))
+
     def _atom(self, a: af.Atom) -> isl.PwAff:
         if isinstance(a, af.Var):
             return self.vars[self.names[a.key]]
         if isinstance(a, af.CDiv):
-            return self.pw(a.arg).tdiv_q(self.zero + a.d)
+            return self.pw(a.arg).tdiv_q(self.zero.add_constant_val(self._val(a.d)))
         if isinstance(a, af.CMod):
-            return self.pw(a.arg).tdiv_r(self.zero + a.d)
+            return self.pw(a.arg).tdiv_r(self.zero.add_constant_val(self._val(a.d)))
         if isinstance(a, af.FDiv):
-            return self.pw(a.arg).scale_down_val(a.d).floor()
+            return self.pw(a.arg).scale_down_val(self._val(a.d)).floor()
         if isinstance(a, af.FMod):
-            return self.pw(a.arg).mod_val(a.d)
+            return self.pw(a.arg).mod_val(self._val(a.d))
         if isinstance(a, af.Extremum):
             parts = [self.pw(y) for y in a.args]
             return reduce(lambda p, q: p.min(q) if a.op == "min" else p.max(q), parts)
