@@ -95,6 +95,9 @@ HOSTILE = {
                             + "A[i] = -A[i - 1]; }\n"),
     "isl_words": ("void f(int N, const float *h, const float *x, float *y)\n{\n  for (int i = 0; i < MAX; i++)\n"
                   "    for (int k = Floor; k < i + NaN; k++) y[i] += h[i - k] * x[k];\n}\n"),
+    "huge_step_parallel": ("void f(int N, double *A)\n{\n#pragma omp parallel for\n"
+                           "  for (long i = 0; i < N; i += 0x7fffffffffffffff2) A[0] += 1.0;\n"
+                           "  for (int i = (2 * N + 2) / 0x7fffffffffffffff2; i <= 10; i++) A[i] += 1.0;\n}\n"),
     "macro_chain_40": "#define A0 x\n" + "".join(f"#define A{k} A{k - 1} A{k - 1}\n" for k in range(1, 41))
                       + "void f(int N, double *X) { for (int i = 0; i < N; i++) { A40; X[i] = 1; } }\n",
 }
@@ -120,7 +123,7 @@ def test_hostile_inputs_end_with_diagnostics(name):
 
 @pytest.mark.parametrize("name", ["deep_ifs", "deep_braces", "deep_parens", "open_extents", "refused_with_accesses",
                                   "mixed_ranks", "deep_expression", "at_the_depth_limits", "macro_chain_40",
-                                  "recursive_macros", "isl_words",
+                                  "recursive_macros", "isl_words", "huge_step_parallel",
                                   "macro_doubling", "unbalanced_braces"])
 def test_hostile_inputs_end_without_internal_errors_within_seconds(name):
     text = HOSTILE[name]

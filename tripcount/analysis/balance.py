@@ -371,7 +371,7 @@ def fix_params(s: isl.Set, at: Mapping[str, int]) -> isl.Set | None:
     for name in _param_names(s):
         if name not in at:
             return None
-        s = s.fix_val(PARAM, s.find_dim_by_name(PARAM, name), isl.Val(at[name]))
+        s = s.fix_val(PARAM, s.find_dim_by_name(PARAM, name), isl.Val(str(at[name])))
     return s.project_out(PARAM, 0, s.dim(PARAM))
 
 
@@ -420,12 +420,12 @@ def counters(sp: Space) -> tuple[list[isl.PwAff], list[isl.PwAff]] | None:
             if lo.involves_dims(IN, d, j) or hi.involves_dims(IN, d, j):
                 return None
         step = abs(sp.steps[j])
-        nj = hi.sub(lo).scale_down_val(isl.Val(step)).floor()
+        nj = hi.sub(lo).scale_down_val(isl.Val(str(step))).floor()
         nj = nj.add(isl.PwAff.val_on_domain(nj.domain(), isl.Val(1)))
         var = isl.PwAff.var_on_domain(isl.LocalSpace.from_space(sp.domain.get_space()), SET, d + j)
         lo_l, hi_l = _lift(lo, d + j, c - j), _lift(hi, d + j, c - j)
         kj = var.sub(lo_l) if sp.steps[j] > 0 else hi_l.sub(var)
-        ks.append(kj.scale_down_val(isl.Val(step)).floor())
+        ks.append(kj.scale_down_val(isl.Val(str(step))).floor())
         ns.append(nj.drop_dims(IN, d, j) if j else nj)
     return ks, ns
 
@@ -461,12 +461,12 @@ def counter(sp: Space) -> tuple[isl.PwAff, isl.PwAff] | None:
 def static_slice(k: isl.PwAff, n: isl.PwAff, depth: int, width: int, threads: int, t: int) -> isl.Set:
     """Iterations (on the loop space) that thread t runs under schedule(static)."""
     nl = _lift(n, depth, width)
-    q = nl.scale_down_val(isl.Val(threads)).floor()
-    r = nl.mod_val(isl.Val(threads))
+    q = nl.scale_down_val(isl.Val(str(threads))).floor()
+    r = nl.mod_val(isl.Val(str(threads)))
 
     def start(u: int) -> isl.PwAff:
-        cu = isl.PwAff.val_on_domain(nl.domain(), isl.Val(u))
-        return q.scale_val(isl.Val(u)).add(r.min(cu))
+        cu = isl.PwAff.val_on_domain(nl.domain(), isl.Val(str(u)))
+        return q.scale_val(isl.Val(str(u))).add(r.min(cu))
 
     return k.ge_set(start(t)).intersect(k.lt_set(start(t + 1)))
 
@@ -481,7 +481,7 @@ def chunked_slice(k: isl.PwAff, threads: int, chunk: int, tname: str) -> isl.Set
     dom, pos = _with_param(k.domain(), tname)
     kt = k.align_params(dom.get_space().params())
     tv = isl.PwAff.var_on_domain(isl.LocalSpace.from_space(dom.get_space()), PARAM, pos)
-    sl = kt.scale_down_val(isl.Val(chunk)).floor().mod_val(isl.Val(threads)).eq_set(tv)
+    sl = kt.scale_down_val(isl.Val(str(chunk))).floor().mod_val(isl.Val(str(threads))).eq_set(tv)
     return (sl.lower_bound_val(PARAM, sl.find_dim_by_name(PARAM, tname), isl.Val(0))
             .upper_bound_val(PARAM, sl.find_dim_by_name(PARAM, tname), isl.Val(threads - 1)))
 
@@ -745,7 +745,7 @@ def _contains(params_set: isl.Set, at: Mapping[str, int]) -> bool:
         name = s.get_dim_name(PARAM, i)
         if name not in at:
             return False
-        s = s.fix_val(PARAM, i, isl.Val(at[name]))
+        s = s.fix_val(PARAM, i, isl.Val(str(at[name])))
     return not s.is_empty()
 
 
@@ -1007,7 +1007,7 @@ def thread_formula(nest: Nest, sp: Space, options: Options, threads: int, chunk:
                 zero_dim = isl.Set.from_params(base)
                 tv = isl.PwAff.var_on_domain(isl.LocalSpace.from_space(zero_dim.get_space()), PARAM,
                                              base.find_dim_by_name(PARAM, tname))
-                few = _as_params(n_t.mod_val(isl.Val(threads)).gt_set(tv))
+                few = _as_params(n_t.mod_val(isl.Val(str(threads))).gt_set(tv))
                 few = few.align_params(base.get_space())
                 vtext = _when_text(valid, tuple(fpw.params))
                 nexpr = nq.to_expr()
@@ -1038,7 +1038,7 @@ def _chunked_formula(engine: Any, nest: Nest, n0: isl.PwAff, npw: Any, valid: is
     nv = n0.align_params(base.get_space()).insert_dims(IN, 0, 2)
     nv = nv.intersect_domain(base)
     zero, one = _const_on(mv, 0), _const_on(mv, 1)
-    start = mv.scale_val(isl.Val(chunk * threads)).add(tv.scale_val(isl.Val(chunk)))
+    start = mv.scale_val(isl.Val(str(chunk * threads))).add(tv.scale_val(isl.Val(str(chunk))))
     end = start.add(_const_on(mv, chunk))
     common = mv.ge_set(zero).intersect(base)
     full = common.intersect(fv.eq_set(zero)).intersect(end.le_set(nv))

@@ -341,6 +341,11 @@ def _cmp_text(lin: Lin, eq: bool) -> str:
     return f"{_lin_text(pos, 0)} {op} {rhs}"
 
 
+# Residue conditions are worked out by listing the residues (E % m == v): past
+# this modulus they are printed as plain floor comparisons instead.
+_MAX_RESIDUE_MODULUS = 4096
+
+
 def _residue_pattern(lin: Lin):
     """If lin == s*(E mod m) + c0 for one top-level floor floor(E/m), return (E0, c, m, s, c0)."""
     fls = [a for a in lin[0] if isinstance(a, Floor)]
@@ -378,7 +383,7 @@ def format_conditions(
         order: list[tuple] = []
         for lin, eq in conj:
             pat = _residue_pattern(lin)
-            if pat is not None:
+            if pat is not None and pat[0].den <= _MAX_RESIDUE_MODULUS:
                 f, s, c0 = pat
                 m = f.den
                 # allowed values v of R = E mod m: s*v + c0 (==|>=) 0
