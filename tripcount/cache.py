@@ -42,6 +42,7 @@ from typing import Any, TextIO
 from tripcount import __version__
 from tripcount.options import Options
 from tripcount.paths import cache_dir
+from tripcount.sources import decode_source
 
 LAYOUT = "v1"
 KINDS = ("file", "nest", "fn", "out")
@@ -872,14 +873,5 @@ def read_source(path: str) -> tuple[str, dict[str, Any] | None]:
     """
     with open(path, "rb") as f:
         data = f.read()
-    try:
-        return data.decode("utf-8"), None
-    except UnicodeDecodeError as exc:
-        from tripcount.diagnostics import InvalidEncoding
-        from tripcount.ir import Span
-
-        before = data[: exc.start].decode("utf-8", errors="replace")
-        line = before.count("\n") + 1
-        column = len(before) - (before.rfind("\n") + 1) + 1
-        diag = InvalidEncoding(Span.point(line, column), byte=f"0x{data[exc.start]:02x}")
-        return data.decode("utf-8", errors="replace"), diag.to_dict()
+    text, diag = decode_source(data)
+    return text, None if diag is None else diag.to_dict()

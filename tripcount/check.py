@@ -37,9 +37,9 @@ from tripcount.analysis.caches import fmt_bytes
 from tripcount.config import Config, ConfigError, load_config, parse_bytes
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
+from tripcount.sources import SOURCE_SUFFIXES, collect_paths
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
-SOURCE_SUFFIXES = (".c", ".h")
 BUDGET_KEYS = ("max_degree", "max_working_set", "max_imbalance", "max_leading_growth")
 DEFAULT_LEADING_GROWTH = 1.5
 # Typical cache sizes of current x86-64 server cores, used only when neither the
@@ -791,21 +791,6 @@ class FileCheck:
     at: dict[str, int] = field(default_factory=dict)
 
 
-def expand_paths(paths: list[str]) -> list[str]:
-    """Files as given; directories expanded to the C sources under them (sorted)."""
-    out: list[str] = []
-    for p in paths:
-        if os.path.isdir(p):
-            found = []
-            for root, dirs, files in os.walk(p):
-                dirs[:] = sorted(d for d in dirs if not d.startswith("."))
-                found.extend(os.path.join(root, f) for f in files if f.endswith(SOURCE_SUFFIXES))
-            out.extend(sorted(found))
-        else:
-            out.append(p)
-    return out
-
-
 def _staged_sources(git: Git) -> list[str]:
     top = git.toplevel(os.getcwd())
     if top is None:
@@ -935,7 +920,7 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
     if missing:
         stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
         return EXIT_USAGE
-    files = expand_paths(paths)
+    files = collect_paths(paths)
     checks: list[FileCheck] = []
     status = EXIT_OK
     for path in files:

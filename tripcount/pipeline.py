@@ -24,13 +24,12 @@ from typing import Any
 from tripcount import guard
 from tripcount.analysis import counts
 from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, StatementResult
-from tripcount.diagnostics import InternalError, InvalidEncoding, UnreadableFile
+from tripcount.diagnostics import InternalError, UnreadableFile
 from tripcount.frontend import parse_text
 from tripcount.ir import Span
 from tripcount.model import Nest, build_nests
 from tripcount.options import Options
-
-SOURCE_SUFFIXES = (".c", ".h")
+from tripcount.sources import collect_paths, decode_source  # noqa: F401 - re-exported: the CLI and tests read files through the pipeline
 
 Analysis = Callable[[NestResult, Options], None]
 
@@ -50,23 +49,6 @@ def analyses() -> list[tuple[str, Analysis]]:
         out.append(("balance", balance.analyze))
     except ImportError:
         pass
-    return out
-
-
-def collect_paths(paths: Iterable[str]) -> list[str]:
-    """Expand directories into the C sources under them (sorted); keep files as given."""
-    out: list[str] = []
-    for p in paths:
-        if os.path.isdir(p):
-            found = []
-            for root, dirs, files in os.walk(p):
-                dirs[:] = sorted(d for d in dirs if not d.startswith("."))
-                for f in files:
-                    if f.endswith(SOURCE_SUFFIXES):
-                        found.append(os.path.join(root, f))
-            out.extend(sorted(found))
-        else:
-            out.append(p)
     return out
 
 
@@ -262,18 +244,6 @@ def _finish(result: FileResult, path: str) -> FileResult:
     for d in result.all_diagnostics():
         d.path = path
     return result
-
-
-def decode_source(data: bytes) -> tuple[str, InvalidEncoding | None]:
-    """Decode C source bytes as UTF-8; invalid bytes are replaced and reported once."""
-    try:
-        return data.decode("utf-8"), None
-    except UnicodeDecodeError as exc:
-        before = data[: exc.start].decode("utf-8", errors="replace")
-        line = before.count("\n") + 1
-        column = len(before) - (before.rfind("\n") + 1) + 1
-        diag = InvalidEncoding(Span.point(line, column), byte=f"0x{data[exc.start]:02x}")
-        return data.decode("utf-8", errors="replace"), diag
 
 
 def analyze_file(path: str, options: Options) -> FileResult:
