@@ -138,23 +138,29 @@ def _with_factor(c: Fraction, factors: list[tuple[QPoly, int]], rest: QPoly) -> 
 # Root tests are formal (atoms are independent symbols), so a polynomial that
 # is nonzero at one point modulo a large prime is not zero; the probe values
 # are fixed so that the printed form never depends on chance.
-_PRIME = (1 << 61) - 1
+PRIME = (1 << 61) - 1
 
 
-def _probe_point(atoms: list) -> dict:
-    return {a: (0x9E3779B97F4A7C15 * (k + 1) + 12345) % _PRIME for k, a in enumerate(atoms)}
+def probe_point(atoms: list) -> dict:
+    """Fixed values, modulo the prime, for atoms treated as independent symbols."""
+    return {a: (0x9E3779B97F4A7C15 * (k + 1) + 12345) % PRIME for k, a in enumerate(atoms)}
 
 
-def _eval_mod(p: QPoly, point: dict) -> int:
+def frac_mod(c: Fraction) -> int:
+    """A rational number modulo the prime."""
+    v = c.numerator % PRIME
+    return v if c.denominator == 1 else v * pow(c.denominator, -1, PRIME) % PRIME
+
+
+def eval_mod(p: QPoly, point: dict) -> int:
+    """p modulo the prime, its atoms at `point` (values modulo the prime)."""
     total = 0
     for m, c in p.terms.items():
-        v = c.numerator % _PRIME
-        if c.denominator != 1:
-            v = v * pow(c.denominator, -1, _PRIME) % _PRIME
+        v = frac_mod(c)
         for a, e in m:
-            v = v * pow(point[a], e, _PRIME) % _PRIME
+            v = v * pow(point[a], e, PRIME) % PRIME
         total += v
-    return total % _PRIME
+    return total % PRIME
 
 
 def _roots_mod(coeffs: dict[int, int]) -> list[int] | None:
@@ -166,19 +172,19 @@ def _roots_mod(coeffs: dict[int, int]) -> list[int] | None:
         return None
     c0, c1 = coeffs.get(0, 0), coeffs.get(1, 0)
     if n == 1:
-        return [-c0 * pow(c1, -1, _PRIME) % _PRIME]
-    disc = (c1 * c1 - 4 * lead * c0) % _PRIME
-    root = pow(disc, (_PRIME + 1) // 4, _PRIME)  # the prime is 3 mod 4
-    if root * root % _PRIME != disc:
+        return [-c0 * pow(c1, -1, PRIME) % PRIME]
+    disc = (c1 * c1 - 4 * lead * c0) % PRIME
+    root = pow(disc, (PRIME + 1) // 4, PRIME)  # the prime is 3 mod 4
+    if root * root % PRIME != disc:
         return []
-    inv = pow(2 * lead, -1, _PRIME)
-    return list({(-c1 + root) * inv % _PRIME, (-c1 - root) * inv % _PRIME})
+    inv = pow(2 * lead, -1, PRIME)
+    return list({(-c1 + root) * inv % PRIME, (-c1 - root) * inv % PRIME})
 
 
 def _horner_mod(coeffs: dict[int, int], value: int) -> int:
     out = 0
     for k in range(max(coeffs), -1, -1):
-        out = (out * value + coeffs.get(k, 0)) % _PRIME
+        out = (out * value + coeffs.get(k, 0)) % PRIME
     return out
 
 
@@ -235,7 +241,7 @@ def format_qpoly(p: QPoly) -> str:
             break
         found = False
         atoms = sorted(q.atoms(), key=atom_key)
-        point = _probe_point(atoms)
+        point = probe_point(atoms)
         cands = [(b, mult, k, _root_mod(b, mult, k, point)) for b, mult, k in _root_candidates(None, atoms)]
         by_value: dict[int, list[int]] = {}
         for idx, cand in enumerate(cands):
@@ -244,7 +250,7 @@ def format_qpoly(p: QPoly) -> str:
             coeffs = q.coeffs_in_atom(a)
             if max(coeffs) < 1:
                 continue
-            mod_coeffs = {k: _eval_mod(c, point) for k, c in coeffs.items()}
+            mod_coeffs = {k: eval_mod(c, point) for k, c in coeffs.items()}
             # a nonzero value at one point proves 'not a root'; only the
             # survivors are built and pay for the exact symbolic test
             roots = _roots_mod(mod_coeffs)
@@ -314,11 +320,9 @@ def _root_candidates(a, atoms) -> list[tuple]:
 
 
 def _root_mod(b, mult: int, k: Fraction, point: dict) -> int:
-    v = k.numerator % _PRIME
-    if k.denominator != 1:
-        v = v * pow(k.denominator, -1, _PRIME) % _PRIME
+    v = frac_mod(k)
     if b is not None:
-        v = (v + mult * point[b]) % _PRIME
+        v = (v + mult * point[b]) % PRIME
     return v
 
 

@@ -81,12 +81,14 @@ def add_all(formulas: list[Piecewise]) -> Piecewise:
     if not formulas:
         raise ValueError("add_all needs at least one formula")
     if len(formulas) <= 2:
-        out = formulas[0]
-        for f in formulas[1:]:
-            out = out + f
-        return out
-    key = tuple(formulas)  # by identity, as in __add__
-    found = _SUMS.get(key)
+        return formulas[0] if len(formulas) == 1 else formulas[0] + formulas[1]
+    return _built_sum(tuple(formulas))
+
+
+def _built_sum(formulas: tuple[Piecewise, ...]) -> Piecewise:
+    """build() over all the pieces of `formulas`, remembered by the operands' identity
+    (engine results are shared between equal sets, so the same sums recur)."""
+    found = _SUMS.get(formulas)
     if found is None:
         params = tuple(dict.fromkeys(p for f in formulas for p in f.params))
         ctx = None
@@ -96,7 +98,7 @@ def add_all(formulas: list[Piecewise]) -> Piecewise:
         found = build([t for f in formulas for t in f._terms()], params, ctx)
         if len(_SUMS) >= 1024:
             _SUMS.clear()
-        _SUMS[key] = found
+        _SUMS[formulas] = found
     return found
 
 
@@ -162,17 +164,7 @@ class Piecewise(PieceList):
             return self
         if not self.pieces and params == other.params:
             return other
-        key = (self, other)  # by identity: engine results are shared between equal sets
-        found = _SUMS.get(key)
-        if found is None:
-            ctx = self.context if self.context is not None else other.context
-            if self.context is not None and other.context is not None:
-                ctx = self.context.intersect(other.context)
-            found = build(self._terms() + other._terms(), params, ctx)
-            if len(_SUMS) >= 1024:
-                _SUMS.clear()
-            _SUMS[key] = found
-        return found
+        return _built_sum((self, other))
 
     def scale(self, c: int | Fraction) -> Piecewise:
         """The piecewise multiplied by a constant."""

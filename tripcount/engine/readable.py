@@ -27,7 +27,7 @@ from fractions import Fraction
 from itertools import combinations
 from math import lcm
 
-from tripcount.engine.fmt import _PRIME, _eval_mod, _probe_point, format_qpoly
+from tripcount.engine.fmt import PRIME, eval_mod, format_qpoly, frac_mod, probe_point
 from tripcount.engine.qpoly import Floor, QPoly, atom_key, atom_period
 
 _K = "_rk_"
@@ -171,8 +171,8 @@ def _consistent_mod(rows: list[list[Fraction]], rhs: list[QPoly]) -> bool:
     True only costs that elimination; a wrong False, with chance about 2^-61,
     only a less readable form.)"""
     atoms = sorted({a for q in rhs for a in q.atoms()}, key=atom_key)
-    point = _probe_point(atoms)
-    mat = [[_frac_mod(x) for x in r] + [_eval_mod(q, point)] for r, q in zip(rows, rhs, strict=True)]
+    point = probe_point(atoms)
+    mat = [[frac_mod(x) for x in r] + [eval_mod(q, point)] for r, q in zip(rows, rhs, strict=True)]
     n = len(mat[0]) - 1 if mat else 0
     rank = 0
     for col in range(n):
@@ -180,20 +180,15 @@ def _consistent_mod(rows: list[list[Fraction]], rhs: list[QPoly]) -> bool:
         if pr is None:
             continue
         mat[rank], mat[pr] = mat[pr], mat[rank]
-        inv = pow(mat[rank][col], -1, _PRIME)
-        piv = [x * inv % _PRIME for x in mat[rank]]
+        inv = pow(mat[rank][col], -1, PRIME)
+        piv = [x * inv % PRIME for x in mat[rank]]
         mat[rank] = piv
         for i in range(len(mat)):
             if i != rank and mat[i][col]:
                 f = mat[i][col]
-                mat[i] = [(x - f * y) % _PRIME for x, y in zip(mat[i], piv, strict=True)]
+                mat[i] = [(x - f * y) % PRIME for x, y in zip(mat[i], piv, strict=True)]
         rank += 1
     return all(r[n] == 0 for r in mat[rank:])
-
-
-def _frac_mod(c: Fraction) -> int:
-    v = c.numerator % _PRIME
-    return v if c.denominator == 1 else v * pow(c.denominator, -1, _PRIME) % _PRIME
 
 
 def _solutions(rows: list[list[Fraction]], rhs: list[QPoly], n: int) -> list[list[QPoly]]:
