@@ -712,3 +712,18 @@ def test_gate_detail_computes_innermost_working_sets_only():
     # brute force: one k loop touches K elements of A's row i and K of B's column j
     assert ws_gate.whole.elements.value == ws_full.whole.elements.value == 2 * at["K"]
     assert ws_gate.occupancy == ws_full.occupancy
+
+
+def test_default_size_for_every_parameter_gives_working_set_values():
+    """`--at '*=V'` (the README's first command) sizes the working sets like naming each size."""
+    from tripcount import pipeline
+
+    path = os.path.join(HARDENING, "quay_gate_product.c")
+    named = pipeline.analyze_file(path, Options(at={"N": 12, "M": 12, "K": 12}, line_size=64)).nests[0]
+    star = pipeline.analyze_file(path, Options(at={"*": 12}, line_size=64)).nests[0]
+    for a, b in zip(named.loops, star.loops, strict=True):
+        wa, wb = a.extras["working_set"], b.extras["working_set"]
+        assert wb.whole.bytes.value is not None
+        assert (wa.whole.bytes.value, wa.occupancy) == (wb.whole.bytes.value, wb.occupancy)
+    # brute force: the k loop touches K elements of A's row and K of B's column, 8 bytes each
+    assert star.loops[2].extras["working_set"].whole.bytes.value == 2 * 12 * 8

@@ -1076,11 +1076,8 @@ def _flop_weight(extra: Any) -> int | Fraction | None:
 
 def sizes_of(options: Options, nest: Nest) -> dict[str, int]:
     """The --at sizes by name, the default `*=V` applied to every parameter of the nest."""
-    at = {k: v for k, v in options.at.items() if k != "*"}
-    if "*" in options.at:
-        for p in nest.params:
-            at.setdefault(p, options.at["*"])
-    return at
+    full = options.sizes(nest.params)
+    return {**{k: v for k, v in options.at.items() if k != "*"}, **(full or {})}
 
 
 def _threads(omp: ir.OmpClauses, options: Options, at: Mapping[str, int]) -> tuple[int, str]:

@@ -717,8 +717,9 @@ class _Analyzer:
         self.caches = hierarchy(options)
         self.line = self.caches.line_size
         self.budget = _Budget(min(BUDGET_S, options.time_limit))
-        self.at = {k: v for k, v in options.at.items() if k in self.nest.params}
-        self.has_at = all(p in options.at for p in self.nest.params) and (bool(options.at) or not self.nest.params)
+        full = options.sizes(self.nest.params)  # `--at '*=V'` sizes every parameter
+        self.at = full if full is not None else {k: v for k, v in options.at.items() if k in self.nest.params}
+        self.has_at = full is not None and (bool(options.at) or not self.nest.params)
         self.mixed = self._mixed_ranks()
         self.arrays = self._arrays()
         self._cache: dict[tuple, Footprint] = {}
@@ -1162,7 +1163,7 @@ class _Analyzer:
         param = self._solve_param(lines_at)
         if param is None:
             return
-        others = {p: v for p, v in self.options.at.items() if p in self.nest.params and p != param}
+        others = {p: v for p, v in self.at.items() if p != param}
         if any(p not in others for p in self.nest.params if p != param):
             return
         for lv in self.caches.levels:
@@ -1748,7 +1749,7 @@ def analyze(result: NestResult, options: Options) -> None:
             if note.startswith("formula not available") and note not in limit_notes:
                 limit_notes.append(note)
     if limit_notes:
-        missing = [p for p in nest.params if p not in options.at]
+        missing = [p for p in nest.params if p not in an.at]
         fallback = ("the values at the --at sizes are exact enumerations" if an.has_at and nest.params
                     else f"give --at sizes (for {', '.join(missing)}) for exact values")
         reason = limit_notes[0][len("formula not available ("):].rsplit("):", 1)[0]
