@@ -448,6 +448,11 @@ def simplify(s: isl.Set) -> isl.Set:
                     hull = hull.intersect(half)
         # conditions on the parameters alone (e.g. a tile origin's stride) come from the set itself
         hull = hull.intersect_params(s.params())
+        # s is finite at fixed sizes, so an unbounded candidate cannot equal it; testing
+        # that by subset is one uninterruptible isl call that can run for minutes when s
+        # has existentials (the candidate's complement is the hard part).
+        if not hull.is_bounded():
+            return s
         return hull.coalesce() if hull.is_subset(s) else s
     except isl.Error:
         return s
