@@ -13,7 +13,6 @@
 
 from __future__ import annotations
 
-import contextlib
 import hashlib
 import os
 import re
@@ -203,26 +202,21 @@ _LARK_OPTIONS = dict(parser="lalr", lexer=_ListLexer, keep_all_tokens=True, mayb
 
 def _compile(builder: IRBuilder) -> Lark:
     """The LALR parser of the grammar; its tables are kept in the cache directory
-    (about 0.3 s to compute, a few ms to load). The file is written under a
-    private name and renamed into place, so concurrent processes never read
-    half of one; any failure just means compiling again."""
+    (about 0.2 s to compute, a few ms to load).
+
+    lark's own cache is used with the final file name: lark keys the file by its
+    options, the file name included, so a table written under a private name and
+    renamed would never be loaded. lark checks the key and the file when it
+    loads and recompiles (and rewrites) on any mismatch or damage, so a file
+    half written by a concurrent process is only a miss; an unwritable
+    directory means no grammar cache."""
     text = _grammar_text()
     key = hashlib.sha256(f"{text}\0{lark_version}\0{sys.version_info[:2]}".encode()).hexdigest()[:20]
     final = os.path.join(cache_dir(), f"grammar-{key}.lark")
-    if os.path.isfile(final):
-        try:
-            return Lark(text, transformer=builder, cache=final, **_LARK_OPTIONS)
-        except Exception:  # noqa: BLE001 - a bad cache file is only a miss
-            pass
-    tmp = f"{final}.{os.getpid()}.{threading.get_ident()}.tmp"
     try:
         os.makedirs(os.path.dirname(final), exist_ok=True)
-        parser = Lark(text, transformer=builder, cache=tmp, **_LARK_OPTIONS)
-        os.replace(tmp, final)
-        return parser
-    except Exception:  # noqa: BLE001 - unwritable cache directory: no grammar cache
-        with contextlib.suppress(OSError):
-            os.remove(tmp)
+        return Lark(text, transformer=builder, cache=final, **_LARK_OPTIONS)
+    except Exception:  # noqa: BLE001 - no usable cache: compile without one
         return Lark(text, transformer=builder, **_LARK_OPTIONS)
 
 
