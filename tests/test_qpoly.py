@@ -259,3 +259,22 @@ def test_readable_keeps_leading():
     # check: the leading part is computed from the exact form (floors -> linear part)
     p = (N**2 + 2 * _N2**2 - 2 * N * _N2 + 2 * _N2 - N + 2) / 2
     assert p.leading() == "N^2/4"
+
+
+def test_plain_forms_skip_the_search_and_keep_the_value():
+    # check: inside plain_forms() the text is the factored or expanded form of the
+    # same formula (sympy evaluation agrees with exact evaluation); the search's
+    # text is neither used nor displaced, and a later full request still finds it
+    from tripcount.engine.readable import plain_forms
+
+    p = N * (N - QPoly.floor(N, 2))  # the search finds N*floor((N + 1)/2)
+    long = sum((QPoly.floor(N + k, 24) ** 2 for k in range(14)), QPoly.const(0))
+    with plain_forms():
+        short_text, long_text = p.to_expr(), long.to_expr()
+    assert short_text == "N*(N - floor(N/2))"
+    assert "(" not in long_text.split("floor")[0]  # many terms: expanded, not factored
+    for q, text in ((p, short_text), (long, long_text)):
+        expr = sympy.sympify(text.replace("^", "**"), locals={"floor": sympy.floor, "N": sympy.Symbol("N")})
+        for n in range(-30, 60, 7):
+            assert expr.subs("N", n) == q.evaluate({"N": n})
+    assert p.to_expr() == "N*floor((N + 1)/2)"

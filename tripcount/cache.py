@@ -736,15 +736,42 @@ def _analyze_one(nest: Any, options: Options) -> tuple[dict[str, Any], list[dict
     from tripcount.report.jsonout import nest_json
 
     nr = analyze_nest(nest, options)
-    return nest_json(nr), [d.to_dict() for d in nr.diagnostics]
+    return nest_json(nr, readable=not options.gate), [d.to_dict() for d in nr.diagnostics]
 
 
-def _forked_worker(k: int) -> tuple[int, tuple[dict[str, Any], list[dict[str, Any]]] | None]:
+def _forked_worker(group: list[int]) -> list[tuple[int, tuple[dict[str, Any], list[dict[str, Any]]] | None]]:
     assert _FORKED is not None
-    try:
-        return k, _analyze_one(_FORKED[0][k], _FORKED[1])
-    except Exception:  # the parent analyzes it again and reports what happens there
-        return k, None
+    out: list[tuple[int, tuple[dict[str, Any], list[dict[str, Any]]] | None]] = []
+    for k in group:
+        try:
+            out.append((k, _analyze_one(_FORKED[0][k], _FORKED[1])))
+        except Exception:  # the parent analyzes it again and reports what happens there
+            out.append((k, None))
+    return out
+
+
+def _work_groups(nests: list[Any], todo: list[int]) -> list[list[int]]:
+    """The nests at `todo` in groups for the workers, the likely slowest first.
+
+    Nests with the same iteration domains (the same loops, over the same or
+    other arrays, in any function) go to one worker: the engine's memo answers
+    the later ones' counts there, where two workers would each compute them. The order is
+    a guess from the shape (non-unit steps give periodic formulas, the slowest
+    part of a report; then depth and size), so that no long group starts last.
+    """
+    groups: dict[tuple[str, ...], list[int]] = {}
+    for k in todo:
+        loops = getattr(nests[k], "loops", ())
+        shape = tuple(str(getattr(lp, "domain", None)) for lp in loops) or (f"#{k}",)
+        groups.setdefault(shape, []).append(k)
+
+    def guess(ks: list[int]) -> tuple[int, int, int]:
+        n = nests[ks[0]]
+        loops = getattr(n, "loops", ())
+        strided = sum(1 for lp in loops if getattr(lp, "step", 1) not in (1, -1))
+        return (strided, len(ks) * (1 + len(loops)), len(getattr(n, "statements", ())))
+
+    return sorted(groups.values(), key=guess, reverse=True)
 
 
 def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[int, tuple[dict, list]]:
@@ -757,7 +784,8 @@ def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[
     """
     global _FORKED
     out: dict[int, tuple[dict, list]] = {}
-    n_jobs = min(jobs(), len(todo))
+    groups = _work_groups(nests, todo)
+    n_jobs = min(jobs(), len(groups))
     import threading
 
     can_fork = (n_jobs > 1 and hasattr(os, "fork") and threading.active_count() == 1
@@ -768,9 +796,10 @@ def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[
         _FORKED = (nests, options)
         try:
             with multiprocessing.get_context("fork").Pool(n_jobs) as pool:
-                for k, res in pool.imap_unordered(_forked_worker, todo):
-                    if res is not None:
-                        out[k] = res
+                for done in pool.imap_unordered(_forked_worker, groups):
+                    for k, res in done:
+                        if res is not None:
+                            out[k] = res
         except Exception:  # no processes to be had: do it here
             out.clear()
         finally:

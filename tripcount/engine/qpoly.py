@@ -432,12 +432,16 @@ class QPoly:
         """Plain-arithmetic expression (sympy-parsable with ^ as power), factored where cheap.
 
         The most readable of the forms proven equal to this one (readable.py),
-        e.g. floor((N + 1)/2) for N - floor(N/2); computed once per object.
+        e.g. floor((N + 1)/2) for N - floor(N/2); computed once per object
+        (inside readable.plain_forms() without the search, and not kept).
         """
         if self._text is None:
-            from tripcount.engine.readable import readable
+            from tripcount.engine.readable import readable, searching
 
-            self._text = readable(self)
+            text = readable(self)
+            if not searching():
+                return text
+            self._text = text
         return self._text
 
     def to_expanded(self) -> str:

@@ -23,11 +23,21 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
+from contextvars import ContextVar
 from fractions import Fraction
 from itertools import combinations
 from math import lcm
 
-from tripcount.engine.fmt import PRIME, eval_mod, format_qpoly, frac_mod, probe_point
+from tripcount.engine.fmt import (
+    PRIME,
+    eval_mod,
+    format_expanded,
+    format_qpoly,
+    frac_mod,
+    probe_point,
+)
 from tripcount.engine.qpoly import Floor, QPoly, atom_key, atom_period
 
 _K = "_rk_"
@@ -48,7 +58,11 @@ _MAX_BASES = 20
 # Texts already chosen, by formula: reports print the same counts many times
 # (bytes and lines of each array, per level, in text and JSON).
 _MEMO: dict[QPoly, str] = {}
+_PLAIN_MEMO: dict[QPoly, str] = {}  # texts printed inside plain_forms()
 _MEMO_MAX = 20_000
+# inside plain_forms(), formulas up to this many terms are still factored (cheap
+# for them; a count such as N*(N + 1)/2 reads better so); longer ones are expanded
+_PLAIN_FACTOR_TERMS = 12
 
 
 def text_cost(text: str) -> tuple[int, int]:
@@ -342,12 +356,45 @@ def _rewrite_variable(p: QPoly, v: str, cost, budget: _Budget) -> QPoly:
     return best
 
 
+_PLAIN: ContextVar[bool] = ContextVar("tripcount_plain_forms", default=False)
+
+
+@contextmanager
+def plain_forms() -> Iterator[None]:
+    """Within: readable() prints one form without the search: factored when short, else expanded.
+
+    For reports whose formulas nobody reads first (the gate compares values and
+    degrees): the same exact formula, without the search's cost (most of a
+    strided nest's report). A text found earlier is still used.
+    """
+    token = _PLAIN.set(True)
+    try:
+        yield
+    finally:
+        _PLAIN.reset(token)
+
+
+def searching() -> bool:
+    """False inside plain_forms()."""
+    return not _PLAIN.get()
+
+
 def readable(p: QPoly, fmt=None) -> str:
     """Cheapest text (see text_cost) among forms of p proven equal to it; fmt prints one
-    form (default: the factored printer, grouped; only that one is memoized)."""
+    form (default: the factored printer, grouped; only that one is memoized).
+    Inside plain_forms() the default form is printed without the search."""
     if fmt is not None:
         return _readable(p, fmt)
     text = _MEMO.get(p)
+    if text is None and _PLAIN.get():
+        text = _PLAIN_MEMO.get(p)
+        if text is None:
+            small = len(p.terms) <= _PLAIN_FACTOR_TERMS
+            text = format_grouped(p, format_qpoly) if small else format_expanded(p)
+            if len(_PLAIN_MEMO) >= _MEMO_MAX:
+                _PLAIN_MEMO.clear()
+            _PLAIN_MEMO[p] = text
+        return text
     if text is None:
         text = _readable(p, lambda q: format_grouped(q, format_qpoly))
         if len(_MEMO) >= _MEMO_MAX:

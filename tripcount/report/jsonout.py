@@ -17,6 +17,7 @@ from tripcount.analysis.results import (
     Report,
     StatementResult,
 )
+from tripcount.engine.readable import plain_forms
 from tripcount.ir import OmpClauses, Span, c_text
 from tripcount.report.base import Reporter
 
@@ -84,8 +85,12 @@ def statement_json(sr: StatementResult) -> dict[str, Any]:
     return out
 
 
-def nest_json(nr: NestResult) -> dict[str, Any]:
-    """One nest."""
+def nest_json(nr: NestResult, readable: bool = True) -> dict[str, Any]:
+    """One nest; readable=False prints formulas without the search for their most
+    readable form (engine.readable.plain_forms), for the gate."""
+    if not readable:
+        with plain_forms():
+            return nest_json(nr)
     n = nr.nest
     out: dict[str, Any] = {"function": n.function}
     out.update(span_json(n.span))
