@@ -14,6 +14,7 @@ from collections.abc import Mapping
 
 import islpy as isl
 
+from tripcount.engine.memo import Memo
 from tripcount.engine.piecewise import Piece, PieceList, Piecewise, add_all, build, qpoly_identical
 from tripcount.engine.qpoly import Floor, QPoly
 from tripcount.engine.summation import EngineLimit, Limits, _State, sum_set
@@ -75,18 +76,14 @@ def sum_over(
     key = (s.to_str(), None if context is None else context.to_str(), weight, limits.max_pieces)
     found = _MEMO.get(key)
     if found is None:
-        found = _sum_over(s, weight, context, limits)
-        if len(_MEMO) >= _MEMO_MAX:
-            _MEMO.clear()
-        _MEMO[key] = found
+        found = _MEMO.keep(key, _sum_over(s, weight, context, limits))
     return found
 
 
 # Results by (set, context, weight) text: kernels repeat the same loop shapes
 # (and the footprint analysis counts the same images per level), and a result
 # is exact whatever the limits it was found under. Give-ups are not kept.
-_MEMO: dict[tuple, Piecewise] = {}
-_MEMO_MAX = 4096
+_MEMO: Memo[tuple, Piecewise] = Memo(4096)
 
 
 def _sum_over(s: isl.Set, weight: QPoly, context: isl.Set | None, limits: Limits) -> Piecewise:

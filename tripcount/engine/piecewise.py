@@ -22,6 +22,7 @@ import islpy as isl
 
 from tripcount.engine.fmt import format_conditions
 from tripcount.engine.islconv import bset_constraints, lin_isl, params_set
+from tripcount.engine.memo import Memo
 from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value
 from tripcount.engine.summation import EngineLimit, _State
 
@@ -72,7 +73,8 @@ class Piece:
         return cond.contains(values)
 
 
-_SUMS: dict[tuple, Piecewise] = {}
+# sums already built, by the identity of their operands (see _built_sum)
+_SUMS: Memo[tuple, Piecewise] = Memo(1024)
 
 
 def add_all(formulas: list[Piecewise]) -> Piecewise:
@@ -95,10 +97,7 @@ def _built_sum(formulas: tuple[Piecewise, ...]) -> Piecewise:
         for f in formulas:
             if f.context is not None:
                 ctx = f.context if ctx is None else ctx.intersect(f.context)
-        found = build([t for f in formulas for t in f._terms()], params, ctx)
-        if len(_SUMS) >= 1024:
-            _SUMS.clear()
-        _SUMS[formulas] = found
+        found = _SUMS.keep(formulas, build([t for f in formulas for t in f._terms()], params, ctx))
     return found
 
 

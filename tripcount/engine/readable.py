@@ -38,6 +38,7 @@ from tripcount.engine.fmt import (
     frac_mod,
     probe_point,
 )
+from tripcount.engine.memo import Memo
 from tripcount.engine.qpoly import Floor, QPoly, atom_key, atom_period
 
 _K = "_rk_"
@@ -57,9 +58,8 @@ _MAX_FLOORS = 8
 _MAX_BASES = 20
 # Texts already chosen, by formula: reports print the same counts many times
 # (bytes and lines of each array, per level, in text and JSON).
-_MEMO: dict[QPoly, str] = {}
-_PLAIN_MEMO: dict[QPoly, str] = {}  # texts printed inside plain_forms()
-_MEMO_MAX = 20_000
+_MEMO: Memo[QPoly, str] = Memo(20_000)
+_PLAIN_MEMO: Memo[QPoly, str] = Memo(20_000)  # texts printed inside plain_forms()
 # inside plain_forms(), formulas up to this many terms are still factored (cheap
 # for them; a count such as N*(N + 1)/2 reads better so); longer ones are expanded
 _PLAIN_FACTOR_TERMS = 12
@@ -390,16 +390,11 @@ def readable(p: QPoly, fmt=None) -> str:
         text = _PLAIN_MEMO.get(p)
         if text is None:
             small = len(p.terms) <= _PLAIN_FACTOR_TERMS
-            text = format_grouped(p, format_qpoly) if small else format_expanded(p)
-            if len(_PLAIN_MEMO) >= _MEMO_MAX:
-                _PLAIN_MEMO.clear()
-            _PLAIN_MEMO[p] = text
+            text = _PLAIN_MEMO.keep(p, format_grouped(p, format_qpoly) if small else format_expanded(p))
         return text
     if text is None:
         text = _readable(p, lambda q: format_grouped(q, format_qpoly))
-        if len(_MEMO) >= _MEMO_MAX:
-            _MEMO.clear()
-        _MEMO[p] = text
+        _MEMO.keep(p, text)
     return text
 
 

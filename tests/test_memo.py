@@ -1,0 +1,15 @@
+# Tests of tripcount/engine/memo.py: the bounded memo tables of the engine.
+
+from __future__ import annotations
+
+from tripcount.engine.memo import Memo
+
+
+def test_memo_keeps_and_forgets_all_when_full():
+    m: Memo[int, str] = Memo(3)
+    assert m.keep(1, "a") == "a"
+    m.keep(2, "b")
+    m.keep(3, "c")
+    assert dict(m) == {1: "a", 2: "b", 3: "c"}
+    m.keep(4, "d")  # full: emptied first, so memory stays bounded
+    assert dict(m) == {4: "d"}
