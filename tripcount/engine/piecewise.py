@@ -407,8 +407,22 @@ def qpoly_identical(f: QPoly, g: QPoly, budget: int = 20000) -> bool:
     return True
 
 
+# the bundled corpus needs at most 8 basic sets and 20 existentials here
+_FLAT_MAX_BASIC = 16
+_FLAT_MAX_DIVS = 48
+
+
 def _flat_substitution(r: isl.Set) -> dict[str, QPoly] | None:
-    """If r lies in a hyperplane p = e (unit coefficient on a parameter p, no divs), {p: e}."""
+    """If r lies in a hyperplane p = e (unit coefficient on a parameter p, no divs), {p: e}.
+
+    Not tried on a region past _FLAT_MAX_BASIC basic sets or _FLAT_MAX_DIVS
+    existentials: the hull of such a union (one seen in fuzzing: 118 basic sets,
+    929 existentials) is one isl call of minutes that no limit can interrupt,
+    and the merge it serves only saves a piece.
+    """
+    bsets = r.get_basic_sets()
+    if len(bsets) > _FLAT_MAX_BASIC or sum(b.dim(_dt.div) for b in bsets) > _FLAT_MAX_DIVS:
+        return None
     hull = r.compute_divs().affine_hull()
     if hull.dim(_dt.div):
         return None
