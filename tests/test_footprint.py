@@ -747,3 +747,11 @@ def test_simplify_drops_the_floors_of_a_tiled_rectangle():
     r = footprint.simplify(s)
     assert r.get_basic_sets()[0].dim(isl.dim_type.div) == 0
     assert r.is_equal(isl.Set("[N] -> { A[x] : 0 <= x < N }"))
+
+
+def test_simplify_leaves_a_huge_union_alone():
+    # past the caps the subset tests are not tried (they cannot be interrupted)
+    parts = " or ".join(f"(x = {3 * k})" for k in range(footprint._SIMPLIFY_MAX_BASIC + 1))
+    s = isl.Set(f"{{ A[x] : {parts} }}")
+    assert len(s.coalesce().get_basic_sets()) > footprint._SIMPLIFY_MAX_BASIC
+    assert footprint.simplify(s).is_equal(s)

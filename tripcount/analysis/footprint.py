@@ -419,6 +419,10 @@ def _plain_constraint(c: isl.Constraint, ls: isl.LocalSpace) -> isl.Constraint |
     return new
 
 
+_SIMPLIFY_MAX_BASIC = 64
+_SIMPLIFY_MAX_DIVS = 48
+
+
 def simplify(s: isl.Set) -> isl.Set:
     """The same integer set, as a single polyhedron without existentials when it is one.
 
@@ -431,6 +435,11 @@ def simplify(s: isl.Set) -> isl.Set:
     s = s.coalesce()
     bsets = s.get_basic_sets()
     if len(bsets) == 1 and bsets[0].dim(isl.dim_type.div) == 0:
+        return s
+    # the subset tests below are isl calls no limit can interrupt; on a huge union
+    # they could run for minutes (the bundled corpus needs at most 20 basic sets
+    # and 8 existentials here)
+    if len(bsets) > _SIMPLIFY_MAX_BASIC or sum(b.dim(isl.dim_type.div) for b in bsets) > _SIMPLIFY_MAX_DIVS:
         return s
     space = s.get_space()
     ls = isl.LocalSpace.from_space(space)
