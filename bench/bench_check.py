@@ -14,20 +14,20 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import queue
 import statistics
 import subprocess
 import sys
 import tempfile
-import threading
 import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
 sys.path.insert(0, str(HERE))
+sys.path.insert(0, str(ROOT / "tests"))
 
 from gen_check_file import generate  # noqa: E402
+from lspwire import WireClient  # noqa: E402
 
 PYPROJECT = """\
 [tool.tripcount]
@@ -57,72 +57,15 @@ def median(xs: list[float]) -> float:
     return statistics.median(xs) if xs else float("nan")
 
 
-class Client:
-    """A minimal LSP client over pipes (enough for the timing)."""
-
-    def __init__(self, cmd: list[str], env: dict[str, str], cwd: Path) -> None:
-        self.proc = subprocess.Popen(cmd, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
-                                     env=env, cwd=cwd)
-        self.inbox: queue.Queue = queue.Queue()
-        self.next_id = 0
-        threading.Thread(target=self._read, daemon=True).start()
-
-    def _read(self) -> None:
-        out = self.proc.stdout
-        assert out is not None
-        while True:
-            header = b""
-            while not header.endswith(b"\r\n\r\n"):
-                ch = out.read(1)
-                if not ch:
-                    return
-                header += ch
-            n = int(header.split(b"Content-Length:")[1].split(b"\r\n")[0])
-            self.inbox.put(json.loads(out.read(n)))
-
-    def send(self, method: str, params: dict, request: bool = True) -> int | None:
-        msg: dict = {"jsonrpc": "2.0", "method": method, "params": params}
-        rid = None
-        if request:
-            self.next_id += 1
-            rid = msg["id"] = self.next_id
-        body = json.dumps(msg).encode()
-        assert self.proc.stdin is not None
-        self.proc.stdin.write(b"Content-Length: %d\r\n\r\n" % len(body) + body)
-        self.proc.stdin.flush()
-        return rid
-
-    def wait(self, pred, timeout: float = 600) -> dict:
-        deadline = time.monotonic() + timeout
-        while True:
-            msg = self.inbox.get(timeout=max(deadline - time.monotonic(), 0.01))
-            if pred(msg):
-                return msg
-
-    def request(self, method: str, params: dict, timeout: float = 600) -> dict:
-        rid = self.send(method, params)
-        return self.wait(lambda m: m.get("id") == rid and "method" not in m, timeout)
-
-    def close(self) -> None:
-        try:
-            self.request("shutdown", {}, timeout=30)
-            self.send("exit", {}, request=False)
-            self.proc.wait(timeout=30)
-        except Exception:
-            self.proc.kill()
-            self.proc.wait()
-
-
 def bench_hover(workdir: Path, env: dict[str, str], text: str, rounds: int) -> dict[str, float]:
     """Hover latencies (ms) on every loop header once the document is analyzed."""
-    c = Client([sys.executable, "-m", "tripcount", "serve"], env, workdir)
+    c = WireClient(env, cwd=str(workdir))
     try:
         uri = (workdir / "kernels.c").as_uri()
         c.request("initialize", {"processId": os.getpid(), "rootUri": workdir.as_uri(), "capabilities": {}})
-        c.send("initialized", {}, request=False)
+        c.notify("initialized", {})
         t0 = time.perf_counter()
-        c.send("textDocument/didOpen", {"textDocument": {"uri": uri, "languageId": "c", "version": 1, "text": text}},
-               request=False)
+        c.notify("textDocument/didOpen", {"textDocument": {"uri": uri, "languageId": "c", "version": 1, "text": text}})
         c.wait(lambda m: m.get("method") == "textDocument/publishDiagnostics" and m["params"]["uri"] == uri)
         first_diag = time.perf_counter() - t0
         headers = [(k, line.index("for")) for k, line in enumerate(text.split("\n")) if line.lstrip().startswith("for")]

@@ -6,15 +6,14 @@
 from __future__ import annotations
 
 import asyncio
-import json
 import os
-import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
 import pytest
+from lspwire import WireClient, message
 
 from tripcount import lsp
 
@@ -249,11 +248,6 @@ async def test_server_survives_out_of_order_and_huge_input(client: LanguageClien
     assert h is not None
 
 
-def _frame(obj) -> bytes:
-    body = json.dumps(obj).encode()
-    return b"Content-Length: %d\r\n\r\n" % len(body) + body
-
-
 @needs_pipeline
 @pytest.mark.asyncio
 async def test_rapid_changes_are_debounced(client: LanguageClient):
@@ -275,77 +269,39 @@ async def test_rapid_changes_are_debounced(client: LanguageClient):
     assert 1 <= published <= 2
 
 
-class RawServer:
-    """The server as a subprocess, spoken to with raw bytes (for input no client would send)."""
-
-    def __init__(self, env):
-        import queue
-        import threading
-
-        self.proc = subprocess.Popen(SERVER, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                                     stderr=subprocess.DEVNULL, env=env)
-        self.replies: dict = {}
-        self.inbox: queue.Queue = queue.Queue()
-        threading.Thread(target=self._read, daemon=True).start()
-
-    def _read(self) -> None:
-        out = self.proc.stdout
-        while True:
-            header = b""
-            while not header.endswith(b"\r\n\r\n"):
-                ch = out.read(1)
-                if not ch:
-                    return
-                header += ch
-            n = int(header.split(b"Content-Length:")[1].split(b"\r\n")[0])
-            self.inbox.put(json.loads(out.read(n)))
-
-    def send(self, data: bytes) -> None:
-        self.proc.stdin.write(data)
-        self.proc.stdin.flush()
-
-    def reply(self, id_, timeout=120):
-        deadline = time.monotonic() + timeout
-        while id_ not in self.replies:
-            msg = self.inbox.get(timeout=max(deadline - time.monotonic(), 0.01))
-            if "id" in msg and "method" not in msg:
-                self.replies[msg["id"]] = msg
-        return self.replies[id_]
-
-
 @needs_pipeline
 def test_server_survives_malformed_messages(tmp_path):
     """Junk headers, bad JSON, bad parameters, unknown methods, out-of-order notifications."""
     env = {**ENV, "TRIPCOUNT_CACHE_DIR": str(tmp_path / "cache")}
-    s = RawServer(env)
+    s = WireClient(env)
     try:
         s.send(b"this is not a header\r\n\r\n")
         s.send(b"Content-Length: 5\r\n\r\n{bad}")
         s.send(b"Content-Length: 2\r\n\r\n[]")
-        s.send(_frame({"jsonrpc": "2.0", "id": 1, "method": "initialize",
+        s.send(message({"jsonrpc": "2.0", "id": 1, "method": "initialize",
                        "params": {"processId": None, "rootUri": None, "capabilities": {}}}))
         assert "result" in s.reply(1)  # initialized despite the junk before
-        s.send(_frame({"jsonrpc": "2.0", "method": "initialized", "params": {}}))
-        s.send(_frame({"jsonrpc": "2.0", "id": 2, "method": "textDocument/hover", "params": {"nonsense": True}}))
+        s.send(message({"jsonrpc": "2.0", "method": "initialized", "params": {}}))
+        s.send(message({"jsonrpc": "2.0", "id": 2, "method": "textDocument/hover", "params": {"nonsense": True}}))
         assert "error" in s.reply(2)
-        s.send(_frame({"jsonrpc": "2.0", "id": 3, "method": "tripcount/unknown", "params": {}}))
+        s.send(message({"jsonrpc": "2.0", "id": 3, "method": "tripcount/unknown", "params": {}}))
         assert "error" in s.reply(3)
-        s.send(_frame({"jsonrpc": "2.0", "method": "textDocument/didChange",
+        s.send(message({"jsonrpc": "2.0", "method": "textDocument/didChange",
                        "params": {"textDocument": {"uri": "file:///nowhere.c", "version": 2},
                                   "contentChanges": [{"text": "x"}]}}))
-        s.send(_frame({"jsonrpc": "2.0", "method": "textDocument/didClose",
+        s.send(message({"jsonrpc": "2.0", "method": "textDocument/didClose",
                        "params": {"textDocument": {"uri": "file:///nowhere.c"}}}))
         src = tmp_path / "ok.c"
         src.write_text("void f(int N) { for (int i = 0; i < N; i++) ; }")
-        s.send(_frame({"jsonrpc": "2.0", "method": "textDocument/didOpen",
+        s.send(message({"jsonrpc": "2.0", "method": "textDocument/didOpen",
                        "params": {"textDocument": {"uri": src.as_uri(), "languageId": "c", "version": 1,
                                                    "text": src.read_text()}}}))
-        s.send(_frame({"jsonrpc": "2.0", "id": 4, "method": "textDocument/hover",
+        s.send(message({"jsonrpc": "2.0", "id": 4, "method": "textDocument/hover",
                        "params": {"textDocument": {"uri": src.as_uri()}, "position": {"line": 0, "character": 17}}}))
         assert "loop `i`" in s.reply(4)["result"]["contents"]["value"]
-        s.send(_frame({"jsonrpc": "2.0", "id": 5, "method": "shutdown"}))
+        s.send(message({"jsonrpc": "2.0", "id": 5, "method": "shutdown"}))
         s.reply(5)
-        s.send(_frame({"jsonrpc": "2.0", "method": "exit"}))
+        s.send(message({"jsonrpc": "2.0", "method": "exit"}))
         assert s.proc.wait(timeout=30) == 0
     finally:
         if s.proc.poll() is None:

@@ -1,5 +1,5 @@
 # Robustness of the language server: `python -m tripcount serve` as a
-# subprocess, spoken to over pipes with this module's own minimal LSP framing.
+# subprocess, spoken to over pipes with raw framing (tests/lspwire.py).
 # 1,000 malformed or random messages (bad headers, bad JSON, wrong methods,
 # wrong params, out-of-order requests, didChange before didOpen, huge
 # documents), then a valid hover must still be answered. Everything is
@@ -9,15 +9,13 @@ from __future__ import annotations
 
 import json
 import os
-import queue
 import random
-import subprocess
-import sys
-import threading
 import time
 from typing import Any
 
 import pytest
+from lspwire import WireClient, frame
+from lspwire import message as msg
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 N_MESSAGES = 1000
@@ -39,86 +37,6 @@ def _lsp_available() -> str | None:
 
 
 pytestmark = pytest.mark.skipif(_lsp_available() is not None, reason=str(_lsp_available()))
-
-
-def frame(body: bytes) -> bytes:
-    """One LSP message: Content-Length header, blank line, body."""
-    return b"Content-Length: %d\r\n\r\n" % len(body) + body
-
-
-def msg(obj: Any) -> bytes:
-    return frame(json.dumps(obj).encode())
-
-
-class Client:
-    """The server process, a reader thread that splits its output into messages, and a kill switch."""
-
-    def __init__(self, tmp: str) -> None:
-        env = dict(os.environ, TRIPCOUNT_CACHE_DIR=os.path.join(tmp, "cache"),
-                   PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
-        self.stderr = open(os.path.join(tmp, "server.log"), "wb")  # noqa: SIM115 - closed in close()
-        self.proc = subprocess.Popen([sys.executable, "-m", "tripcount", "serve"], stdin=subprocess.PIPE,
-                                     stdout=subprocess.PIPE, stderr=self.stderr, cwd=tmp, env=env)
-        self.inbox: queue.Queue[dict[str, Any]] = queue.Queue()
-        self.reader = threading.Thread(target=self._read, daemon=True)
-        self.reader.start()
-        self.watchdog = threading.Timer(TEST_TIMEOUT_S, self.proc.kill)
-        self.watchdog.start()
-
-    def _read(self) -> None:
-        out = self.proc.stdout
-        while True:
-            length = None
-            while True:
-                line = out.readline()
-                if not line:
-                    return
-                line = line.strip()
-                if not line:
-                    break
-                if line.lower().startswith(b"content-length:"):
-                    length = int(line.split(b":", 1)[1])
-            if length is None:
-                continue
-            body = out.read(length)
-            try:
-                self.inbox.put(json.loads(body))
-            except ValueError:
-                self.inbox.put({"unparsable": body[:200].decode(errors="replace")})
-
-    def send(self, data: bytes) -> None:
-        self.proc.stdin.write(data)
-        self.proc.stdin.flush()
-
-    def request(self, rid: int, method: str, params: Any, timeout: float = 60.0) -> dict[str, Any]:
-        """Send a request and wait for the response with its id (other messages are dropped)."""
-        self.send(msg({"jsonrpc": "2.0", "id": rid, "method": method, "params": params}))
-        end = time.monotonic() + timeout
-        while time.monotonic() < end:
-            try:
-                m = self.inbox.get(timeout=max(0.01, end - time.monotonic()))
-            except queue.Empty:
-                break
-            if m.get("id") == rid and ("result" in m or "error" in m):
-                return m
-        raise AssertionError(f"no response to {method} (id {rid}) within {timeout} s")
-
-    def close(self) -> int | None:
-        try:
-            self.send(msg({"jsonrpc": "2.0", "id": 999_999, "method": "shutdown", "params": None}))
-            self.send(msg({"jsonrpc": "2.0", "method": "exit", "params": None}))
-            self.proc.stdin.close()
-        except OSError:
-            pass
-        try:
-            return self.proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.wait(timeout=5)
-            return None
-        finally:
-            self.watchdog.cancel()
-            self.stderr.close()
 
 
 def _uri(k: int) -> str:
@@ -186,10 +104,16 @@ def random_message(rng: random.Random, k: int) -> bytes:
                                                                       "character": rng.randrange(40)}}})
 
 
+def _client(tmp: str) -> WireClient:
+    env = dict(os.environ, TRIPCOUNT_CACHE_DIR=os.path.join(tmp, "cache"),
+               PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    return WireClient(env, cwd=tmp, log=os.path.join(tmp, "server.log"), kill_after=TEST_TIMEOUT_S)
+
+
 def test_server_survives_malformed_messages_then_answers_a_hover(tmp_path):
-    client = Client(str(tmp_path))
+    client = _client(str(tmp_path))
     try:
-        init = client.request(1, "initialize", {"processId": None, "rootUri": None, "capabilities": {}})
+        init = client.request("initialize", {"processId": None, "rootUri": None, "capabilities": {}}, rid=1)
         assert "result" in init
         client.send(msg({"jsonrpc": "2.0", "method": "initialized", "params": {}}))
         rng = random.Random(20240517)
@@ -204,9 +128,9 @@ def test_server_survives_malformed_messages_then_answers_a_hover(tmp_path):
         rid = 50_000
         while time.monotonic() < end:
             rid += 1
-            r = client.request(rid, "textDocument/hover", {"textDocument": {"uri": uri},
-                                                           "position": {"line": 3, "character": 6}},
-                               timeout=max(1.0, end - time.monotonic()))
+            r = client.request("textDocument/hover", {"textDocument": {"uri": uri},
+                                                      "position": {"line": 3, "character": 6}},
+                               timeout=max(1.0, end - time.monotonic()), rid=rid)
             if r.get("result"):
                 hover = r["result"]
                 break
