@@ -387,16 +387,23 @@ def enum_count(s: isl.Set, values: Mapping[str, int]) -> int | None:
 
 
 def points(s: isl.Set, names: Sequence[str], cap: int) -> list[dict[str, int]] | None:
-    """The points of a parameter-free set as dicts (None when there are more than `cap`)."""
-    n = int(s.count_val().to_python())
-    if n > cap:
-        return None
+    """The points of a parameter-free set as dicts (None when there are more than `cap`).
+
+    The scan stops at the first point past `cap`, so a set of 10^9 points costs
+    no more than a small one (counting it first took seconds each time).
+    """
     out: list[dict[str, int]] = []
 
-    def visit(p: isl.Point) -> None:
+    def visit(p: isl.Point) -> Any:
         out.append({nm: int(p.get_coordinate_val(isl.dim_type.set, k).to_python()) for k, nm in enumerate(names)})
+        return isl.stat.error if len(out) > cap else None
 
-    s.foreach_point(visit)
+    try:
+        s.foreach_point(visit)
+    except isl.Error:
+        if len(out) > cap:
+            return None
+        raise
     return out
 
 
