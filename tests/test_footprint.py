@@ -766,3 +766,16 @@ def test_points_stop_past_the_cap_without_counting():
     pts = footprint.points(small, ["i", "j"], 6)
     assert pts is not None and len(pts) == 6 and {"i": 2, "j": 2} in pts
     assert footprint.points(small, ["i", "j"], 5) is None
+
+
+def test_no_cache_fit_size_where_the_loop_does_not_run():
+    """A working set is 0 where the loop runs no iteration (here D <= 2): a size
+    threshold there ('would fit L1 while D <= 2') says nothing, so none is given."""
+    from tripcount import pipeline
+
+    opts = Options(at={"T": 10, "D": 4000, "M": 4000}, line_size=64,
+                   caches={"L1": 48 * 1024, "L2": 2 * 1024 * 1024, "L3": 32 * 1024 * 1024})
+    nr = pipeline.analyze_file(os.path.join(HARDENING, "basin_interior.c"), opts).nests[0]
+    notes = [d.message for d in nr.diagnostics if d.code == "TC401" and "'z'" in d.message]
+    assert notes and "would fit L2 while D <= 33" in notes[0]  # 16*(D - 1)*(M - 2) bytes
+    assert "while D <= 2" not in notes[0]  # L1: only where z runs no iteration

@@ -1266,6 +1266,8 @@ class _Analyzer:
             for x in (lo - 1, lo // 2):  # a dip below the answer would make it meaningless
                 if x >= 0 and fits(x) is False:
                     return None
+            if not f({**others, param: lo}):  # it fits only where the loop does not run: say nothing
+                return None
         except _Stop:
             return None
         return Threshold(param, lo, fixed=others)
