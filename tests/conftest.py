@@ -45,3 +45,13 @@ def run_cli(capsys):
         return status, out.getvalue(), err.getvalue()
 
     return run
+
+
+@pytest.fixture
+def private_cache(tmp_path, monkeypatch):
+    """A result cache of this test alone (tmp_path/cache), outside any pre-commit run."""
+    path = tmp_path / "cache"
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(path))
+    monkeypatch.delenv("PRE_COMMIT", raising=False)
+    monkeypatch.delenv("PRE_COMMIT_FROM_REF", raising=False)
+    return path

@@ -24,9 +24,8 @@ INPUTS = Path(__file__).parent / "inputs" / "check"
 
 
 @pytest.fixture(autouse=True)
-def cache_dir(tmp_path, monkeypatch):
-    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
-    return tmp_path / "cache"
+def cache_dir(private_cache):
+    return private_cache
 
 
 # --------------------------------------------------------------------------

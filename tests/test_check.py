@@ -284,13 +284,10 @@ def stub_analyze(path, text, options, use_cache=True, store=None):
 
 
 @pytest.fixture
-def stub(monkeypatch, tmp_path):
+def stub(monkeypatch, tmp_path, private_cache):
     import tripcount.cache
 
     monkeypatch.setattr(tripcount.cache, "analyze_file_cached", stub_analyze)
-    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
-    monkeypatch.delenv("PRE_COMMIT", raising=False)
-    monkeypatch.delenv("PRE_COMMIT_FROM_REF", raising=False)
     return tmp_path
 
 
@@ -469,9 +466,7 @@ needs_pipeline = pytest.mark.skipif(not pipeline_ready(), reason="the analysis p
 
 
 @needs_pipeline
-def test_end_to_end_budget(tmp_path, monkeypatch):
-    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
-    monkeypatch.delenv("PRE_COMMIT", raising=False)
+def test_end_to_end_budget(tmp_path, monkeypatch, private_cache):
     for name in ("harbour_cubic.c", "harbour_square.c"):
         shutil.copy(INPUTS / name, tmp_path / name)
     (tmp_path / "pyproject.toml").write_text("[tool.tripcount]\nmax_degree = 2\n")

@@ -98,9 +98,7 @@ def pipeline_ready() -> bool:
 
 
 @pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
-def test_check_and_analyze_emit_sarif_that_sarif_tools_summarizes(tmp_path, monkeypatch):
-    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
-    monkeypatch.delenv("PRE_COMMIT", raising=False)
+def test_check_and_analyze_emit_sarif_that_sarif_tools_summarizes(tmp_path, monkeypatch, private_cache):
     src = tmp_path / "src"
     src.mkdir()
     shutil.copy(INPUTS / "harbour_cubic.c", src / "harbour_cubic.c")

@@ -102,8 +102,7 @@ def pipeline_ready() -> bool:
 
 @pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
 @pytest.mark.parametrize("args", [[], ["--at", "N=12"], ["--at", "N=12", "--parallel", "4", "--threads", "3"]])
-def test_reports_of_the_pipeline_validate(args, tmp_path, monkeypatch):
-    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
+def test_reports_of_the_pipeline_validate(args, private_cache):
     out = io.StringIO()
     status = main(["analyze", "--format", "json", *args, str(INPUTS)], stdout=out, stderr=io.StringIO())
     assert status == 0

@@ -74,11 +74,10 @@ def _snapshot(root: str) -> dict[str, tuple[int, str]]:
     return out
 
 
-def test_analyze_and_check_change_no_user_file(tmp_path, monkeypatch):
-    work = tmp_path / "project"
+def test_analyze_and_check_change_no_user_file(tmp_path, monkeypatch, private_cache):
+    work = tmp_path / "project"  # the tool's own cache is tmp_path/cache, outside it
     shutil.copytree(CORPUS, work / "corpus")
     (work / "notes.txt").write_text("not C\n")
-    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))  # the tool's own cache
     monkeypatch.chdir(work)
     before = _snapshot(str(work))
     files = sorted(str(work / "corpus" / n) for n in os.listdir(work / "corpus") if n.endswith(".c"))
