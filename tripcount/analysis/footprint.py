@@ -48,6 +48,7 @@ from tripcount.analysis import flops as flops_mod
 from tripcount.analysis.caches import CacheHierarchy, fmt_bytes, hierarchy
 from tripcount.analysis.results import Count, LoopResult, NestResult
 from tripcount.diagnostics import Diagnostic
+from tripcount.engine.islconv import exceeds
 from tripcount.model import Access, Loop, Nest, Statement
 from tripcount.options import Options
 
@@ -446,7 +447,7 @@ def simplify(s: isl.Set) -> isl.Set:
     # the subset tests below are isl calls no limit can interrupt; on a huge union
     # they could run for minutes (the bundled corpus needs at most 20 basic sets
     # and 8 existentials here)
-    if len(bsets) > _SIMPLIFY_MAX_BASIC or sum(b.dim(isl.dim_type.div) for b in bsets) > _SIMPLIFY_MAX_DIVS:
+    if exceeds(s, _SIMPLIFY_MAX_BASIC, _SIMPLIFY_MAX_DIVS):
         return s
     space = s.get_space()
     ls = isl.LocalSpace.from_space(space)

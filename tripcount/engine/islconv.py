@@ -81,6 +81,14 @@ def bset_constraints(bset: isl.BasicSet, divs: list[Lin] | None = None) -> list[
     return out
 
 
+def exceeds(s: isl.Set, max_basic: int, max_divs: int) -> bool:
+    """True when s, as written, has more than `max_basic` basic sets or more than
+    `max_divs` existentials in all: past such a size some isl calls (hulls,
+    subset tests) run for minutes in one call that no limit can interrupt."""
+    bsets = s.get_basic_sets()
+    return len(bsets) > max_basic or sum(b.dim(_dt.div) for b in bsets) > max_divs
+
+
 def set_conditions(s: isl.Set) -> list[list[tuple[Lin, bool]]]:
     """Disjunctive normal form of a set: one constraint list per basic set."""
     s = s.compute_divs()

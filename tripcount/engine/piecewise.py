@@ -21,7 +21,7 @@ from math import comb, lcm
 import islpy as isl
 
 from tripcount.engine.fmt import format_conditions
-from tripcount.engine.islconv import bset_constraints, lin_isl, params_set
+from tripcount.engine.islconv import bset_constraints, exceeds, lin_isl, params_set
 from tripcount.engine.memo import Memo
 from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value
 from tripcount.engine.summation import EngineLimit, _State
@@ -420,8 +420,7 @@ def _flat_substitution(r: isl.Set) -> dict[str, QPoly] | None:
     929 existentials) is one isl call of minutes that no limit can interrupt,
     and the merge it serves only saves a piece.
     """
-    bsets = r.get_basic_sets()
-    if len(bsets) > _FLAT_MAX_BASIC or sum(b.dim(_dt.div) for b in bsets) > _FLAT_MAX_DIVS:
+    if exceeds(r, _FLAT_MAX_BASIC, _FLAT_MAX_DIVS):
         return None
     hull = r.compute_divs().affine_hull()
     if hull.dim(_dt.div):
