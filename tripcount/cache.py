@@ -761,15 +761,12 @@ def _work_groups(nests: list[Any], todo: list[int]) -> list[list[int]]:
     """
     groups: dict[tuple[str, ...], list[int]] = {}
     for k in todo:
-        loops = getattr(nests[k], "loops", ())
-        shape = tuple(str(getattr(lp, "domain", None)) for lp in loops) or (f"#{k}",)
-        groups.setdefault(shape, []).append(k)
+        groups.setdefault(tuple(str(lp.domain) for lp in nests[k].loops), []).append(k)
 
     def guess(ks: list[int]) -> tuple[int, int, int]:
         n = nests[ks[0]]
-        loops = getattr(n, "loops", ())
-        strided = sum(1 for lp in loops if getattr(lp, "step", 1) not in (1, -1))
-        return (strided, len(ks) * (1 + len(loops)), len(getattr(n, "statements", ())))
+        strided = sum(1 for lp in n.loops if lp.step not in (1, -1))
+        return (strided, len(ks) * (1 + len(n.loops)), len(n.statements))
 
     return sorted(groups.values(), key=guess, reverse=True)
 
@@ -784,13 +781,14 @@ def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[
     """
     global _FORKED
     out: dict[int, tuple[dict, list]] = {}
-    groups = _work_groups(nests, todo)
-    n_jobs = min(jobs(), len(groups))
+    n_jobs = min(jobs(), len(todo))
     import threading
 
     can_fork = (n_jobs > 1 and hasattr(os, "fork") and threading.active_count() == 1
                 and sys.platform.startswith("linux"))
-    if can_fork:
+    groups = _work_groups(nests, todo) if can_fork else []
+    if len(groups) > 1:
+        n_jobs = min(n_jobs, len(groups))
         import multiprocessing
 
         _FORKED = (nests, options)
