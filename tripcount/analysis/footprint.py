@@ -741,7 +741,7 @@ class _Analyzer:
         self.budget = _Budget(min(BUDGET_S, options.time_limit))
         full = options.sizes(self.nest.params)  # `--at '*=V'` sizes every parameter
         self.at = full if full is not None else {k: v for k, v in options.at.items() if k in self.nest.params}
-        self.has_at = full is not None and (bool(options.at) or not self.nest.params)
+        self.has_at = full is not None
         self.mixed = self._mixed_ranks()
         self.arrays = self._arrays()
         self._cache: dict[tuple, Footprint] = {}
