@@ -52,6 +52,29 @@ def test_formula_pieces_parse_with_sympy(run_cli):
     assert stmt["count"]["degree"] == 2
 
 
+def test_formula_pieces_read_back_with_the_formula_reader(run_cli):
+    from tripcount.formula import parse
+
+    status, out, _ = run_cli("analyze", FLUSH, "--format", "json")
+    assert status == 0
+    stmt = json.loads(out)["files"][0]["nests"][0]["statements"][0]
+    (piece,) = [p for p in stmt["count"]["pieces"] if p["when"] in ("true", "n >= 1")]
+    # triangular numbers, OEIS A000217
+    assert parse(piece["expr"]).evaluate({"n": 10}) == 55
+    assert parse(piece["when"]).evaluate({"n": 10}) is True
+
+
+def test_verify_reads_back_the_printed_formulas(run_cli):
+    # the nest whose S2 condition was once printed '7*(2*N + 1) % 5 >= M + 24':
+    # --verify re-reads every printed piece (C semantics) against isl enumeration
+    path = os.path.join(INPUTS, "formula", "mod_guard_stride.c")
+    status, out, err = run_cli("analyze", path, "--verify", "--at", "N=9,M=0", "--format", "json")
+    assert status == 0, err
+    diags = json.loads(out)["files"][0]["diagnostics"]
+    assert [d["code"] for d in diags if d["code"] == "TC302"] == []
+    assert any(d["code"] == "TC303" for d in diags)
+
+
 def test_usage_errors_exit_2(run_cli):
     assert run_cli()[0] == 2
     assert run_cli("analyze")[0] == 2

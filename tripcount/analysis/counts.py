@@ -10,14 +10,17 @@
 
 from __future__ import annotations
 
+import itertools
 from collections.abc import Mapping
 from fractions import Fraction
+from typing import Any
 
 import islpy as isl
 
 from tripcount import engine
 from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
 from tripcount.diagnostics import Diagnostic
+from tripcount.formula import piecewise_value
 from tripcount.ir import Span
 from tripcount.model import Nest
 from tripcount.options import Options
@@ -47,7 +50,8 @@ class VerifyPassed(Diagnostic):
     code = "TC303"
     severity = "note"
     title = "verified"
-    template = "verified {n} formulas of this nest against enumeration at {points} parameter points"
+    template = ("verified {n} formulas of this nest, as computed and as printed, "
+                "against enumeration at {points} parameter points")
 
 
 def context_for(s: isl.Set, context: isl.Set | None) -> isl.Set | None:
@@ -187,57 +191,92 @@ def analyze(result: NestResult, options: Options) -> None:
 
 
 def verification_points(formula: engine.Piecewise, s: isl.Set, limit: int = 40) -> list[dict[str, int]]:
-    """Parameter points to check a formula at: a small grid plus a point in every piece."""
+    """Parameter points to check a formula at: a small grid, plus in every piece
+    a sample point and its lexicographic extremes within a box (points on the
+    boundaries between pieces, where a misprinted condition shows)."""
     names = params_of(s)
-    points: list[dict[str, int]] = []
     if not names:
         return [{}]
     grid = [-1, 0, 1, 2, 3, 5, 8]
-    import itertools
-
-    for combo in itertools.islice(itertools.product(grid, repeat=len(names)), limit):
-        points.append(dict(zip(names, combo, strict=True)))
+    points = [dict(zip(names, combo, strict=True))
+              for combo in itertools.islice(itertools.product(grid, repeat=len(names)), limit)]
     for piece in formula.pieces:
         try:
             dom = piece.domain
+            ctx = dom.get_ctx()
             box = isl.Set.universe(dom.get_space())
             for i in range(len(names)):
-                box = box.lower_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(dom.get_ctx(), str(-4)))
-                box = box.upper_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(dom.get_ctx(), str(24)))
-            sample = dom.intersect(box).sample_point()
-            if sample.is_void():
+                box = box.lower_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(ctx, "-4"))
+                box = box.upper_bound_val(isl.dim_type.param, i, isl.Val.read_from_str(ctx, "24"))
+            inside = dom.intersect(box)
+            if inside.is_empty():
                 continue
-            pt = {}
-            for i, n in enumerate(names):
-                pt[n] = int(sample.get_coordinate_val(isl.dim_type.param, i).to_python())
-            points.append(pt)
+            as_set = inside.move_dims(isl.dim_type.set, 0, isl.dim_type.param, 0, len(names))
+            for pt in (inside.sample_point(), as_set.lexmin().sample_point(),
+                       as_set.lexmax().sample_point()):
+                if pt.is_void():
+                    continue
+                kind = isl.dim_type.param if pt.get_space().dim(isl.dim_type.set) == 0 else isl.dim_type.set
+                points.append({n: int(pt.get_coordinate_val(kind, i).to_python())
+                               for i, n in enumerate(names)})
         except Exception:  # a piece without a small sample is covered by the grid
             continue
     return points
 
 
+def printed_value(formula: engine.Piecewise, point: Mapping[str, int]) -> Fraction:
+    """The value of the formula as printed (JSON pieces and text report alike),
+    read back with the formula reader under C semantics."""
+    pieces = [{"when": p.when, "expr": p.poly.to_expr()} for p in formula.pieces]
+    return piecewise_value(pieces, point)
+
+
+def _check_formula(formula: engine.Piecewise, dom: isl.Set, context: isl.Set) -> tuple[str, Any, Any, dict] | None:
+    """First disagreement of the formula (evaluated, and as printed) with
+    enumeration: (which, got, want, point), or None."""
+    for pt in verification_points(formula, dom):
+        if not _in_context(context, pt):
+            continue
+        want = engine.enumerate_count(dom, pt)
+        got = formula.evaluate(pt)
+        if got != want:
+            return "formula", got, want, pt
+        try:
+            shown = printed_value(formula, pt)
+        except (ValueError, KeyError, ZeroDivisionError) as exc:
+            return f"printed formula ({exc})", None, want, pt
+        if shown != want:
+            return "printed formula", shown, want, pt
+    return None
+
+
 def verify(result: NestResult, options: Options) -> None:
-    """Compare every formula of the nest with enumeration (diagnostic per mismatch)."""
+    """Compare every formula of the nest, and its printed text read back, with
+    enumeration (a diagnostic per mismatch)."""
     nest = result.nest
     checked = 0
     npoints = 0
+    before = len(result.diagnostics)
     items = [(f"loop '{lr.loop.var}'", lr.loop.domain, lr.trips, lr.loop.span) for lr in result.loops]
+    items += [
+        (f"loop '{lr.loop.var}' per entry", outer_as_params(lr.loop.domain, lr.loop.depth),
+         lr.per_entry, lr.loop.span)
+        for lr in result.loops
+        if lr.loop.depth > 0 and lr.loop.domain is not None and lr.per_entry is not None
+    ]
     items += [(f"statement {sr.stmt.id}", sr.stmt.domain, sr.count, sr.stmt.span) for sr in result.statements]
     for what, dom, cnt, span in items:
-        if dom is None or cnt.formula is None:
+        if dom is None or cnt is None or cnt.formula is None:
             continue
         checked += 1
-        pts = verification_points(cnt.formula, dom)
-        npoints += len(pts)
-        for pt in pts:
-            if not _in_context(nest.context, pt):
-                continue
-            want = engine.enumerate_count(dom, pt)
-            got = cnt.formula.evaluate(pt)
-            if got != want:
-                result.diagnostics.append(VerifyMismatch(span, what=what, got=got, want=want, point=_fmt_point(pt)))
-                break
-    if checked:
+        npoints += len(verification_points(cnt.formula, dom))
+        bad = _check_formula(cnt.formula, dom, nest.context)
+        if bad is not None:
+            which, got, want, pt = bad
+            result.diagnostics.append(VerifyMismatch(
+                span, what=f"{what} ({which})", got=got, want=want, point=_fmt_point(pt)))
+    mismatches = len(result.diagnostics) - before
+    if checked and not mismatches:
         result.diagnostics.append(VerifyPassed(nest.span, n=checked, points=npoints))
 
 

@@ -489,6 +489,10 @@ def _floor_cmp_text(lin: Lin, eq: bool, nonneg, k: int) -> str:
     pos, neg = [], []
     for t, c in items:
         mag = abs(int(c))
+        # C's * / % share one precedence level, left to right: a coefficient in
+        # front of 'E % m' or 'E / m' needs parentheses ('7*((2*N + 1) % 5)').
+        if mag != 1 and (" % " in t or " / " in t):
+            t = f"({t})"
         txt = t if mag == 1 else f"{mag}*{t}"
         (pos if c > 0 else neg).append(txt)
     const = int(const)

@@ -558,6 +558,14 @@ def _nonneg_checker(ctx_set: isl.Set, conj_sets: list[isl.Set], params: tuple[st
     return nonneg
 
 
+def _floor_free(b: isl.BasicSet) -> isl.BasicSet:
+    """The constraints of `b` that involve no existential (floor) variable."""
+    n = b.dim(isl.dim_type.div)
+    if not n:
+        return b
+    return b.drop_constraints_involving_dims(isl.dim_type.div, 0, n).remove_divs()
+
+
 def when_text(domain: isl.Set, context: isl.Set | None, params: tuple[str, ...]) -> str:
     """C condition for a parameter domain, simplified under the context."""
     d = domain
@@ -567,7 +575,13 @@ def when_text(domain: isl.Set, context: isl.Set | None, params: tuple[str, ...])
     bsets = d.get_basic_sets()
     dnf = [bset_constraints(b) for b in bsets]
     ctx_set = context if context is not None else isl.Set.universe(domain.get_space())
-    conj_sets = [isl.Set.from_basic_set(b).intersect(ctx_set) for b in bsets]
+    # A % is printed only where its operand is >= 0 on the conjunction's
+    # constraints without floors (and the context): testing it on the whole
+    # conjunction would be circular, since a C reader evaluates the printed
+    # % constraint itself at points outside the conjunction.
+    conj_sets = [
+        isl.Set.from_basic_set(_floor_free(b)).intersect(ctx_set) for b in bsets
+    ]
     return format_conditions(dnf, _nonneg_checker(ctx_set, conj_sets, params))
 
 
