@@ -42,7 +42,7 @@ from typing import Any, TextIO
 from tripcount import __version__
 from tripcount.options import Options
 from tripcount.paths import cache_dir
-from tripcount.sources import decode_source
+from tripcount.sources import decode_source, read_bytes
 
 LAYOUT = "v1"
 KINDS = ("file", "nest", "fn", "out")
@@ -898,7 +898,6 @@ def read_source(path: str) -> tuple[str, dict[str, Any] | None]:
 
     Raises OSError when the file cannot be read.
     """
-    with open(path, "rb") as f:
-        data = f.read()
+    data = read_bytes(path)
     text, diag = decode_source(data)
     return text, None if diag is None else diag.to_dict()

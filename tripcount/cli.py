@@ -18,6 +18,7 @@ from tripcount.config import Config, ConfigError, load_config, parse_bytes, pars
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
 from tripcount.options import Options
+from tripcount.sources import output_clash
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 
@@ -148,6 +149,10 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     missing = [p for p in files if not os.path.exists(p)]
     if missing:
         stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
+        return EXIT_USAGE
+    clash = output_clash(args.output, files) if args.output else None
+    if clash is not None:
+        stderr.write(f"tripcount: error: -o {args.output} is the input {clash}; the report would replace it\n")
         return EXIT_USAGE
     config = load_config(files[0] if files else os.getcwd())
     options = options_from(args, config)

@@ -29,7 +29,7 @@ from tripcount.frontend import parse_text
 from tripcount.ir import Span
 from tripcount.model import Nest, build_nests
 from tripcount.options import Options
-from tripcount.sources import collect_paths, decode_source  # noqa: F401 - re-exported: the CLI and tests read files through the pipeline
+from tripcount.sources import collect_paths, decode_source, read_bytes  # noqa: F401 - re-exported: the CLI and tests read files through the pipeline
 
 Analysis = Callable[[NestResult, Options], None]
 
@@ -249,8 +249,7 @@ def _finish(result: FileResult, path: str) -> FileResult:
 def analyze_file(path: str, options: Options) -> FileResult:
     """Analyze one file; an unreadable file gives a file-level diagnostic."""
     try:
-        with open(path, "rb") as f:
-            data = f.read()
+        data = read_bytes(path)
     except (OSError, ValueError) as exc:
         r = FileResult(path=path)
         reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)

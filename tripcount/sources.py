@@ -5,12 +5,50 @@
 from __future__ import annotations
 
 import os
+import stat
 from collections.abc import Iterable
 
 from tripcount.diagnostics import InvalidEncoding
 from tripcount.ir import Span
 
 SOURCE_SUFFIXES = (".c", ".h")
+
+# Sources larger than this are not read: a generated or hostile file of tens of
+# megabytes would cost gigabytes of parse tree (the largest corpus file is 4 KB;
+# a large hand-written kernel file is well under 1 MiB).
+MAX_SOURCE_BYTES = 4 << 20
+
+
+def read_bytes(path: str, limit: int = MAX_SOURCE_BYTES) -> bytes:
+    """The bytes of a regular file of at most `limit` bytes.
+
+    Raises OSError (with a reason in `strerror`) for anything else: a FIFO,
+    a device such as /dev/zero behind a symlink, a directory, a file too large.
+    The file is opened without blocking and checked on the open descriptor, so
+    a FIFO never hangs the reader and a file swapped after the check is not read.
+    """
+    flags = os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0)
+    fd = os.open(path, flags)
+    try:
+        st = os.fstat(fd)
+        if not stat.S_ISREG(st.st_mode):
+            kind = "a directory" if stat.S_ISDIR(st.st_mode) else "not a regular file"
+            raise OSError(0, f"{kind} (only regular files are read)", path)
+        if st.st_size > limit:
+            raise OSError(0, f"larger than {limit >> 20} MiB ({st.st_size} bytes); not read", path)
+        chunks = []
+        total = 0
+        while True:
+            chunk = os.read(fd, 1 << 20)
+            if not chunk:
+                break
+            total += len(chunk)
+            if total > limit:  # grew while being read
+                raise OSError(0, f"larger than {limit >> 20} MiB; not read", path)
+            chunks.append(chunk)
+        return b"".join(chunks)
+    finally:
+        os.close(fd)
 
 
 def collect_paths(paths: Iterable[str]) -> list[str]:
@@ -26,6 +64,23 @@ def collect_paths(paths: Iterable[str]) -> list[str]:
         else:
             out.append(p)
     return out
+
+
+def output_clash(output: str, inputs: Iterable[str]) -> str | None:
+    """The input that `output` would overwrite (the same file, symlinks and
+    hard links included), or None. Directories count by the files under them."""
+    try:
+        out = os.stat(output)
+    except OSError:
+        return None  # a new file overwrites nothing
+    for p in collect_paths(inputs):
+        try:
+            st = os.stat(p)
+        except OSError:
+            continue
+        if (st.st_dev, st.st_ino) == (out.st_dev, out.st_ino):
+            return p
+    return None
 
 
 def decode_source(data: bytes) -> tuple[str, InvalidEncoding | None]:

@@ -1,0 +1,61 @@
+# Files that are not C sources to read: FIFOs, devices behind symlinks, huge
+# files, and an output path that is one of the inputs. Each must end quickly
+# with a diagnostic naming the file and the reason, never hang, never exhaust
+# memory, never overwrite the user's file.
+
+from __future__ import annotations
+
+import os
+
+import pytest
+from conftest import INPUTS
+
+from tripcount.sources import MAX_SOURCE_BYTES, output_clash, read_bytes
+
+FLUSH = os.path.join(INPUTS, "cli", "harbour_flush.c")
+
+
+def test_fifo_is_refused_without_blocking(tmp_path, run_cli):
+    fifo = tmp_path / "gauge.c"
+    os.mkfifo(fifo)
+    with pytest.raises(OSError, match="not a regular file"):
+        read_bytes(str(fifo))
+    status, out, _ = run_cli("analyze", "--no-cache", str(fifo))
+    assert status == 2
+    assert f"{fifo}:1:1: error: cannot read file: not a regular file" in out
+    assert "TC9" in out and "TC900" not in out  # an unreadable file, not an internal error
+
+
+def test_symlink_to_a_device_is_refused(tmp_path, run_cli):
+    link = tmp_path / "endless.c"
+    os.symlink("/dev/zero", link)
+    status, out, _ = run_cli("analyze", "--no-cache", str(link))
+    assert status == 2
+    assert "not a regular file" in out
+
+
+def test_file_over_the_cap_is_refused(tmp_path):
+    big = tmp_path / "big.c"
+    big.write_bytes(b" " * (MAX_SOURCE_BYTES + 1))
+    with pytest.raises(OSError, match="larger than"):
+        read_bytes(str(big))
+    assert read_bytes(FLUSH).startswith(b"/*")
+
+
+def test_output_that_is_an_input_is_refused(tmp_path, run_cli):
+    src = tmp_path / "k.c"
+    src.write_bytes(open(FLUSH, "rb").read())
+    before = src.read_bytes()
+    link = tmp_path / "link.c"
+    os.symlink(src, link)
+    hard = tmp_path / "hard.c"
+    os.link(src, hard)
+    for target in (src, link, hard):
+        status, _, err = run_cli("analyze", str(src), "-o", str(target))
+        assert status == 2 and "would replace it" in err
+        assert src.read_bytes() == before
+    # a directory input covers the files under it
+    assert output_clash(str(hard), [str(tmp_path)]) is not None
+    # a new file is fine
+    status, _, _ = run_cli("analyze", str(src), "-o", str(tmp_path / "report.txt"))
+    assert status == 0 and src.read_bytes() == before
