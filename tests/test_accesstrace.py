@@ -9,9 +9,9 @@ from __future__ import annotations
 import os
 
 import pytest
+from accesstrace import access_trace, lru_misses, working_sets
 from conftest import INPUTS
 from oracle import gcc_available
-from accesstrace import access_trace, lru_misses, working_sets
 
 pytestmark = [pytest.mark.gcc, pytest.mark.skipif(not gcc_available(), reason="gcc not available")]
 
