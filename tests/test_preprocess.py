@@ -9,7 +9,14 @@ from __future__ import annotations
 import os
 
 from tripcount.frontend import preprocess as pp
-from tripcount.frontend.preprocess import SourceMap, char_value, int_value, preprocess, tokenize
+from tripcount.frontend.preprocess import (
+    Includes,
+    SourceMap,
+    char_value,
+    int_value,
+    preprocess,
+    tokenize,
+)
 
 INPUTS = os.path.join(os.path.dirname(os.path.abspath(__file__)), "inputs", "frontend")
 
@@ -233,11 +240,12 @@ def test_conditional_problems():
     assert [t.value for t in pre.tokens] == ["a", ";"]
 
 
-def test_include_ignored_error_reported():
+def test_missing_include_noted_error_reported(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)  # a text without a path looks for quoted headers here
     pre = preprocess('#include <stdio.h>\n#include "velin.h"\n#error tide table missing\nx;')
     assert [t.value for t in pre.tokens] == ["x", ";"]
-    assert [d.code for d in pre.diagnostics] == ["TC114"]
-    assert "tide table missing" in pre.diagnostics[0].message
+    assert [d.code for d in pre.diagnostics] == ["TC119", "TC114"]
+    assert "tide table missing" in pre.diagnostics[1].message
 
 
 # ------------------------------------------------------------------ pragmas
@@ -329,3 +337,75 @@ def test_capped_macro_in_an_if_condition_is_not_evaluated():
     pre = preprocess(_doubling(40, "#if A40\nyes;\n#else\nno;\n#endif\n"))
     assert [d.code for d in pre.diagnostics] == ["TC118", "TC113"]  # not read as 0: the first branch is taken
     assert [t.value for t in pre.tokens] == ["yes", ";"]
+
+
+# -- #include, -I, -D, -U ------------------------------------------------------
+
+INCLUDES = os.path.join(INPUTS, "includes")
+SMOOTH = os.path.join(INCLUDES, "harbour_smooth.c")
+
+
+def _smooth(**kw):
+    text = open(SMOOTH, encoding="utf-8").read()
+    inc = Includes(dirs=(os.path.join(INCLUDES, "include"),), **kw)
+    return text, preprocess(text, SMOOTH, inc)
+
+
+def test_quoted_header_from_an_include_directory_gives_macros():
+    text, pre = _smooth(defines=(("HALO", "2"),))
+    assert {"GRID_X", "GRID_Y", "SQRT_FUN", "HALO"} <= set(pre.defined)
+    spelled = " ".join(t.value for t in pre.tokens)
+    # the loop bounds read the header's sizes and the -D value
+    assert "i < 1024 - 1" in spelled and "j < ( 1024 / 2 ) + 2" in spelled
+    assert "sqrt (" in spelled
+    # header tokens carry the position of the #include directive in this file
+    typedef = next(t for t in pre.tokens if t.value == "typedef")
+    assert pre.source.position(typedef.start) == (3, 1)
+    # the helper's body defined in the header is dropped (a prototype remains)
+    assert "row [ i ] = 0" not in spelled and "clear_row" in spelled
+
+
+def test_pragma_once_and_guards_read_a_header_once():
+    _, pre = _smooth()
+    assert sum(1 for t in pre.tokens if t.value == "typedef") == 1
+
+
+def test_missing_quoted_header_is_a_note_system_header_is_silent():
+    _, pre = _smooth()
+    codes = [(g.code, g.span.line) for g in pre.diagnostics]
+    assert ("TC119", 6) in codes  # "velin_tides.h" is nowhere
+    assert all(line != 5 for _, line in codes)  # <math.h> is not looked for
+
+
+def test_problems_inside_a_header_are_one_warning_at_the_directive():
+    _, pre = _smooth(defines=(("TIDE_DEBUG", "1"),))
+    (w,) = [g for g in pre.diagnostics if g.code == "TC120"]
+    assert w.span.line == 3  # the #include of velin_grid.h (velin_math.h is nested in it)
+    assert "velin_math.h:5:1" in w.message
+
+
+def test_command_line_define_undefine_and_function_like():
+    text = "int a = W; int b = SQ(3); int c = _OPENMP;\n#ifdef GONE\nint d;\n#endif\n"
+    pre = preprocess(text, None, Includes(defines=(("W", "1"), ("SQ(x)", "((x)*(x))"), ("GONE", "1")),
+                                          undefines=("GONE", "_OPENMP")))
+    spelled = " ".join(t.value for t in pre.tokens)
+    assert "a = 1" in spelled and "( ( 3 ) * ( 3 ) )" in spelled
+    assert "int d" not in spelled and "c = _OPENMP" in spelled
+    assert [m.name for m in pre.macros] == []  # command-line macros are not the file's
+
+
+def test_include_cycle_and_depth_are_bounded(tmp_path):
+    (tmp_path / "a.h").write_text('#include "b.h"\nint from_a;\n')
+    (tmp_path / "b.h").write_text('#include "a.h"\nint from_b;\n')
+    main = tmp_path / "m.c"
+    main.write_text('#include "a.h"\n')
+    pre = preprocess(main.read_text(), str(main))
+    assert any(g.code == "TC120" and "TC121" in g.message for g in pre.diagnostics)
+
+
+def test_include_of_a_fifo_does_not_block(tmp_path):
+    os.mkfifo(tmp_path / "pipe.h")
+    main = tmp_path / "m.c"
+    main.write_text('#include "pipe.h"\nint x;\n')
+    pre = preprocess(main.read_text(), str(main))
+    assert any(g.code == "TC121" and "regular file" in g.message for g in pre.diagnostics)

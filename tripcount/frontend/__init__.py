@@ -34,7 +34,7 @@ from tripcount.frontend.diagnostics import (
     UnterminatedConditional,
 )
 from tripcount.frontend.parser import UnitParser, engine
-from tripcount.frontend.preprocess import SourceMap
+from tripcount.frontend.preprocess import Includes, SourceMap
 from tripcount.frontend.preprocess import preprocess as _preprocess
 
 __all__ = [
@@ -42,17 +42,19 @@ __all__ = [
     "ExpansionLimit", "FileTooLarge", "FrontEndError", "FunctionSkipped", "MacroRecursion", "NestingTooDeep",
     "OmpClauseProblem", "StrayDirective", "StrayPragma", "SyntaxProblem",
     "UnbalancedBraces", "UnterminatedComment", "UnterminatedConditional",
-    "decode", "parse_file", "parse_text",
+    "Includes", "decode", "parse_file", "parse_text",
 ]
 
 
-def parse_text(text: str, path: str = "<input>",
-               snippet: bool = False) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
+def parse_text(text: str, path: str = "<input>", snippet: bool = False,
+               includes: Includes | None = None) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
     """Read C source text into IR.
 
     With `snippet=True` the text may also be a function body or bare
     statements; those become the body of a function named "<snippet>".
-    Diagnostics carry `path` and positions in `text`.
+    `includes` gives -I directories and -D/-U macros (quoted headers are
+    also looked for beside `path`). Diagnostics carry `path` and positions
+    in `text`.
     """
     if text.startswith("\ufeff"):
         text = text[1:]  # a byte-order mark is not a column anyone sees
@@ -65,7 +67,7 @@ def parse_text(text: str, path: str = "<input>",
     macros: tuple[ir.Macro, ...] = ()
     whole: ir.Span | None = None
     try:
-        pre = _preprocess(text)
+        pre = _preprocess(text, path, includes)
         macros = tuple(pre.macros)
         whole = pre.source.end_span()
         diags: list[Diagnostic] = list(pre.diagnostics)

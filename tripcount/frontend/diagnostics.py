@@ -164,6 +164,35 @@ class MacroUseTooLarge(Diagnostic):
                 "it is read as written, unexpanded")
 
 
+class HeaderNotFound(Diagnostic):
+    """A quoted #include that is in none of the searched directories."""
+
+    code = "TC119"
+    severity = "note"
+    title = "header-not-found"
+    template = ("header {header} at {where} is not in {searched}; its macros and types are "
+                "unknown here (give its directory with -I)")
+
+
+class HeaderProblems(Diagnostic):
+    """A header read through #include had problems of its own."""
+
+    code = "TC120"
+    severity = "warning"
+    title = "header-problems"
+    template = ("header {header} included at {where}: {count} problem(s) while reading it, the first "
+                "at {first}; analyze the header itself to see them all")
+
+
+class IncludeLimit(Diagnostic):
+    """An #include past the nesting depth or the number of headers read per file."""
+
+    code = "TC121"
+    severity = "warning"
+    title = "include-limit"
+    template = "header {header} at {where} is not read: {reason}"
+
+
 class FrontEndError(Diagnostic):
     """An unexpected failure of the front end on one file; the other files are unaffected."""
 

@@ -2,21 +2,32 @@
 #
 # Turns source text into a list of tokens with positions in the user's
 # original file: line continuations are spliced, comments dropped, directives
-# obeyed (#define/#undef, #if-family, #include ignored), macros expanded, and
+# obeyed (#define/#undef, #if-family, #include), macros expanded, and
 # `#pragma omp ...` lines kept as single pragma tokens for the parser. Tokens
 # produced by a macro expansion carry the offsets of the macro invocation, so
 # every later stage points at what the user wrote. Nothing here raises on bad
 # input; problems become diagnostics and the text is read on.
+#
+# Headers: `#include "x.h"` is read from the including file's directory or an
+# -I directory, `#include <x.h>` only from an -I directory (system headers are
+# never read: the standard types and math functions are known from a table).
+# A header contributes its macros, types and declarations; its tokens carry
+# the offsets of the #include directive, and the bodies of functions it
+# defines are dropped (their loop nests are reported when the header itself
+# is analyzed, once, in its own coordinates). Problems inside a header become
+# one TC120 warning at the directive naming the header's own line:column.
 
 from __future__ import annotations
 
 import bisect
+import os
 import re
 from dataclasses import dataclass, field
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
+from tripcount.sources import read_bytes
 
 # Macros every C compiler predefines that change which branch of common
 # #if tests is taken. _OPENMP is defined because tripcount reads OpenMP
@@ -37,6 +48,33 @@ MAX_USE_TOKENS = 20_000
 EXPANSION_FACTOR = 20
 EXPANSION_FLOOR = 100_000
 MAX_ARG_DEPTH = 64
+
+# Headers: how deep #include may nest, and how many headers one file may read.
+MAX_INCLUDE_DEPTH = 16
+MAX_HEADERS = 256
+
+
+@dataclass
+class Includes:
+    """How #include and the command-line macros are handled for one file.
+
+    `dirs`: the -I directories, in order. `defines`: -D NAME[=VALUE] as
+    (NAME, VALUE) pairs in command-line order, NAME possibly with a
+    parameter list (`F(x)`); `undefines`: -U NAME, applied after them.
+    """
+
+    dirs: tuple[str, ...] = ()
+    defines: tuple[tuple[str, str], ...] = ()
+    undefines: tuple[str, ...] = ()
+
+
+@dataclass
+class _Shared:
+    """State shared by a file and the headers it reads."""
+
+    includes: Includes
+    headers: int = 0
+    once: set[str] = field(default_factory=set)  # headers with #pragma once already read
 
 
 class _Overrun(Exception):
@@ -286,8 +324,12 @@ class _CondEvalError(Exception):
 class Preprocessor:
     """Runs directives and macro expansion over one file's tokens."""
 
-    def __init__(self, text: str) -> None:
+    def __init__(self, text: str, path: str | None = None, includes: Includes | None = None,
+                 _shared: _Shared | None = None, _depth: int = 0) -> None:
         self.smap = SourceMap(text)
+        self.path = path
+        self.shared = _shared or _Shared(includes or Includes())
+        self.depth = _depth
         self.diags: list[Diagnostic] = []
         self.macros: dict[str, MacroDef] = {}
         self.recorded: list[ir.Macro] = []
@@ -295,8 +337,25 @@ class Preprocessor:
         self.exhausted = False
         self.use_left: int | None = None  # tokens the current macro use may still produce
         self.recursion_noted: set[str] = set()
+        if _shared is not None:
+            return  # a header: the including file's macro table is installed by _include
         for name, value in PREDEFINED.items():
             self.macros[name] = MacroDef(name, None, tokenize(value))
+        inc = self.shared.includes
+        for name, value in inc.defines:
+            self._command_line_define(name, value)
+        for name in inc.undefines:
+            self.macros.pop(name, None)
+
+    def _command_line_define(self, name: str, value: str) -> None:
+        """-D NAME=VALUE, like `#define NAME VALUE` at the top of the file."""
+        toks = tokenize(f"{name} {value}")
+        if toks and toks[0].kind == "id" and len(toks) > 1 and toks[1].value == "(" \
+                and toks[1].start == toks[0].end:
+            toks[1].space = False
+        before = len(self.recorded)
+        self._define(Tok("punct", "#", 0, 0, True), toks)
+        del self.recorded[before:]  # not a macro of the file
 
     # ------------------------------------------------------------------ helpers
     def _span(self, t: Tok) -> ir.Span:
@@ -368,22 +427,111 @@ class Preprocessor:
                 else:
                     self._undef(t, line[1:])
             elif name == "pragma":
+                if len(line) > 1 and line[1].value == "once" and self.path is not None:
+                    self.shared.once.add(os.path.realpath(self.path))
                 if len(line) > 1 and line[1].value == "omp":
                     self._flush(pending, out)
                     p = Tok("pragma", _spelling(line[2:]), t.start, line[-1].end, True)
                     p.extra = self._expand(line[2:])
                     out.append(p)
+            elif name == "include":
+                self._flush(pending, out)
+                self._include(t, line[1:], out)
             elif name in ("error", "warning"):
                 self.diags.append(d.ErrorDirective(self._span(t), directive=name,
                                                    where=self._where(t),
                                                    text=_spelling(line[1:])))
-            # include, line, ident and unknown directives are ignored on purpose
+            # line, ident and unknown directives are ignored on purpose
         self._flush(pending, out)
         for top in conds:
             tok = top[3]
             self.diags.append(d.UnterminatedConditional(self._span(tok), directive=top[4],
                                                         where=self._where(tok)))
         return Preprocessed(out, self.recorded, self.diags, self.smap, self.macros)
+
+    # ------------------------------------------------------------------ #include
+    def _header_name(self, toks: list[Tok]) -> tuple[str, bool] | None:
+        """(name, quoted) of an #include operand, expanding macros once if needed."""
+        for attempt in (toks, None):
+            if attempt is None:
+                attempt = self._expand(list(toks))
+            if attempt and attempt[0].kind == "str" and attempt[0].value.startswith('"'):
+                return attempt[0].value[1:-1], True
+            if attempt and attempt[0].value == "<":
+                parts = []
+                for t in attempt[1:]:
+                    if t.value == ">":
+                        return "".join(parts), False
+                    parts.append((" " if t.space and parts else "") + t.value)
+        return None
+
+    def _find_header(self, name: str, quoted: bool) -> tuple[str | None, list[str]]:
+        """The header's path (None when not found) and the directories searched."""
+        dirs: list[str] = []
+        if quoted:
+            here = self.path if self.path and not self.path.startswith("<") else None
+            dirs.append(os.path.dirname(os.path.abspath(here)) if here else os.getcwd())
+        dirs.extend(self.shared.includes.dirs)
+        # anything that exists and is not a directory is "found": reading it
+        # then refuses what is not a regular file (a FIFO, a device) with a reason
+        if os.path.isabs(name):
+            return (name if os.path.exists(name) and not os.path.isdir(name) else None), dirs
+        for base in dirs:
+            cand = os.path.join(base, name)
+            if os.path.exists(cand) and not os.path.isdir(cand):
+                return cand, dirs
+        return None, dirs
+
+    def _include(self, hash_tok: Tok, toks: list[Tok], out: list[Tok]) -> None:
+        found = self._header_name(toks)
+        if found is None:
+            return  # `#include` with an operand we cannot name: ignored, as before
+        name, quoted = found
+        shown = f'"{name}"' if quoted else f"<{name}>"
+        end = toks[-1].end if toks else hash_tok.end
+        span = self.smap.span(hash_tok.start, end)
+        path, dirs = self._find_header(name, quoted)
+        if path is None:
+            if quoted:
+                searched = ", ".join(dirs) if dirs else "no directory"
+                self.diags.append(d.HeaderNotFound(span, header=shown, where=self._where(hash_tok),
+                                                   searched=searched))
+            return
+        real = os.path.realpath(path)
+        if real in self.shared.once:
+            return
+        if self.depth + 1 > MAX_INCLUDE_DEPTH or self.shared.headers >= MAX_HEADERS:
+            reason = (f"#include nests deeper than {MAX_INCLUDE_DEPTH}" if self.depth + 1 > MAX_INCLUDE_DEPTH
+                      else f"more than {MAX_HEADERS} headers read for one file")
+            self.diags.append(d.IncludeLimit(span, header=shown, where=self._where(hash_tok), reason=reason))
+            return
+        try:
+            data = read_bytes(path)
+        except OSError as exc:
+            self.diags.append(d.IncludeLimit(span, header=shown, where=self._where(hash_tok),
+                                             reason=exc.strerror or str(exc)))
+            return
+        self.shared.headers += 1
+        sub = Preprocessor(data.decode("utf-8", errors="replace"), path, _shared=self.shared,
+                           _depth=self.depth + 1)
+        sub.macros = self.macros  # definitions flow both ways, as in one translation unit
+        res = sub.run()
+        for t in _declarations_only(res.tokens):
+            c = t.copy_at(hash_tok.start, end, t.hide)
+            c.bol, c.extra = t.bol, t.extra
+            if c.extra is not None:
+                c.extra = [x.copy_at(hash_tok.start, end, x.hide) for x in c.extra]
+            out.append(c)
+        self.recorded.extend(ir.Macro(span, m.name, m.params, m.body) for m in res.macros)
+        problems = [g for g in res.diagnostics if g.severity in ("error", "warning")]
+        if problems:
+            first = problems[0]
+            if isinstance(first, d.HeaderProblems):  # nested: name the innermost place
+                where_first = first.args["first"]
+            else:
+                where_first = f"{name}:{first.span.line}:{first.span.column}: {first.message} [{first.code}]"
+            self.diags.append(d.HeaderProblems(span, header=shown, where=self._where(hash_tok),
+                                               count=len(problems), first=where_first))
 
     def _flush(self, pending: list[Tok], out: list[Tok]) -> None:
         if pending:
@@ -843,6 +991,41 @@ def _apply(op: str, a: int, b: int) -> int:
     return r
 
 
-def preprocess(text: str) -> Preprocessed:
-    """Preprocess C source text: tokens in original-file coordinates, macros, diagnostics."""
-    return Preprocessor(text).run()
+def _declarations_only(toks: list[Tok]) -> list[Tok]:
+    """A header's tokens with each function body `) { ... }` at file level made `);`."""
+    out: list[Tok] = []
+    depth = 0
+    i, n = 0, len(toks)
+    while i < n:
+        t = toks[i]
+        if t.value == "{" and t.kind == "punct":
+            if depth == 0 and out and out[-1].value == ")":
+                k, level = i, 0
+                while k < n:
+                    if toks[k].value == "{":
+                        level += 1
+                    elif toks[k].value == "}":
+                        level -= 1
+                        if level == 0:
+                            break
+                    k += 1
+                semi = t.copy_at(t.start, t.end, None)
+                semi.value = ";"
+                out.append(semi)
+                i = k + 1
+                continue
+            depth += 1
+        elif t.value == "}" and t.kind == "punct":
+            depth = max(0, depth - 1)
+        out.append(t)
+        i += 1
+    return out
+
+
+def preprocess(text: str, path: str | None = None, includes: Includes | None = None) -> Preprocessed:
+    """Preprocess C source text: tokens in original-file coordinates, macros, diagnostics.
+
+    `path` locates quoted #include files (None: the working directory);
+    `includes` gives -I, -D and -U.
+    """
+    return Preprocessor(text, path, includes).run()
