@@ -1,0 +1,104 @@
+# Footprint: the analysis of one nest -- every loop level's working set and
+# per-iteration footprint, the nest's compulsory footprint, cache fit, flops
+# and arithmetic intensity, attached to the nest result as extras.
+
+from __future__ import annotations
+
+import islpy as isl
+
+from tripcount.analysis import flops as flops_mod
+from tripcount.analysis.footprint.fit import cache_fit, flag
+from tripcount.analysis.footprint.intensity import intensity
+from tripcount.analysis.footprint.results import (
+    CACHE_ASSUMPTIONS,
+    LAYOUT_NOTE,
+    ElementSizeUnknown,
+    FootprintLimit,
+    FootprintRefused,
+    NestFootprint,
+    WorkingSet,
+)
+from tripcount.analysis.footprint.scopes import Analyzer
+from tripcount.analysis.results import LoopResult, NestResult
+from tripcount.model import Loop
+from tripcount.options import Options
+
+
+def analyze(result: NestResult, options: Options) -> None:
+    """Footprints of every loop level and of the nest, cache fit, flops and intensity of one nest."""
+    nest = result.nest
+    scalar_types = getattr(nest, "scalar_types", None)
+    total_flops = flops_mod.analyze(result, options, scalar_types=scalar_types)
+    an = Analyzer(result, options)
+    diags = result.diagnostics
+    unknown = sorted(a.name for a in an.arrays.values() if not a.elem)
+    if unknown:
+        diags.append(ElementSizeUnknown(nest.span, arrays=", ".join(f"'{a}'" for a in unknown)))
+    for name, (first, other) in sorted(an.mixed.items()):
+        k, m = first.map.dim(isl.dim_type.out), other.map.dim(isl.dim_type.out)
+        diags.append(FootprintRefused(
+            other.span, what=f"array '{name}'",
+            reason=(f"it is used with {m} subscript{'s' if m != 1 else ''} here and with {k} "
+                    f"subscript{'s' if k != 1 else ''} at {first.span.line}:{first.span.column}, so its elements "
+                    "have no single index space; its references are left out and the working sets that contain "
+                    "them are lower bounds")))
+    assumptions = LAYOUT_NOTE + "; cache fit: " + CACHE_ASSUMPTIONS
+    levels: list[WorkingSet] = []
+    by_index: dict[int, LoopResult] = {lr.loop.index: lr for lr in result.loops}
+    refused_stmts = [s for s in nest.statements if s.domain is None]
+    refused_loops: list[Loop] = []
+    # the gate (options.detail == "gate") holds only innermost working sets against budgets
+    has_inner = {lp.parent for lp in nest.loops if lp.parent is not None} if options.gate else set()
+    for loop in nest.loops:
+        if loop.index in has_inner:
+            continue
+        stmts = an.statements_in(loop)
+        if loop.domain is None or any(s.domain is None for s in stmts):
+            refused_loops.append(loop)
+            continue
+        chain = an.chain(loop)
+        fixed = tuple(lp.var for lp in chain[:-1])
+        parent = nest.loops[loop.parent] if loop.parent is not None else None
+        whole_label = (f"all iterations of loop '{loop.var}', with {', '.join(fixed)} fixed" if fixed
+                       else f"all iterations of loop '{loop.var}' (the whole nest)")
+        whole = an.scope(stmts, fixed, parent.domain if parent else None, whole_label)
+        it_label = (f"one iteration of loop '{loop.var}' (its body for one value of {loop.var}"
+                    + (f", with {', '.join(fixed)} fixed)" if fixed else ")"))
+        per_it = None if options.gate else an.scope(stmts, fixed + (loop.var,), loop.domain, it_label,
+                                                    line_formulas=False)
+        reuse = an.reuse(stmts, an.statements_in(parent), parent.depth) if parent is not None else None
+        ws = WorkingSet(loop, whole, per_it, reuse, assumptions=assumptions,
+                        outer_var=parent.var if parent is not None else None)
+        cache_fit(an, ws)
+        if loop.index in by_index:
+            by_index[loop.index].extras["working_set"] = ws
+        levels.append(ws)
+        flag(ws, an, diags)
+    if refused_loops:
+        first = refused_loops[0]
+        names = ", ".join("'for (;;)'" if lp.display == "?" else f"'{lp.var}'" for lp in refused_loops)
+        diags.append(FootprintRefused(first.header, what=f"loop{'s' if len(refused_loops) > 1 else ''} {names}",
+                                      reason="statements inside could not be modelled"))
+    # whole nest: every statement, nothing fixed
+    good = [s for s in nest.statements if s.domain is not None]
+    nest_fp = an.scope(good, (), None, "the whole nest (compulsory footprint)")
+    if refused_stmts:
+        an._mark_lower_bound(nest_fp, "statements that could not be modelled are left out ("
+                             + ", ".join(s.id for s in refused_stmts) + ")")
+    limit_notes: list[str] = []
+    for fp in [nest_fp] + [w.whole for w in levels] + [w.per_iteration for w in levels if w.per_iteration]:
+        for note in fp.notes:
+            if note.startswith("formula not available") and note not in limit_notes:
+                limit_notes.append(note)
+    if limit_notes:
+        missing = [p for p in nest.params if p not in an.at]
+        fallback = ("the values at the --at sizes are exact enumerations" if an.has_at and nest.params
+                    else f"give --at sizes (for {', '.join(missing)}) for exact values")
+        reason = limit_notes[0][len("formula not available ("):].rsplit("):", 1)[0]
+        diags.append(FootprintLimit(nest.span, what="some working sets of this nest", reason=reason,
+                                    fallback=fallback))
+    nf = NestFootprint(nest_fp, levels, an.caches, dict(an.at) if an.has_at else {}, total_flops)
+    nf.intensity = intensity(total_flops, nest_fp, nest, options)
+    result.extras["footprint"] = nf
+    result.extras["intensity"] = nf.intensity
+
