@@ -218,7 +218,7 @@ def test_c_text_round_trip():
                  "A[i][j] += B[i][k] * C[k][j]", "!(i == j) && k || m"]:
         unit, _ = parse_text(f"{text};", snippet=True)
         e = unit.functions[0].body.body[0].expr
-        assert af.c_text(e) == text
+        assert ir.c_text(e) == text
 
 
 # --------------------------------------------------------------------------
