@@ -16,7 +16,7 @@
 # `len(s)`, a member `s->n`) become named size parameters with a note.
 #
 # Modules, in the order they build on each other: diagnostics (TC2xx), lin
-# (the affine language), ctext (C text and isl-safe names), types (C scalar types), nests (the
+# (the affine language), ctext (C text and isl-safe names), nests (the
 # output), convert (IR expressions -> affine), depth (cutting code nested too
 # deeply), writes (scans of the IR), decls (declarations in scope), walkctx
 # and loops (the walk's state, loop headers), build (one nest; the entry).
@@ -89,7 +89,12 @@ from tripcount.affine.lin import (
 )
 from tripcount.affine.loops import _parse_step
 from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
-from tripcount.affine.types import base_type, is_floating_type, is_integer_type, type_size
+from tripcount.ctable import (  # noqa: F401  (re-exported: the affine stage's view of C types)
+    base_type,
+    is_floating_type,
+    is_integer_type,
+    type_size,
+)
 
 __all__ = [
     "ArrayDependentBound",

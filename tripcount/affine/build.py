@@ -28,7 +28,6 @@ from tripcount.affine.diagnostics import (
 from tripcount.affine.lin import Cond, Lin, Var, cond_vars, conj, lin_vars, negate, var
 from tripcount.affine.loops import _detail, _loop_var_guess, loop_header
 from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
-from tripcount.affine.types import base_type, is_floating_type, type_size
 from tripcount.affine.walkctx import _Body, _Ctx, _Resolver
 from tripcount.affine.writes import (
     _find_jumps,
@@ -37,6 +36,7 @@ from tripcount.affine.writes import (
     collect_writes,
     walk_exprs,
 )
+from tripcount.ctable import base_type, is_floating_type, type_size
 from tripcount.diagnostics import Diagnostic, InternalError
 from tripcount.ir import Span, c_text
 

@@ -28,7 +28,7 @@ from tripcount.affine.lin import (
     select,
     sub,
 )
-from tripcount.affine.types import is_floating_type, is_integer_type, type_size
+from tripcount.ctable import ABS_CALLS, is_floating_type, is_integer_type, type_size
 from tripcount.ir import c_text
 
 # --------------------------------------------------------------------------
@@ -48,7 +48,7 @@ class NotAffine(Exception):
 
 MINMAX = {"min": "min", "max": "max", "MIN": "min", "MAX": "max", "Min": "min", "Max": "max",
           "imin": "min", "imax": "max"}  # fmt: skip
-ABS = {"abs", "labs", "llabs", "ABS"}
+ABS = ABS_CALLS | {"ABS"}  # the library functions and the common macro
 _SIZEOF = re.compile(r"sizeof\s*\(\s*([A-Za-z_][A-Za-z0-9_ ]*?)\s*\)\Z")
 _COMPARE = {"<", "<=", ">", ">=", "==", "!="}
 

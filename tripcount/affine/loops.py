@@ -43,9 +43,9 @@ from tripcount.affine.lin import (
     var,
 )
 from tripcount.affine.nests import ALoop
-from tripcount.affine.types import base_type, is_floating_type
 from tripcount.affine.walkctx import _Ctx, _Resolver
 from tripcount.affine.writes import _write_target
+from tripcount.ctable import base_type, is_floating_type
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import c_text
 

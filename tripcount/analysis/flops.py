@@ -33,44 +33,15 @@ from typing import Any
 
 from tripcount import ir
 from tripcount.analysis.results import Count, NestResult, StatementResult
+from tripcount.ctable import FUSED_CALLS, INT_CALLS, math_call, scalar_kind
 from tripcount.model import Statement
 
 KINDS = ("add", "mul", "div", "other")
 
-_FLOAT_WORDS = frozenset({"float", "double", "_Float16", "_Float32", "_Float64", "_Float128", "__fp16",
-                          "_Complex", "complex", "__float128", "float_t", "double_t"})
-_INT_WORDS = frozenset({"int", "long", "short", "char", "unsigned", "signed", "size_t", "ssize_t",
-                        "ptrdiff_t", "intptr_t", "uintptr_t", "_Bool", "bool", "int8_t", "int16_t",
-                        "int32_t", "int64_t", "uint8_t", "uint16_t", "uint32_t", "uint64_t"})
-
-# Math-library functions returning a floating value (C99 <math.h>); the f/l
-# suffixed variants are recognised too.
-MATH_CALLS = frozenset(
-    "sqrt cbrt exp exp2 expm1 log log2 log10 log1p pow sin cos tan asin acos atan atan2 sinh cosh "
-    "tanh asinh acosh atanh fabs fmin fmax fdim fmod remainder hypot floor ceil round trunc rint "
-    "nearbyint erf erfc tgamma lgamma copysign ldexp frexp modf".split())
-_INT_CALLS = frozenset({"abs", "labs", "llabs", "lround", "llround", "lrint", "llrint", "ilogb"})
-
 
 def type_class(type_name: str | None) -> str | None:
     """'float' or 'int' for a C type name, None when unknown (pointers count as their base type)."""
-    if not type_name:
-        return None
-    words = set(type_name.replace("*", " ").split())
-    if words & _FLOAT_WORDS:
-        return "float"
-    if words & _INT_WORDS or type_name.strip().endswith("_t") and "int" in type_name:
-        return "int"
-    return None
-
-
-def _math_name(func: str) -> str | None:
-    """The base name of a math-library call ('sqrtf' -> 'sqrt'), None if not one."""
-    if func in MATH_CALLS or func == "fma":
-        return func
-    if func[-1:] in ("f", "l") and (func[:-1] in MATH_CALLS or func[:-1] == "fma"):
-        return func[:-1]
-    return None
+    return scalar_kind(type_name)
 
 
 @dataclass
@@ -149,9 +120,9 @@ class _Counter:
         if isinstance(e, ir.Ternary):
             return _combine(self.tclass(e.then), self.tclass(e.other))
         if isinstance(e, ir.Call):
-            if e.func in _INT_CALLS:
+            if e.func in INT_CALLS:
                 return "int"
-            if _math_name(e.func):
+            if math_call(e.func):
                 return "float"
             return None
         if isinstance(e, ir.Assign):
@@ -207,13 +178,13 @@ class _Counter:
         elif isinstance(e, ir.Call):
             for a in e.args:
                 self.expr(a)
-            name = _math_name(e.func)
-            if name == "fma":
-                self._add("mul")
-                self._add("add")
+            name = math_call(e.func)
+            if name in FUSED_CALLS:
+                for kind in FUSED_CALLS[name]:
+                    self._add(kind)
             elif name is not None:
                 self.ops.calls[name] = self.ops.calls.get(name, 0) + 1
-            elif e.func not in _INT_CALLS:
+            elif e.func not in INT_CALLS:
                 note = f"call of {e.func}() not counted (not a math-library function)"
                 if note not in self.ops.notes:
                     self.ops.notes.append(note)

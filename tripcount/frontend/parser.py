@@ -28,6 +28,7 @@ from lark.exceptions import UnexpectedInput
 from lark.lexer import Lexer
 
 from tripcount import ir
+from tripcount.ctable import IDENTIFIER_TYPES
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.build import IRBuilder, PragmaToken, cover
@@ -55,17 +56,7 @@ KEYWORD_ALIASES = {
 SKIP_WITH_PARENS = {"__attribute__", "__attribute", "__declspec", "_Alignas", "alignas"}
 DROP_WORDS = {"__extension__", "__cdecl", "__stdcall"}
 # Type names from standard headers (never read: #include is ignored).
-KNOWN_TYPES = {
-    "size_t", "ssize_t", "ptrdiff_t", "intptr_t", "uintptr_t", "intmax_t", "uintmax_t",
-    "int8_t", "int16_t", "int32_t", "int64_t", "uint8_t", "uint16_t", "uint32_t", "uint64_t",
-    "int_least8_t", "int_least16_t", "int_least32_t", "int_least64_t",
-    "uint_least8_t", "uint_least16_t", "uint_least32_t", "uint_least64_t",
-    "int_fast8_t", "int_fast16_t", "int_fast32_t", "int_fast64_t",
-    "uint_fast8_t", "uint_fast16_t", "uint_fast32_t", "uint_fast64_t",
-    "bool", "FILE", "wchar_t", "off_t", "time_t", "clock_t", "float_t", "double_t",
-    "va_list", "omp_lock_t", "__m128", "__m128d", "__m256", "__m256d", "__m512", "__m512d",
-    "_Float16", "__fp16",
-}
+KNOWN_TYPES = set(IDENTIFIER_TYPES)
 # Specifier words that name a type (not qualifiers or storage classes).
 TYPE_WORDS = {"void", "char", "short", "int", "long", "float", "double", "signed", "unsigned",
               "_Bool", "_Complex", "__int128"}
