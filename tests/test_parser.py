@@ -14,8 +14,9 @@ from hypothesis import strategies as st
 from test_build import ctext, shape
 
 from tripcount import ir
-from tripcount.frontend import parse_file, parse_text
+from tripcount.frontend import lalr, parse_file, parse_text
 from tripcount.frontend import parser as fp
+from tripcount.frontend.build import IRBuilder
 
 INPUTS = os.path.join(os.path.dirname(os.path.abspath(__file__)), "inputs", "frontend")
 
@@ -418,7 +419,7 @@ def test_internal_errors_are_diagnostics(monkeypatch):
 
 
 def test_grammar_text_is_found():
-    text = fp._grammar_text()
+    text = lalr._grammar_text()
     assert "compound" in text and "%declare" in text
 
 
@@ -461,17 +462,17 @@ def test_compiled_grammar_is_kept_in_the_cache_directory(tmp_path, monkeypatch):
     # rewritten: a second compile is a hit); a corrupt file is only a miss, an
     # unwritable directory only no cache
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "c"))
-    first = fp._compile(fp.IRBuilder())
+    first = lalr._compile(IRBuilder())
     files = list((tmp_path / "c").glob("grammar-*.lark"))
     assert len(files) == 1
     written = files[0].stat().st_mtime_ns
     time.sleep(0.01)
-    again = fp._compile(fp.IRBuilder())
+    again = lalr._compile(IRBuilder())
     assert files[0].stat().st_mtime_ns == written
     assert again.terminals and len(again.terminals) == len(first.terminals)
     files[0].write_bytes(b"not a grammar")
-    assert fp._compile(fp.IRBuilder()).terminals
+    assert lalr._compile(IRBuilder()).terminals
     blocked = tmp_path / "file"
     blocked.write_text("x")
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(blocked / "sub"))
-    assert fp._compile(fp.IRBuilder()).terminals
+    assert lalr._compile(IRBuilder()).terminals

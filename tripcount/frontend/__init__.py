@@ -1,9 +1,10 @@
 # The front end: C source text -> ir.TranslationUnit.
 #
 # preprocess.py (comments, continuations, directives, macros; positions kept
-# in the original file) -> parser.py (scanner for function definitions, LALR
-# grammar from grammar/loops.lark, error recovery) -> build.py (callbacks that
-# build the IR). Nothing here raises on bad input: what cannot be read becomes
+# in the original file) -> parser.py (one file; with scanner.py for function
+# definitions, lalr.py for the LALR grammar from grammar/loops.lark,
+# recovery.py for unreadable statements, omp.py for OpenMP clauses, vocab.py
+# for the words) -> build.py (callbacks that build the IR). Nothing here raises on bad input: what cannot be read becomes
 # a diagnostic (codes TC100..TC189, see frontend/diagnostics.py) and the rest
 # of the file is read on.
 

@@ -1,0 +1,218 @@
+# Front end: the LALR parser of grammar/loops.lark (lark), fed with tokens made
+# beforehand, and the fast loop over its parse table.
+#
+# The loop (_Driver) reads lark's parse table and callbacks, which are not
+# lark's public API; it is kept because the public ways are slower: reading
+# the bundled corpus plus a 20,000-line generated file took 1.16 s with it,
+# 1.53 s with `Lark.parse` (+32%) and 2.40 s with lark's interactive parser
+# (measured on the 2-core development machine, best of three, warm grammar
+# cache). pyproject.toml pins the lark versions whose table layout was
+# checked (1.1.9, 1.2.2, 1.3.1); tests/test_lalr.py fails when the loop is not
+# in use and checks that it reads every test input as `Lark.parse` does. With
+# any other table layout the engine falls back to `Lark.parse`.
+
+from __future__ import annotations
+
+import hashlib
+import os
+import sys
+import threading
+from pathlib import Path
+
+from lark import Lark, Token
+from lark import __version__ as lark_version
+from lark.exceptions import UnexpectedInput
+from lark.lexer import Lexer
+
+from tripcount.frontend import diagnostics as d
+from tripcount.frontend.build import IRBuilder
+from tripcount.paths import cache_dir
+
+
+class ParseFailure(Exception):
+    """A token range the grammar could not read; `reason` says why."""
+
+    def __init__(self, reason: str, token: Token | None = None) -> None:
+        super().__init__(reason)
+        self.reason = reason
+        self.token = token
+
+
+class _ListLexer(Lexer):
+    """The parser's lexer: the tokens were made beforehand, so it hands them over."""
+
+    def __init__(self, lexer_conf: object) -> None:
+        pass
+
+    def lex(self, data: list[Token]):  # type: ignore[override]
+        return iter(data)
+
+
+def _grammar_text() -> str:
+    try:
+        from importlib import resources
+
+        return resources.files("tripcount.grammar").joinpath("loops.lark").read_text("utf-8")
+    except (ImportError, FileNotFoundError, OSError, TypeError):
+        # source checkout: the grammar lives in the repository's grammar/ directory
+        return (Path(__file__).resolve().parents[2] / "grammar" / "loops.lark").read_text("utf-8")
+
+
+class _Driver:
+    """The LALR loop over lark's parse table and callbacks, written out.
+
+    lark's own loop does the same work through a method call per token, and
+    its table is keyed by grammar objects whose comparisons run Python code.
+    A file is hundreds of thousands of tokens, so the table is copied once
+    into plain dictionaries (string keys; reductions carry their size, goto
+    symbol and callback) and the loop below runs over it. If lark's internals
+    ever differ, the engine falls back to `Lark.parse`.
+    """
+
+    def __init__(self, lark: Lark) -> None:
+        from lark.parse_tree_builder import ExpandSingleChild
+        from lark.parsers.lalr_analysis import Shift
+
+        inner = lark.parser.parser.parser  # ParsingFrontend -> LALR_Parser -> _Parser
+        table = inner.parse_table
+        callbacks = inner.callbacks
+        reduce_info: dict[int, tuple] = {}
+        self.states: dict = {}
+        for state, row in table.states.items():
+            new_row = {}
+            for sym, (action, arg) in row.items():
+                if action is Shift:
+                    new_row[str(sym)] = (True, arg)
+                    continue
+                info = reduce_info.get(id(arg))
+                if info is None:
+                    cb = callbacks[arg]
+                    size = len(arg.expansion)
+                    if type(cb) is ExpandSingleChild and size == 1:
+                        cb = None  # `?rule` with one child: the child itself
+                    info = (size, str(arg.origin.name), cb)
+                    reduce_info[id(arg)] = info
+                new_row[str(sym)] = (False, info)
+            self.states[state] = new_row
+        self.start_states = {str(k): v for k, v in table.start_states.items()}
+        self.end_states = {str(k): v for k, v in table.end_states.items()}
+
+    def parse(self, tokens: list[Token], start: str):
+        states = self.states
+        state_stack = [self.start_states[start]]
+        value_stack: list = []
+        push_state = state_stack.append
+        push_value = value_stack.append
+
+        def reduce(size: int, origin: str, cb) -> None:
+            if cb is None:
+                state_stack.pop()
+            else:
+                if size:
+                    children = value_stack[-size:]
+                    del state_stack[-size:]
+                    del value_stack[-size:]
+                else:
+                    children = []
+                push_value(cb(children))
+            push_state(states[state_stack[-1]][origin][1])
+
+        for tok in tokens:
+            ty = tok.type
+            while True:
+                try:
+                    is_shift, arg = states[state_stack[-1]][ty]
+                except KeyError:
+                    raise ParseFailure(_describe(tok), tok) from None
+                if is_shift:
+                    push_state(arg)
+                    push_value(tok)
+                    break
+                reduce(*arg)
+        end_state = self.end_states[start]
+        while True:
+            try:
+                is_shift, arg = states[state_stack[-1]]["$END"]
+            except KeyError:
+                raise ParseFailure(_describe(None)) from None
+            if is_shift:
+                raise ParseFailure(_describe(None))
+            reduce(*arg)
+            if state_stack[-1] == end_state:
+                return value_stack[-1]
+
+
+_LARK_OPTIONS = dict(parser="lalr", lexer=_ListLexer, keep_all_tokens=True, maybe_placeholders=True,
+                     start=["body_start", "item_start", "expr_start", "decl_start"])
+
+
+def _compile(builder: IRBuilder) -> Lark:
+    """The LALR parser of the grammar; its tables are kept in the cache directory
+    (about 0.2 s to compute, a few ms to load).
+
+    lark's own cache is used with the final file name: lark keys the file by its
+    options, the file name included, so a table written under a private name and
+    renamed would never be loaded. lark checks the key and the file when it
+    loads and recompiles (and rewrites) on any mismatch or damage, so a file
+    half written by a concurrent process is only a miss; an unwritable
+    directory means no grammar cache."""
+    text = _grammar_text()
+    key = hashlib.sha256(f"{text}\0{lark_version}\0{sys.version_info[:2]}".encode()).hexdigest()[:20]
+    final = os.path.join(cache_dir(), f"grammar-{key}.lark")
+    try:
+        os.makedirs(os.path.dirname(final), exist_ok=True)
+        return Lark(text, transformer=builder, cache=final, **_LARK_OPTIONS)
+    except Exception:  # noqa: BLE001 - no usable cache: compile without one
+        return Lark(text, transformer=builder, **_LARK_OPTIONS)
+
+
+class _Engine:
+    """The compiled grammar, its callbacks, and the terminal names of keywords/punctuators."""
+
+    def __init__(self) -> None:
+        self.builder = IRBuilder()
+        self.lark = _compile(self.builder)
+        self.terms: dict[str, str] = {}
+        for t in self.lark.terminals:
+            if t.pattern.type == "str":
+                self.terms[str(t.pattern.value)] = str(t.name)
+        self.lock = threading.RLock()
+        try:
+            self.driver: _Driver | None = _Driver(self.lark)
+        except (AttributeError, ImportError, KeyError, TypeError):
+            self.driver = None
+
+    def parse(self, tokens: list[Token], start: str):
+        """Parse parser tokens from the rule `start`; ParseFailure when they do not fit."""
+        if self.driver is not None:
+            return self.driver.parse(tokens, start)
+        try:
+            return self.lark.parse(tokens, start=start)
+        except UnexpectedInput as exc:
+            tok = getattr(exc, "token", None)
+            if tok is not None and tok.type == "$END":
+                tok = None
+            raise ParseFailure(_describe(tok), tok) from None
+
+
+_ENGINE: _Engine | None = None
+_ENGINE_LOCK = threading.Lock()
+
+
+def engine() -> _Engine:
+    """The shared parser, compiled on first use."""
+    global _ENGINE
+    if _ENGINE is None:
+        with _ENGINE_LOCK:
+            if _ENGINE is None:
+                _ENGINE = _Engine()
+    return _ENGINE
+
+
+def _describe(tok: Token | None) -> str:
+    if tok is None or tok.type == "$END":
+        return "it ends before the statement is complete"
+    where = d.where(tok.line, tok.column)
+    if tok.type == "BAD":
+        return f"unexpected character '{tok}' at {where}"
+    return f"unexpected '{tok}' at {where}"

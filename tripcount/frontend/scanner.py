@@ -1,0 +1,313 @@
+# Front end: the scanner. It walks the file's tokens at brace depth 0 and cuts
+# them into function definitions and top-level declarations, collects typedef
+# names, and provides the bracket and comma helpers the parser uses.
+
+from __future__ import annotations
+
+from lark import Token
+
+from tripcount.frontend import diagnostics as d
+from tripcount.frontend.preprocess import Tok
+from tripcount.frontend.vocab import DROP_WORDS, SKIP_WITH_PARENS, SPEC_WORDS
+
+
+# ==================================================================== helpers
+def _name_before_paren(toks: list[Tok]) -> str:
+    for k in range(1, len(toks)):
+        if toks[k].value == "(" and toks[k - 1].kind == "id":
+            return toks[k - 1].value
+    return "?"
+
+
+_str_new = str.__new__
+
+
+def _new_token(cls: type, ty: str, value: str, start: int, line: int, column: int,
+               end_line: int, end_column: int, end: int) -> Token:
+    """A lark Token, made without lark's argument-checking constructor (it is per token)."""
+    tok = _str_new(cls, value)
+    tok.type = ty
+    tok.value = value
+    tok.start_pos = start
+    tok.line = line
+    tok.column = column
+    tok.end_line = end_line
+    tok.end_column = end_column
+    tok.end_pos = end
+    return tok
+
+
+def _skip_parens(toks: list, k: int, limit: int | None = None) -> int:
+    """Index past the parenthesised group opening at `k` (or `k` if it is not '(').
+
+    The search stops at `limit` (default: the end), which it returns when the
+    group is not closed before it.
+    """
+    end = len(toks) if limit is None else min(limit, len(toks))
+    if k >= end or toks[k].value != "(":
+        return k
+    depth = 0
+    for j in range(k, end):
+        v = toks[j].value
+        if v == "(":
+            depth += 1
+        elif v == ")":
+            depth -= 1
+            if depth == 0:
+                return j + 1
+    return end
+
+
+def _close_paren(toks: list[Tok], k: int, limit: int) -> int | None:
+    """Index of the ')' closing the '(' at `k`, searching below `limit`; None if unclosed."""
+    depth = 0
+    for j in range(k, min(limit, len(toks))):
+        v = toks[j].value
+        if v == "(":
+            depth += 1
+        elif v == ")":
+            depth -= 1
+            if depth == 0:
+                return j
+    return None
+
+
+def _skip_brackets(toks: list[Tok], k: int) -> int:
+    depth = 0
+    for j in range(k, len(toks)):
+        v = toks[j].value
+        if v == "[":
+            depth += 1
+        elif v == "]":
+            depth -= 1
+            if depth == 0:
+                return j + 1
+    return len(toks)
+
+
+def _split_commas(toks: list[Tok]) -> list[list[Tok]]:
+    """Split at commas outside parentheses/brackets/braces."""
+    parts: list[list[Tok]] = [[]]
+    depth = 0
+    for t in toks:
+        v = t.value
+        if t.kind == "punct":
+            if v in "([{":
+                depth += 1
+            elif v in ")]}":
+                depth -= 1
+            elif v == "," and depth == 0:
+                parts.append([])
+                continue
+        parts[-1].append(t)
+    if parts == [[]]:
+        return []
+    return parts
+
+
+def _strip_attributes(toks: list[Tok]) -> list[Tok]:
+    out: list[Tok] = []
+    i = 0
+    while i < len(toks):
+        v = toks[i].value
+        if toks[i].kind == "id" and v in SKIP_WITH_PARENS:
+            i = _skip_parens(toks, i + 1)
+            continue
+        if toks[i].kind == "id" and v in DROP_WORDS:
+            i += 1
+            continue
+        out.append(toks[i])
+        i += 1
+    return out
+
+
+def _brace_match(toks: list[Tok]) -> list[int]:
+    """For each '{' the index of its '}', -1 when unmatched (other tokens: -1)."""
+    match = [-1] * len(toks)
+    stack: list[int] = []
+    for i, t in enumerate(toks):
+        if t.kind == "punct":
+            if t.value == "{":
+                stack.append(i)
+            elif t.value == "}" and stack:
+                match[stack.pop()] = i
+    return match
+
+
+def _match(L: list[Token], openers: dict[str, str], closers: set[str]) -> list[int]:
+    """Index of the matching closer for each opener in L (-1 when there is none)."""
+    match = [-1] * len(L)
+    stack: list[int] = []
+    for i, t in enumerate(L):
+        ty = t.type
+        if ty in openers:
+            stack.append(i)
+        elif ty in closers:
+            if stack and openers[L[stack[-1]].type] == ty:
+                match[stack.pop()] = i
+            elif ty == "RBRACE":
+                # a '}' closes any parentheses left open inside its block
+                while stack and L[stack[-1]].type != "LBRACE":
+                    stack.pop()
+                if stack:
+                    match[stack.pop()] = i
+    return match
+
+
+CONTROL_WORDS = {"for", "if", "while", "switch", "do", "else", "return", "typedef", "case",
+                 "default", "goto", "break", "continue", "sizeof"}
+
+
+def _open_paren_back(toks: list[Tok], j: int, lo: int) -> int | None:
+    """Index of the '(' matching the ')' at `j`, searching back to `lo`; None if unmatched."""
+    depth = 0
+    for k in range(j, lo - 1, -1):
+        v = toks[k].value
+        if v == ")":
+            depth += 1
+        elif v == "(":
+            depth -= 1
+            if depth == 0:
+                return k
+    return None
+
+
+def _function_head(toks: list[Tok], a: int, b: int) -> int | None:
+    """Where the head of a function definition starts, if toks[a:b] (the text before a
+    '{' at depth 0) ends with one: `type words name ( params ) [qualifiers]`."""
+    j = b - 1
+    # words and attributes between the parameter list and the '{'
+    while j >= a:
+        t = toks[j]
+        if t.kind == "id" and t.value not in CONTROL_WORDS:
+            j -= 1
+            continue
+        if t.kind == "punct" and t.value == ")":
+            o = _open_paren_back(toks, j, a)
+            if o is None:
+                return None
+            if o > a and toks[o - 1].kind == "id" and toks[o - 1].value in SKIP_WITH_PARENS:
+                j = o - 2
+                continue
+            break
+        return None
+    if j < a:
+        return None
+    o = _open_paren_back(toks, j, a)
+    name = o - 1 if o is not None else a - 1
+    if name < a or toks[name].kind != "id" or toks[name].value in SPEC_WORDS \
+            or toks[name].value in CONTROL_WORDS or toks[name].value in SKIP_WITH_PARENS:
+        return None
+    # the return type: words, stars, `extern "C"` and attributes right before the name
+    s = name
+    while s > a:
+        t = toks[s - 1]
+        if (t.kind == "id" and t.value not in CONTROL_WORDS) or t.kind == "str" \
+                or (t.kind == "punct" and t.value == "*"):
+            s -= 1
+            continue
+        if t.kind == "punct" and t.value == ")":
+            o2 = _open_paren_back(toks, s - 1, a)
+            if o2 is not None and o2 > a and toks[o2 - 1].value in SKIP_WITH_PARENS:
+                s = o2 - 1
+                continue
+        break
+    return s
+
+
+
+class Scanner:
+    """File-level scanning (a part of UnitParser: reads self.smap, self.diags, self.typedefs)."""
+
+    def _collect_typedefs(self, toks: list[Tok]) -> None:
+        n = len(toks)
+        for i, t in enumerate(toks):
+            if t.kind != "id" or t.value != "typedef":
+                continue
+            j = i + 1
+            depth = 0
+            name = None
+            paren_name = None
+            while j < n and j < i + 2000:
+                v = toks[j].value
+                if v == "{":
+                    depth += 1
+                elif v == "}":
+                    depth -= 1
+                    if depth < 0:
+                        break
+                elif depth == 0:
+                    if v == ";":
+                        break
+                    if (v == "(" and j + 3 < n and toks[j + 1].value == "*"
+                            and toks[j + 2].kind == "id" and toks[j + 3].value == ")"):
+                        paren_name = toks[j + 2].value
+                    if toks[j].kind == "id" and v not in SPEC_WORDS:
+                        name = v
+                j += 1
+            chosen = paren_name or name
+            if chosen:
+                self.typedefs.add(chosen)
+
+    def _scan(self, toks: list[Tok], report: bool) -> list[tuple[str, int, int, int]]:
+        """Cut the file at depth 0 into ('func', header, open, close) and ('decl', a, b, 0)."""
+        match = _brace_match(toks)
+        items: list[tuple[str, int, int, int]] = []
+        extern_closes: set[int] = set()
+        stray: list[Tok] = []
+        n = len(toks)
+        i = 0
+        chunk = 0
+        while i < n:
+            t = toks[i]
+            if t.kind == "pragma":
+                if chunk == i:
+                    chunk = i + 1
+                i += 1
+                continue
+            if t.kind != "punct":
+                i += 1
+                continue
+            v = t.value
+            if v == ";":
+                if i > chunk:
+                    items.append(("decl", chunk, i + 1, 0))
+                chunk = i + 1
+            elif v == "{":
+                j = match[i]
+                if j < 0:
+                    if report:
+                        line, col = self.smap.position(t.start)
+                        self.diags.append(d.UnbalancedBraces(
+                            self.smap.span(t.start, t.end), where=d.where(line, col),
+                            reason="this '{' is never closed; the rest of the file is skipped"))
+                    break
+                head = _function_head(toks, chunk, i)
+                if head is not None:
+                    # text before the head (an unexpanded macro call, say) is not part of it
+                    items.append(("func", head, i, j))
+                    chunk = j + 1
+                    i = j + 1
+                    continue
+                if (i - chunk == 2 and toks[chunk].value == "extern"
+                        and toks[chunk + 1].kind == "str"):
+                    extern_closes.add(j)  # extern "C" { ... }: read what is inside
+                    chunk = i + 1
+                    i += 1
+                    continue
+                i = j + 1  # struct body or initializer: part of the declaration
+                continue
+            elif v == "}":
+                if i not in extern_closes:
+                    stray.append(t)
+                chunk = i + 1
+            i += 1
+        if stray and report:
+            # one diagnostic for all of them: a broken file must not flood the report
+            t = stray[0]
+            line, col = self.smap.position(t.start)
+            more = f" (and {len(stray) - 1} more after it)" if len(stray) > 1 else ""
+            self.diags.append(d.UnbalancedBraces(
+                self.smap.span(t.start, t.end), where=d.where(line, col),
+                reason=f"this '}}' has no matching '{{'{more}; ignored"))
+        return items
