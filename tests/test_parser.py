@@ -25,13 +25,7 @@ def read(name: str) -> tuple[ir.TranslationUnit, list]:
     return parse_file(os.path.join(INPUTS, name))
 
 
-def walk(node: ir.Node):
-    """Every node under `node` (iteratively, so deep trees are fine)."""
-    stack = [node]
-    while stack:
-        n = stack.pop()
-        yield n
-        stack.extend(reversed(ir.children(n)))
+walk = ir.walk
 
 
 def loops(node: ir.Node) -> list[ir.For]:

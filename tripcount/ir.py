@@ -12,8 +12,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
-from typing import Any
 
 
 @dataclass(frozen=True, order=True)
@@ -351,28 +351,7 @@ class TranslationUnit(Node):
 
 
 # --------------------------------------------------------------------------
-# Visitor
-
-
-class Visitor:
-    """Dispatches `visit_<NodeClass>(node)`; unknown classes go to `generic_visit`.
-
-    The default `generic_visit` visits every child node (fields that are nodes,
-    or tuples of nodes) and returns None.
-    """
-
-    def visit(self, node: Node) -> Any:
-        """Visit one node."""
-        method = getattr(self, "visit_" + type(node).__name__, None)
-        if method is None:
-            return self.generic_visit(node)
-        return method(node)
-
-    def generic_visit(self, node: Node) -> Any:
-        """Visit the children of `node` in field order."""
-        for child in children(node):
-            self.visit(child)
-        return None
+# Traversal
 
 
 def children(node: Node) -> list[Node]:
@@ -387,6 +366,20 @@ def children(node: Node) -> list[Node]:
         elif isinstance(value, tuple):
             out.extend(v for v in value if isinstance(v, Node))
     return out
+
+
+def walk(node: Node, into: Callable[[Node], bool] | None = None) -> Iterator[Node]:
+    """`node` and every node below it, pre-order in field order, without recursion.
+
+    With `into`, the children of a node are visited only where `into(node)` is true
+    (the node itself is still yielded).
+    """
+    stack = [node]
+    while stack:
+        n = stack.pop()
+        yield n
+        if into is None or into(n):
+            stack.extend(reversed(children(n)))
 
 
 # C text of expressions (minimal parentheses): messages, reports, cache keys

@@ -11,7 +11,7 @@ from typing import Any
 from tripcount import ir
 from tripcount.affine.convert import Converter, NotAffine
 from tripcount.affine.ctext import _pos, loop_label, mangle, stmt_text, symbol_base
-from tripcount.affine.decls import FunctionInfo, _all_nodes, global_decls
+from tripcount.affine.decls import FunctionInfo, global_decls
 from tripcount.affine.depth import DEEP_TEXT, cut_deep_function, cut_deep_globals, is_deep_cut
 from tripcount.affine.diagnostics import (
     EarlyBreak,
@@ -146,7 +146,7 @@ class _NestBuilder:
         # Code cut for its depth may do anything (assign a bound, jump out): nothing in the nest is certain.
         # One diagnostic, at the first cut, says so.
         cuts = self.info.cuts
-        for n in _all_nodes(first) if cuts else ():
+        for n in ir.walk(first) if cuts else ():
             if is_deep_cut(n) and id(n) in cuts:
                 self.info.cuts_reported.add(id(n))
                 if unknown is None:
@@ -456,19 +456,7 @@ class _NestBuilder:
 
 def outermost_fors(s: ir.Stmt) -> list[ir.For]:
     """`for` statements not inside another `for` (they may sit in ifs, blocks, whiles)."""
-    out: list[ir.For] = []
-
-    def go(n: ir.Node) -> None:
-        if isinstance(n, ir.For):
-            out.append(n)
-            return
-        if isinstance(n, ir.Expr):
-            return
-        for c in ir.children(n):
-            go(c)
-
-    go(s)
-    return out
+    return [n for n in ir.walk(s, lambda n: not isinstance(n, (ir.For, ir.Expr))) if isinstance(n, ir.For)]
 
 
 def extract_nests(unit: ir.TranslationUnit, path: str | None = None) -> tuple[list[ANest], list[Diagnostic]]:

@@ -54,7 +54,7 @@ class FunctionInfo:
         }
         # (declaration, span of the block or `for` it is visible in)
         self.locals: list[tuple[VarDecl, Span]] = []
-        for n in _all_nodes(fn.body):
+        for n in ir.walk(fn.body):
             scope = n.span
             decls: list[ir.Decl] = []
             if isinstance(n, ir.Block):
@@ -102,14 +102,6 @@ class FunctionInfo:
 
 def _inside(at: Span, scope: Span) -> bool:
     return not _before(at, scope) and _before(Span.point(at.line, at.column), Span.point(scope.end_line, scope.end_column))
-
-
-def _all_nodes(node: ir.Node):
-    stack = [node]
-    while stack:
-        n = stack.pop()
-        yield n
-        stack.extend(reversed(ir.children(n)))
 
 
 def global_decls(unit: ir.TranslationUnit) -> list[VarDecl]:

@@ -5,6 +5,7 @@
 from __future__ import annotations
 
 import re
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 
 from tripcount import ir
@@ -15,14 +16,9 @@ from tripcount.ir import Span
 # Scanning helpers over the IR
 
 
-def walk_exprs(node: ir.Node):
+def walk_exprs(node: ir.Node) -> Iterator[ir.Expr]:
     """All expression nodes under `node` (statements and expressions), pre-order."""
-    stack = [node]
-    while stack:
-        n = stack.pop()
-        if isinstance(n, ir.Expr):
-            yield n
-        stack.extend(reversed(ir.children(n)))
+    return (n for n in ir.walk(node) if isinstance(n, ir.Expr))
 
 
 def _write_target(e: ir.Expr) -> str | None:
@@ -152,29 +148,23 @@ def collect_outer_writes(node: ir.Node) -> Writes:
 
 def _find_jumps(node: ir.Node, kinds: set[str], into_loops: bool) -> list[ir.Node]:
     """Jump statements of the given kinds; `into_loops=False` stops at nested loops/switches."""
+    loops = (ir.For, ir.While, ir.DoWhile, ir.Switch)
+
+    def into(n: ir.Node) -> bool:
+        if isinstance(n, ir.Expr) or (isinstance(n, ir.Jump) and n.kind in kinds):
+            return False
+        # a nested switch owns its `break`s but not the `continue`s
+        return into_loops or not isinstance(n, loops) or (isinstance(n, ir.Switch) and "break" not in kinds)
+
     out: list[ir.Node] = []
-
-    def go(n: ir.Node) -> None:
-        if isinstance(n, ir.Jump) and n.kind in kinds:
-            out.append(n)
-            return
-        if isinstance(n, ir.Unparsed):
-            for k in kinds:
-                if re.search(rf"\b{k}\b", n.text):
-                    out.append(n)
-                    return
-        if not into_loops and isinstance(n, (ir.For, ir.While, ir.DoWhile, ir.Switch)):
-            if not (isinstance(n, ir.Switch) and "break" not in kinds):
-                return
-        if isinstance(n, ir.Expr):
-            return
-        for c in ir.children(n):
-            go(c)
-
     for c in ir.children(node) if isinstance(node, ir.For) else [node]:
         if isinstance(node, ir.For) and c is not node.body:
             continue
-        go(c)
+        for n in ir.walk(c, into):
+            if isinstance(n, ir.Jump) and n.kind in kinds:
+                out.append(n)
+            elif isinstance(n, ir.Unparsed) and any(re.search(rf"\b{k}\b", n.text) for k in kinds):
+                out.append(n)
     return out
 
 

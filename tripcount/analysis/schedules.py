@@ -87,15 +87,6 @@ class BlockProfile:
         return self._upto(b) - self._upto(a)
 
 
-def is_constant(profile: Profile) -> bool:
-    """True for profiles whose iterations all weigh the same."""
-    if isinstance(profile, ConstProfile):
-        return True
-    if isinstance(profile, VectorProfile):
-        return len(set(profile.work)) <= 1
-    return False
-
-
 # --------------------------------------------------------------------------
 # Static schedules (libgomp's split)
 

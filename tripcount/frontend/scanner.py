@@ -58,20 +58,6 @@ def _skip_parens(toks: list, k: int, limit: int | None = None) -> int:
     return end
 
 
-def _close_paren(toks: list[Tok], k: int, limit: int) -> int | None:
-    """Index of the ')' closing the '(' at `k`, searching below `limit`; None if unclosed."""
-    depth = 0
-    for j in range(k, min(limit, len(toks))):
-        v = toks[j].value
-        if v == "(":
-            depth += 1
-        elif v == ")":
-            depth -= 1
-            if depth == 0:
-                return j
-    return None
-
-
 def _skip_brackets(toks: list[Tok], k: int) -> int:
     depth = 0
     for j in range(k, len(toks)):
@@ -213,7 +199,6 @@ def _function_head(toks: list[Tok], a: int, b: int) -> int | None:
                 continue
         break
     return s
-
 
 
 class Scanner:

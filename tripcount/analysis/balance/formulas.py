@@ -9,6 +9,7 @@ from typing import Any
 
 import islpy as isl
 
+from tripcount import engine
 from tripcount.analysis.balance.space import (
     IN,
     PARAM,
@@ -23,6 +24,7 @@ from tripcount.analysis.balance.space import (
 )
 from tripcount.analysis.results import Count
 from tripcount.engine import PieceList
+from tripcount.engine.piecewise import when_text
 from tripcount.model import Nest
 from tripcount.options import Options
 
@@ -38,14 +40,6 @@ FORMULA_MAX_THREADS = 16  # per-thread formula of schedule(static): one piece pe
 # counter k < E; a thread's work is then F(end) - F(start) with its share's
 # bounds substituted: t*q + min(t, r) with q = floor(n/P), r = n - P*q for
 # schedule(static), and a sum over the thread's chunks for schedule(static, c).
-
-
-def _engine() -> Any:
-    try:
-        from tripcount import engine
-    except ImportError:
-        return None
-    return engine if hasattr(engine, "count") else None
 
 
 def _limits(engine: Any, options: Options) -> Any:
@@ -86,9 +80,6 @@ def _count_weighted(engine: Any, sets: list[tuple[isl.Set, int | Fraction]], con
 
 def work_formula(nest: Nest, sp: Space, options: Options, names: str) -> Count:
     """Work of one iteration as a formula in the parameters and the loop variable(s)."""
-    engine = _engine()
-    if engine is None:
-        return Count(note="formula not available: no counting engine")
     prefix = sp.depth + sp.width
     sets = [(s.move_dims(PARAM, s.dim(PARAM), SET, 0, prefix), w) for s, w in sp.stmts]
     try:
@@ -146,8 +137,6 @@ def _const_on(pa: isl.PwAff, c: int) -> isl.PwAff:
 
 def _when_text(domain: isl.Set, params: tuple[str, ...]) -> str:
     try:
-        from tripcount.engine.piecewise import when_text
-
         return when_text(domain, None, params)
     except Exception:  # the condition is an aid to reading; the domain is exact anyway
         return "true"
@@ -315,9 +304,6 @@ def _pmeet(a: isl.Set, b: isl.Set) -> isl.Set:
 def thread_formula(nest: Nest, sp: Space, options: Options, threads: int, chunk: int | None,
                    tname: str) -> Count:
     """Each thread's work under a static schedule as a formula in the parameters and the thread id."""
-    engine = _engine()
-    if engine is None:
-        return Count(note="formula not available: no counting engine")
     try:
         const = _const_thread_formula(engine, nest, sp, options, threads, chunk, tname)
     except Exception as exc:  # engine limit: the values at the sizes still come from the profiles

@@ -106,10 +106,6 @@ class FCount(Count):
         return out
 
 
-def _count_json(c: Count | None) -> dict[str, Any] | None:
-    return None if c is None else c.to_json()
-
-
 @dataclass
 class ArrayFootprint:
     """One array's share of a footprint."""
