@@ -9,14 +9,9 @@ from __future__ import annotations
 import os
 
 from tripcount.frontend import preprocess as pp
-from tripcount.frontend.preprocess import (
-    Includes,
-    SourceMap,
-    char_value,
-    int_value,
-    preprocess,
-    tokenize,
-)
+from tripcount.frontend.includes import Includes
+from tripcount.frontend.lexer import SourceMap, char_value, int_value, tokenize
+from tripcount.frontend.preprocess import preprocess
 
 INPUTS = os.path.join(os.path.dirname(os.path.abspath(__file__)), "inputs", "frontend")
 

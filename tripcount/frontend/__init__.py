@@ -1,7 +1,7 @@
 # The front end: C source text -> ir.TranslationUnit.
 #
 # preprocess.py (comments, continuations, directives, macros; positions kept
-# in the original file) -> parser.py (one file; with scanner.py for function
+# in the original file; with lexer.py for tokens and ppexpr.py for #if) -> parser.py (one file; with scanner.py for function
 # definitions, lalr.py for the LALR grammar from grammar/loops.lark,
 # recovery.py for unreadable statements, omp.py for OpenMP clauses, vocab.py
 # for the words) -> build.py (callbacks that build the IR). Nothing here raises on bad input: what cannot be read becomes
@@ -34,8 +34,9 @@ from tripcount.frontend.diagnostics import (
     UnterminatedComment,
     UnterminatedConditional,
 )
+from tripcount.frontend.includes import Includes
+from tripcount.frontend.lexer import SourceMap
 from tripcount.frontend.parser import UnitParser, engine
-from tripcount.frontend.preprocess import Includes, SourceMap
 from tripcount.frontend.preprocess import preprocess as _preprocess
 
 __all__ = [

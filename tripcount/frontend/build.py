@@ -17,7 +17,7 @@ from lark import Token, Transformer
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
-from tripcount.frontend.preprocess import SourceMap, char_value, int_value
+from tripcount.frontend.lexer import SourceMap, char_value, int_value
 
 # How deep the OpenMP region rewrite follows nested statements.
 MAX_REGION_DEPTH = 200

@@ -6,7 +6,7 @@ from typing import TYPE_CHECKING
 
 from tripcount import ir
 from tripcount.frontend import diagnostics as d
-from tripcount.frontend.preprocess import Tok
+from tripcount.frontend.lexer import Tok
 from tripcount.frontend.scanner import _skip_parens, _split_commas
 from tripcount.frontend.vocab import OMP_DIRECTIVES, SCHEDULE_KINDS
 

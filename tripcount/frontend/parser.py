@@ -27,8 +27,9 @@ from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.build import PragmaToken, cover
 from tripcount.frontend.lalr import ParseFailure, engine
+from tripcount.frontend.lexer import SourceMap, Tok
 from tripcount.frontend.omp import omp_clauses
-from tripcount.frontend.preprocess import Preprocessed, SourceMap, Tok
+from tripcount.frontend.preprocess import Preprocessed
 from tripcount.frontend.recovery import Recovery
 from tripcount.frontend.scanner import (
     Scanner,

@@ -16,18 +16,20 @@
 # defines are dropped (their loop nests are reported when the header itself
 # is analyzed, once, in its own coordinates). Problems inside a header become
 # one TC120 warning at the directive naming the header's own line:column.
+#
+# The lexer is in lexer.py, #include in includes.py, #if expressions in ppexpr.py.
 
 from __future__ import annotations
 
-import bisect
 import os
-import re
 from dataclasses import dataclass, field
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
-from tripcount.sources import read_bytes
+from tripcount.frontend.includes import IncludeReader, Includes, IncludeState
+from tripcount.frontend.lexer import SourceMap, Tok, char_value, int_value, tokenize
+from tripcount.frontend.ppexpr import CondEvalError, CondEvaluator
 
 # Macros every C compiler predefines that change which branch of common
 # #if tests is taken. _OPENMP is defined because tripcount reads OpenMP
@@ -49,33 +51,6 @@ EXPANSION_FACTOR = 20
 EXPANSION_FLOOR = 100_000
 MAX_ARG_DEPTH = 64
 
-# Headers: how deep #include may nest, and how many headers one file may read.
-MAX_INCLUDE_DEPTH = 16
-MAX_HEADERS = 256
-
-
-@dataclass
-class Includes:
-    """How #include and the command-line macros are handled for one file.
-
-    `dirs`: the -I directories, in order. `defines`: -D NAME[=VALUE] as
-    (NAME, VALUE) pairs in command-line order, NAME possibly with a
-    parameter list (`F(x)`); `undefines`: -U NAME, applied after them.
-    """
-
-    dirs: tuple[str, ...] = ()
-    defines: tuple[tuple[str, str], ...] = ()
-    undefines: tuple[str, ...] = ()
-
-
-@dataclass
-class _Shared:
-    """State shared by a file and the headers it reads."""
-
-    includes: Includes
-    headers: int = 0
-    once: set[str] = field(default_factory=set)  # headers with #pragma once already read
-
 
 class _Overrun(Exception):
     """An expansion step went past a budget (`file`: the file's, else the use's)."""
@@ -83,163 +58,6 @@ class _Overrun(Exception):
     def __init__(self, file: bool) -> None:
         super().__init__("file" if file else "use")
         self.file = file
-
-
-class SourceMap:
-    """The original text and its line starts: converts offsets to 1-based line/column."""
-
-    def __init__(self, text: str) -> None:
-        self.text = text
-        starts = [0]
-        find = text.find
-        i = find("\n")
-        while i >= 0:
-            starts.append(i + 1)
-            i = find("\n", i + 1)
-        self.line_starts = starts
-
-    def position(self, offset: int) -> tuple[int, int]:
-        """(line, column) of an offset; tabs count as one column."""
-        line = bisect.bisect_right(self.line_starts, offset)
-        return line, offset - self.line_starts[line - 1] + 1
-
-    def offset(self, line: int, column: int) -> int:
-        """The offset of a (line, column) position, clamped to the text."""
-        if line < 1:
-            return 0
-        if line > len(self.line_starts):
-            return len(self.text)
-        return max(0, min(self.line_starts[line - 1] + column - 1, len(self.text)))
-
-    def span(self, start: int, end: int) -> ir.Span:
-        """The span of the offsets [start, end)."""
-        a, b = self.position(start)
-        c, e = self.position(max(start, end))
-        return ir.Span(a, b, c, e)
-
-    def slice(self, span: ir.Span) -> str:
-        """The original text of a span."""
-        return self.text[self.offset(span.line, span.column):self.offset(span.end_line, span.end_column)]
-
-    def end_span(self) -> ir.Span:
-        """The span of the whole text."""
-        return self.span(0, len(self.text))
-
-
-class Tok:
-    """One preprocessing token.
-
-    kind: 'id', 'num', 'str', 'chr', 'punct', 'other' or 'pragma'. `start` and
-    `end` are offsets into the original text (for macro output: the
-    invocation). `hide` is the set of macro names not to expand again (C's
-    rule against recursive expansion). `bol` marks the first token of a line.
-    For a pragma token, `extra` holds its macro-expanded tokens after `omp`.
-    """
-
-    __slots__ = ("kind", "value", "start", "end", "hide", "bol", "space", "extra")
-
-    def __init__(self, kind: str, value: str, start: int, end: int, bol: bool = False,
-                 space: bool = False) -> None:
-        self.kind = kind
-        self.value = value
-        self.start = start
-        self.end = end
-        self.hide: frozenset[str] | None = None
-        self.bol = bol
-        self.space = space  # whitespace (or a comment) before this token
-        self.extra: list[Tok] | None = None
-
-    def copy_at(self, start: int, end: int, hide: frozenset[str] | None) -> Tok:
-        """This token's kind and spelling at another position."""
-        t = Tok(self.kind, self.value, start, end, False, self.space)
-        t.hide = hide
-        return t
-
-    def __repr__(self) -> str:
-        return f"Tok({self.kind}, {self.value!r}, {self.start}:{self.end})"
-
-
-_TOKEN_RE = re.compile(
-    r"""
-     (?P<nl>\n)
-    |(?P<ws>[ \t\r\f\v]+)
-    |(?P<lc>//[^\n]*)
-    |(?P<bc>/\*.*?\*/)
-    |(?P<ubc>/\*)
-    |(?P<num>\.?[0-9](?:[eEpP][+-]|[0-9A-Za-z_.])*)
-    |(?P<str>(?:u8|[uUL])?"(?:\\.|[^"\\\n])*")
-    |(?P<chr>(?:u8|[uUL])?'(?:\\.|[^'\\\n])*')
-    |(?P<id>[^\W\d][\w$]*|\$[\w$]*)
-    |(?P<punct>\.\.\.|<<=|>>=|->|\+\+|--|<<|>>|<=|>=|==|!=|&&|\|\||[-+*/%&|^]=|\#\#|[][(){};,:?~!=<>+\-*/%&|^.\#])
-    |(?P<other>.)
-    """,
-    re.X | re.S,
-)
-
-_SPLICE_RE = re.compile(r"\\[ \t]*\r?\n")
-
-
-class _Splices:
-    """Maps offsets in the spliced text (continuations removed) back to the original."""
-
-    def __init__(self, text: str) -> None:
-        self.cuts: list[int] = []  # spliced offsets where text was removed
-        self.removed: list[int] = []  # total removed up to and including that cut
-        parts: list[str] = []
-        last = 0
-        total = 0
-        for m in _SPLICE_RE.finditer(text):
-            parts.append(text[last:m.start()])
-            self.cuts.append(m.start() - total)
-            total += m.end() - m.start()
-            self.removed.append(total)
-            last = m.end()
-        parts.append(text[last:])
-        self.text = "".join(parts) if self.cuts else text
-
-    def start(self, s: int) -> int:
-        """Original offset of a token start at spliced offset `s`."""
-        k = bisect.bisect_right(self.cuts, s)
-        return s + (self.removed[k - 1] if k else 0)
-
-    def end(self, s: int) -> int:
-        """Original offset of an exclusive token end at spliced offset `s`."""
-        k = bisect.bisect_left(self.cuts, s)
-        return s + (self.removed[k - 1] if k else 0)
-
-
-def tokenize(text: str, diags: list[Diagnostic] | None = None,
-             smap: SourceMap | None = None) -> list[Tok]:
-    """Split source text into preprocessing tokens (comments and whitespace dropped)."""
-    sp = _Splices(text)
-    spliced = sp.text
-    mapped = bool(sp.cuts)
-    out: list[Tok] = []
-    append = out.append
-    bol = True
-    space = False
-    for m in _TOKEN_RE.finditer(spliced):
-        kind = m.lastgroup
-        if kind == "nl":
-            bol = True
-            space = True
-            continue
-        if kind == "ws" or kind == "lc" or kind == "bc":
-            space = True
-            continue
-        s, e = m.span()
-        if kind == "ubc":
-            if diags is not None and smap is not None:
-                line, col = smap.position(sp.start(s) if mapped else s)
-                diags.append(d.UnterminatedComment(ir.Span(line, col, line, col + 2),
-                                                   where=d.where(line, col)))
-            break
-        if mapped:
-            s, e = sp.start(s), sp.end(e)
-        append(Tok(kind, m.group(), s, e, bol, space))
-        bol = False
-        space = False
-    return out
 
 
 @dataclass
@@ -278,57 +96,14 @@ def _spelling(toks: list[Tok]) -> str:
     return "".join(parts)
 
 
-def int_value(text: str) -> int | None:
-    """The value of a C integer literal (suffixes U/L/LL stripped), or None."""
-    s = text.rstrip("uUlLzZ")
-    s = s.replace("'", "")
-    try:
-        if s[:2] in ("0x", "0X"):
-            return int(s[2:], 16)
-        if s[:2] in ("0b", "0B"):
-            return int(s[2:], 2)
-        if len(s) > 1 and s[0] == "0":
-            return int(s[1:], 8)
-        return int(s, 10)
-    except ValueError:
-        return None
-
-
-_ESCAPES = {"n": 10, "t": 9, "r": 13, "0": 0, "\\": 92, "'": 39, '"': 34, "a": 7, "b": 8,
-            "f": 12, "v": 11, "?": 63}
-
-
-def char_value(text: str) -> int | None:
-    """The value of a simple character constant such as 'a' or '\\n', or None."""
-    q = text.find("'")
-    body = text[q + 1:-1]
-    if len(body) == 1:
-        return ord(body)
-    if len(body) >= 2 and body[0] == "\\":
-        rest = body[1:]
-        if rest in _ESCAPES:
-            return _ESCAPES[rest]
-        try:
-            if rest[0] in "xX":
-                return int(rest[1:], 16)
-            return int(rest, 8)
-        except ValueError:
-            return None
-    return None
-
-
-class _CondEvalError(Exception):
-    """An #if condition outside what the evaluator reads."""
-
-
-class Preprocessor:
+class Preprocessor(IncludeReader):
     """Runs directives and macro expansion over one file's tokens."""
 
     def __init__(self, text: str, path: str | None = None, includes: Includes | None = None,
-                 _shared: _Shared | None = None, _depth: int = 0) -> None:
+                 _shared: IncludeState | None = None, _depth: int = 0) -> None:
         self.smap = SourceMap(text)
         self.path = path
-        self.shared = _shared or _Shared(includes or Includes())
+        self.shared = _shared or IncludeState(includes or Includes())
         self.depth = _depth
         self.diags: list[Diagnostic] = []
         self.macros: dict[str, MacroDef] = {}
@@ -449,90 +224,6 @@ class Preprocessor:
                                                         where=self._where(tok)))
         return Preprocessed(out, self.recorded, self.diags, self.smap, self.macros)
 
-    # ------------------------------------------------------------------ #include
-    def _header_name(self, toks: list[Tok]) -> tuple[str, bool] | None:
-        """(name, quoted) of an #include operand, expanding macros once if needed."""
-        for attempt in (toks, None):
-            if attempt is None:
-                attempt = self._expand(list(toks))
-            if attempt and attempt[0].kind == "str" and attempt[0].value.startswith('"'):
-                return attempt[0].value[1:-1], True
-            if attempt and attempt[0].value == "<":
-                parts = []
-                for t in attempt[1:]:
-                    if t.value == ">":
-                        return "".join(parts), False
-                    parts.append((" " if t.space and parts else "") + t.value)
-        return None
-
-    def _find_header(self, name: str, quoted: bool) -> tuple[str | None, list[str]]:
-        """The header's path (None when not found) and the directories searched."""
-        dirs: list[str] = []
-        if quoted:
-            here = self.path if self.path and not self.path.startswith("<") else None
-            dirs.append(os.path.dirname(os.path.abspath(here)) if here else os.getcwd())
-        dirs.extend(self.shared.includes.dirs)
-        # anything that exists and is not a directory is "found": reading it
-        # then refuses what is not a regular file (a FIFO, a device) with a reason
-        if os.path.isabs(name):
-            return (name if os.path.exists(name) and not os.path.isdir(name) else None), dirs
-        for base in dirs:
-            cand = os.path.join(base, name)
-            if os.path.exists(cand) and not os.path.isdir(cand):
-                return cand, dirs
-        return None, dirs
-
-    def _include(self, hash_tok: Tok, toks: list[Tok], out: list[Tok]) -> None:
-        found = self._header_name(toks)
-        if found is None:
-            return  # `#include` with an operand we cannot name: ignored, as before
-        name, quoted = found
-        shown = f'"{name}"' if quoted else f"<{name}>"
-        end = toks[-1].end if toks else hash_tok.end
-        span = self.smap.span(hash_tok.start, end)
-        path, dirs = self._find_header(name, quoted)
-        if path is None:
-            if quoted:
-                searched = ", ".join(dirs) if dirs else "no directory"
-                self.diags.append(d.HeaderNotFound(span, header=shown, where=self._where(hash_tok),
-                                                   searched=searched))
-            return
-        real = os.path.realpath(path)
-        if real in self.shared.once:
-            return
-        if self.depth + 1 > MAX_INCLUDE_DEPTH or self.shared.headers >= MAX_HEADERS:
-            reason = (f"#include nests deeper than {MAX_INCLUDE_DEPTH}" if self.depth + 1 > MAX_INCLUDE_DEPTH
-                      else f"more than {MAX_HEADERS} headers read for one file")
-            self.diags.append(d.IncludeLimit(span, header=shown, where=self._where(hash_tok), reason=reason))
-            return
-        try:
-            data = read_bytes(path)
-        except OSError as exc:
-            self.diags.append(d.IncludeLimit(span, header=shown, where=self._where(hash_tok),
-                                             reason=exc.strerror or str(exc)))
-            return
-        self.shared.headers += 1
-        sub = Preprocessor(data.decode("utf-8", errors="replace"), path, _shared=self.shared,
-                           _depth=self.depth + 1)
-        sub.macros = self.macros  # definitions flow both ways, as in one translation unit
-        res = sub.run()
-        for t in _declarations_only(res.tokens):
-            c = t.copy_at(hash_tok.start, end, t.hide)
-            c.bol, c.extra = t.bol, t.extra
-            if c.extra is not None:
-                c.extra = [x.copy_at(hash_tok.start, end, x.hide) for x in c.extra]
-            out.append(c)
-        self.recorded.extend(ir.Macro(span, m.name, m.params, m.body) for m in res.macros)
-        problems = [g for g in res.diagnostics if g.severity in ("error", "warning")]
-        if problems:
-            first = problems[0]
-            if isinstance(first, d.HeaderProblems):  # nested: name the innermost place
-                where_first = first.args["first"]
-            else:
-                where_first = f"{name}:{first.span.line}:{first.span.column}: {first.message} [{first.code}]"
-            self.diags.append(d.HeaderProblems(span, header=shown, where=self._where(hash_tok),
-                                               count=len(problems), first=where_first))
-
     def _flush(self, pending: list[Tok], out: list[Tok]) -> None:
         if pending:
             out.extend(self._expand(pending))
@@ -613,7 +304,7 @@ class Preprocessor:
             return known if name == "ifdef" else not known
         try:
             return self._evaluate(toks) != 0
-        except (_CondEvalError, RecursionError, ZeroDivisionError) as exc:
+        except (CondEvalError, RecursionError, ZeroDivisionError) as exc:
             reason = str(exc) or "the expression is not a plain integer expression"
             if isinstance(exc, ZeroDivisionError):
                 reason = "division by zero"
@@ -636,7 +327,7 @@ class Preprocessor:
                       and toks[k + 3].value == ")"):
                     name, k = toks[k + 2].value, k + 4
                 else:
-                    raise _CondEvalError("malformed 'defined'")
+                    raise CondEvalError("malformed 'defined'")
                 pre.append(Tok("num", "1" if name in self.macros else "0", t.start, t.end))
                 continue
             pre.append(t)
@@ -644,33 +335,33 @@ class Preprocessor:
         before = len(self.diags)
         expanded = self._expand(pre)
         if any(isinstance(x, (d.MacroUseTooLarge, d.ExpansionLimit)) for x in self.diags[before:]):
-            raise _CondEvalError("a macro in it expands past the budget")  # its name would read as 0
+            raise CondEvalError("a macro in it expands past the budget")  # its name would read as 0
         values: list[int | str] = []
         for idx, t in enumerate(expanded):
             if t.kind == "num":
                 v = int_value(t.value)
                 if v is None:
-                    raise _CondEvalError(f"'{t.value}' is not an integer")
+                    raise CondEvalError(f"'{t.value}' is not an integer")
                 values.append(v)
             elif t.kind == "chr":
                 v = char_value(t.value)
                 if v is None:
-                    raise _CondEvalError(f"cannot read {t.value}")
+                    raise CondEvalError(f"cannot read {t.value}")
                 values.append(v)
             elif t.kind == "id":
                 if idx + 1 < len(expanded) and expanded[idx + 1].value == "(":
-                    raise _CondEvalError(f"'{t.value}(...)' is not known")
+                    raise CondEvalError(f"'{t.value}(...)' is not known")
                 values.append(1 if t.value == "true" else 0)  # C: other names are 0
             elif t.kind == "punct":
                 values.append(t.value)
             else:
-                raise _CondEvalError(f"unexpected '{t.value}'")
+                raise CondEvalError(f"unexpected '{t.value}'")
         if not values:
-            raise _CondEvalError("the condition is empty")
-        ev = _CondEvaluator(values)
+            raise CondEvalError("the condition is empty")
+        ev = CondEvaluator(values)
         result = ev.ternary()
         if ev.pos != len(values):
-            raise _CondEvalError(f"unexpected '{values[ev.pos]}'")
+            raise CondEvalError(f"unexpected '{values[ev.pos]}'")
         return result
 
     # ------------------------------------------------------------------ expansion
@@ -902,124 +593,6 @@ class Preprocessor:
             paste = False
             res.append(it)
         return [t for t in res if t is not _PLACEMARKER]
-
-
-class _CondEvaluator:
-    """Integer evaluation of an #if condition (C precedence, values already numbers)."""
-
-    _BINARY = [
-        ("||",), ("&&",), ("|",), ("^",), ("&",), ("==", "!="), ("<", ">", "<=", ">="),
-        ("<<", ">>"), ("+", "-"), ("*", "/", "%"),
-    ]
-
-    def __init__(self, values: list[int | str]) -> None:
-        self.values = values
-        self.pos = 0
-
-    def _peek(self) -> int | str | None:
-        return self.values[self.pos] if self.pos < len(self.values) else None
-
-    def ternary(self) -> int:
-        c = self.binary(0)
-        if self._peek() == "?":
-            self.pos += 1
-            a = self.ternary()
-            if self._peek() != ":":
-                raise _CondEvalError("'?' without ':'")
-            self.pos += 1
-            b = self.ternary()
-            return a if c else b
-        return c
-
-    def binary(self, level: int) -> int:
-        if level == len(self._BINARY):
-            return self.unary()
-        ops = self._BINARY[level]
-        left = self.binary(level + 1)
-        while True:
-            op = self._peek()
-            if not isinstance(op, str) or op not in ops:
-                return left
-            self.pos += 1
-            right = self.binary(level + 1)
-            left = _apply(op, left, right)
-
-    def unary(self) -> int:
-        v = self._peek()
-        if v is None:
-            raise _CondEvalError("the condition ends too early")
-        self.pos += 1
-        if isinstance(v, int):
-            return v
-        if v == "(":
-            r = self.ternary()
-            if self._peek() != ")":
-                raise _CondEvalError("unbalanced parentheses")
-            self.pos += 1
-            return r
-        if v in ("-", "+", "!", "~"):
-            x = self.unary()
-            return {"-": -x, "+": x, "!": int(not x), "~": ~x}[v]
-        raise _CondEvalError(f"unexpected '{v}'")
-
-
-_OPS = {
-    "|": lambda a, b: a | b, "^": lambda a, b: a ^ b, "&": lambda a, b: a & b,
-    "==": lambda a, b: int(a == b), "!=": lambda a, b: int(a != b),
-    "<": lambda a, b: int(a < b), ">": lambda a, b: int(a > b),
-    "<=": lambda a, b: int(a <= b), ">=": lambda a, b: int(a >= b),
-    "<<": lambda a, b: a << b, ">>": lambda a, b: a >> b,
-    "+": lambda a, b: a + b, "-": lambda a, b: a - b, "*": lambda a, b: a * b,
-}
-
-
-def _apply(op: str, a: int, b: int) -> int:
-    if op == "||":
-        return int(bool(a or b))
-    if op == "&&":
-        return int(bool(a and b))
-    if op == "/":
-        q = abs(a) // abs(b)
-        return q if (a >= 0) == (b >= 0) else -q  # C truncates toward zero
-    if op == "%":
-        return a - b * _apply("/", a, b)
-    if op in ("<<", ">>") and not 0 <= b <= 64:
-        raise _CondEvalError("shift out of range")
-    r = _OPS[op](a, b)
-    if abs(r) >= 1 << 128:
-        raise _CondEvalError("the value is too large")  # C's integers are 64 bits at most
-    return r
-
-
-def _declarations_only(toks: list[Tok]) -> list[Tok]:
-    """A header's tokens with each function body `) { ... }` at file level made `);`."""
-    out: list[Tok] = []
-    depth = 0
-    i, n = 0, len(toks)
-    while i < n:
-        t = toks[i]
-        if t.value == "{" and t.kind == "punct":
-            if depth == 0 and out and out[-1].value == ")":
-                k, level = i, 0
-                while k < n:
-                    if toks[k].value == "{":
-                        level += 1
-                    elif toks[k].value == "}":
-                        level -= 1
-                        if level == 0:
-                            break
-                    k += 1
-                semi = t.copy_at(t.start, t.end, None)
-                semi.value = ";"
-                out.append(semi)
-                i = k + 1
-                continue
-            depth += 1
-        elif t.value == "}" and t.kind == "punct":
-            depth = max(0, depth - 1)
-        out.append(t)
-        i += 1
-    return out
 
 
 def preprocess(text: str, path: str | None = None, includes: Includes | None = None) -> Preprocessed:

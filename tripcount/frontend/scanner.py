@@ -7,7 +7,7 @@ from __future__ import annotations
 from lark import Token
 
 from tripcount.frontend import diagnostics as d
-from tripcount.frontend.preprocess import Tok
+from tripcount.frontend.lexer import Tok
 from tripcount.frontend.vocab import DROP_WORDS, SKIP_WITH_PARENS, SPEC_WORDS
 
 
