@@ -1,4 +1,4 @@
-# Tests of tripcount/analysis/balance.py and schedules.py: work balance of
+# Tests of tripcount/analysis/balance/ and schedules.py: work balance of
 # parallel loops.
 #
 # Sources of the expected values, named beside each check:

@@ -1,12 +1,13 @@
 # The front end: C source text -> ir.TranslationUnit.
 #
 # preprocess.py (comments, continuations, directives, macros; positions kept
-# in the original file; with lexer.py for tokens and ppexpr.py for #if) -> parser.py (one file; with scanner.py for function
-# definitions, lalr.py for the LALR grammar from grammar/loops.lark,
-# recovery.py for unreadable statements, omp.py for OpenMP clauses, vocab.py
-# for the words) -> build.py (callbacks that build the IR). Nothing here raises on bad input: what cannot be read becomes
-# a diagnostic (codes TC100..TC189, see frontend/diagnostics.py) and the rest
-# of the file is read on.
+# in the original file; lexer.py makes the tokens, ppexpr.py reads #if) ->
+# parser.py (one file: scanner.py cuts it into functions and declarations,
+# lalr.py runs the grammar of grammar/loops.lark, recovery.py rebuilds what
+# does not parse, omp.py reads OpenMP clauses, vocab.py holds the words) ->
+# build.py (callbacks that build the IR). Nothing here raises on bad input:
+# what cannot be read becomes a diagnostic (codes TC100..TC189, see
+# frontend/diagnostics.py) and the rest of the file is read on.
 
 from __future__ import annotations
 
