@@ -165,7 +165,7 @@ def test_substitution():
 
 def test_step_forms():
     def step(text):
-        return af._parse_step(_step_expr(text))
+        return af.parse_step(_step_expr(text))
 
     assert step("i++") == ("i", 1, None) and step("++i") == ("i", 1, None)
     assert step("i--") == ("i", -1, None) and step("--i") == ("i", -1, None)

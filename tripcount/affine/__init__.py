@@ -87,7 +87,7 @@ from tripcount.affine.lin import (
     subst,
     var,
 )
-from tripcount.affine.loops import _parse_step
+from tripcount.affine.loops import parse_step
 from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
 from tripcount.ctable import (  # noqa: F401  (re-exported: the affine stage's view of C types)
     base_type,
@@ -169,7 +169,7 @@ __all__ = [
     "Converter",
     "NotAffine",
     "MAX_DEPTH",
-    "_parse_step",
+    "parse_step",
     "_NestBuilder",
     "extract_nests",
     "outermost_fors",

@@ -10,7 +10,7 @@ from typing import Any
 
 from tripcount import ir
 from tripcount.affine.convert import Converter, NotAffine
-from tripcount.affine.ctext import _pos, loop_label, mangle, stmt_text, symbol_base
+from tripcount.affine.ctext import loop_label, mangle, span_pos, stmt_text, symbol_base
 from tripcount.affine.decls import FunctionInfo, global_decls
 from tripcount.affine.depth import DEEP_TEXT, cut_deep_function, cut_deep_globals, is_deep_cut
 from tripcount.affine.diagnostics import (
@@ -26,14 +26,14 @@ from tripcount.affine.diagnostics import (
     WhileInNest,
 )
 from tripcount.affine.lin import Cond, Lin, Var, cond_vars, conj, lin_vars, negate, var
-from tripcount.affine.loops import _detail, _loop_var_guess, loop_header
+from tripcount.affine.loops import loop_header, loop_var_guess
 from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
 from tripcount.affine.walkctx import _Body, _Ctx, _Resolver
 from tripcount.affine.writes import (
-    _find_jumps,
-    _find_var_write,
     collect_outer_writes,
     collect_writes,
+    find_jumps,
+    find_var_write,
     walk_exprs,
 )
 from tripcount.ctable import base_type, is_floating_type, type_size
@@ -159,15 +159,15 @@ class _NestBuilder:
                 w.unparsed = [w.unparsed[k] for k in keep]
                 w.unparsed_at = [w.unparsed_at[k] for k in keep]
         # After a return or goto nothing later in the nest is certain: all of it is unknown.
-        jumps = _find_jumps(first, {"return", "goto"}, into_loops=True)
+        jumps = find_jumps(first, {"return", "goto"}, into_loops=True)
         if jumps and unknown is None:
             j = jumps[0]
             if isinstance(j, ir.Jump):
                 kind = j.kind
             else:
                 kind = "return" if re.search(r"\breturn\b", getattr(j, "text", "")) else "goto"
-            label = loop_label(_loop_var_guess(first), first.header)
-            unknown = self.diag(JumpInNest, j.span, kind=kind, pos=_pos(j.span), loop=label)
+            label = loop_label(loop_var_guess(first), first.header)
+            unknown = self.diag(JumpInNest, j.span, kind=kind, pos=span_pos(j.span), loop=label)
         self.walk(first, _Ctx((), (), unknown, {}, _Body()))
         return self.finish()
 
@@ -184,17 +184,17 @@ class _NestBuilder:
             kind = "while" if isinstance(s, ir.While) else "do"
             d = ctx.unknown
             if d is None:
-                d = self.diag(WhileInNest, s.span, kind=kind, pos=_pos(s.span), loop=self.loop_name(ctx))
+                d = self.diag(WhileInNest, s.span, kind=kind, pos=span_pos(s.span), loop=self.loop_name(ctx))
             # break/continue inside belong to this loop, not to ours
             inner = _Ctx(ctx.loops, ctx.guards, d, dict(ctx.env), _Body(foreign=True))
             self.walk(s.body, inner)
         elif isinstance(s, ir.Switch):
             d = ctx.unknown or ctx.body.dead
             if d is None:
-                d = self.diag(SwitchInNest, s.span, pos=_pos(s.span))
-            if ctx.body.dead is None and _find_jumps(s.body, {"continue"}, into_loops=False):
+                d = self.diag(SwitchInNest, s.span, pos=span_pos(s.span))
+            if ctx.body.dead is None and find_jumps(s.body, {"continue"}, into_loops=False):
                 ctx.body.dead = self.diag(
-                    UnmodelledContinue, s.span, pos=_pos(s.span), loop=self.loop_name(ctx)
+                    UnmodelledContinue, s.span, pos=span_pos(s.span), loop=self.loop_name(ctx)
                 )
             self.walk(s.body, _Ctx(ctx.loops, ctx.guards, d, dict(ctx.env), ctx.body))
         elif isinstance(s, ir.Labeled):
@@ -204,7 +204,7 @@ class _NestBuilder:
                 if ctx.unknown is not None:
                     if ctx.body.dead is None:
                         ctx.body.dead = self.diag(
-                            UnmodelledContinue, s.span, pos=_pos(s.span), loop=self.loop_name(ctx)
+                            UnmodelledContinue, s.span, pos=span_pos(s.span), loop=self.loop_name(ctx)
                         )
                 else:
                     ctx.body.kills.append(conj(list(ctx.guards)))
@@ -214,9 +214,9 @@ class _NestBuilder:
             self.add_stmt(s, ctx, s.text, accesses=False)
         elif isinstance(s, ir.Unparsed):
             reason = f" ({s.reason})" if s.reason else ""
-            self.diag(UnreadStatement, s.span, pos=_pos(s.span), reason=reason)
+            self.diag(UnreadStatement, s.span, pos=span_pos(s.span), reason=reason)
             if re.search(r"\bcontinue\b", s.text) and ctx.body.dead is None:
-                ctx.body.dead = self.diag(UnmodelledContinue, s.span, pos=_pos(s.span), loop=self.loop_name(ctx))
+                ctx.body.dead = self.diag(UnmodelledContinue, s.span, pos=span_pos(s.span), loop=self.loop_name(ctx))
             self.add_stmt(s, ctx, s.text, accesses=False)
         elif isinstance(s, ir.Decl):
             for d in s.declarators:
@@ -257,8 +257,8 @@ class _NestBuilder:
                     NonAffineGuard,
                     s.cond.span,
                     text=c_text(s.cond),
-                    pos=_pos(s.cond.span),
-                    detail=_detail(err),
+                    pos=span_pos(s.cond.span),
+                    detail=err.detail,
                 )
             self.walk(s.then, _Ctx(ctx.loops, ctx.guards, d, dict(ctx.env), ctx.body))
             if s.other is not None:
@@ -290,7 +290,7 @@ class _NestBuilder:
         parent = ctx.loops[-1] if ctx.loops else None
         lp = ALoop(
             index=idx,
-            display=_loop_var_guess(s),
+            display=loop_var_guess(s),
             depth=len(ctx.loops),
             parent=parent,
             span=s.span,
@@ -307,13 +307,13 @@ class _NestBuilder:
             env[lp.display] = ("loop", idx)  # the body still refers to this loop's variable
         label = loop_label(lp.display, lp.header)
         if own is None:
-            brk = _find_jumps(s, {"break"}, into_loops=False)
+            brk = find_jumps(s, {"break"}, into_loops=False)
             if brk:
-                own = self.diag(EarlyBreak, brk[0].span, pos=_pos(brk[0].span), loop=label)
+                own = self.diag(EarlyBreak, brk[0].span, pos=span_pos(brk[0].span), loop=label)
         if own is None and not self.cut_refused:  # cut code "writes" every variable: no news there
-            w = _find_var_write(s.body, lp.display)
+            w = find_var_write(s.body, lp.display)
             if w is not None:
-                own = self.diag(LoopVarModified, w, loop=label, var=lp.display, pos=_pos(w))
+                own = self.diag(LoopVarModified, w, loop=label, var=lp.display, pos=span_pos(w))
         if own is not None:
             lp.constraint = None
         lp.refusal = ctx.unknown or ctx.body.dead or own
@@ -370,7 +370,7 @@ class _NestBuilder:
             except NotAffine as err:
                 subs = None
                 if kind != "write" or not any(r is ref and k == "read" for r, k in refs):
-                    self.diag(NonAffineSubscript, ref.span, text=c_text(ref), pos=_pos(ref.span), detail=_detail(err))
+                    self.diag(NonAffineSubscript, ref.span, text=c_text(ref), pos=span_pos(ref.span), detail=err.detail)
             etype, esize, extents = self.elem_info(ref, ctx)
             out.append(AAccess(ref.array, kind, subs, texts, ref.span, etype, esize, extents))
         return out

@@ -57,15 +57,15 @@ def _decl_text(d: ir.Decl) -> str:
     return f"{d.type_name} {', '.join(parts)}"
 
 
-def _pos(span: Span) -> str:
+def span_pos(span: Span) -> str:
     return f"{span.line}:{span.column}"
 
 
 def loop_label(var: str, header: Span) -> str:
     """How messages name a loop: "loop 'for (i ...)' at 12:5"."""
     if var == "?":
-        return f"loop 'for (...)' at {_pos(header)}"
-    return f"loop 'for ({var} ...)' at {_pos(header)}"
+        return f"loop 'for (...)' at {span_pos(header)}"
+    return f"loop 'for ({var} ...)' at {span_pos(header)}"
 
 
 # --------------------------------------------------------------------------

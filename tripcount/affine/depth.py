@@ -6,7 +6,7 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from tripcount import ir
-from tripcount.affine.ctext import _pos
+from tripcount.affine.ctext import span_pos
 from tripcount.affine.diagnostics import ExpressionTooDeep
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend.diagnostics import NestingTooDeep
@@ -41,9 +41,9 @@ class DeepCut:
     def diagnostic(self, path: str | None, in_nest: bool) -> Diagnostic:
         """TC112 for statements, TC220 for an expression."""
         if self.kind == "statement":
-            return NestingTooDeep(self.at, path=path, where=_pos(self.at), limit=MAX_DEPTH)
+            return NestingTooDeep(self.at, path=path, where=span_pos(self.at), limit=MAX_DEPTH)
         effect = "; the nest around it is not counted" if in_nest else ""
-        return ExpressionTooDeep(self.at, path=path, pos=_pos(self.at), limit=MAX_EXPR_LEVEL, effect=effect)
+        return ExpressionTooDeep(self.at, path=path, pos=span_pos(self.at), limit=MAX_EXPR_LEVEL, effect=effect)
 
 
 def is_deep_cut(n: ir.Node) -> bool:

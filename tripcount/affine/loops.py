@@ -44,7 +44,7 @@ from tripcount.affine.lin import (
 )
 from tripcount.affine.nests import ALoop
 from tripcount.affine.walkctx import _Ctx, _Resolver
-from tripcount.affine.writes import _write_target
+from tripcount.affine.writes import write_target
 from tripcount.ctable import base_type, is_floating_type
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import c_text
@@ -72,8 +72,8 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
         init_var, init_expr, var_type = ds[0].name, ds[0].init, s.init.type_name
     elif isinstance(s.init, ir.ExprStmt):
         e = s.init.expr
-        if isinstance(e, ir.Assign) and e.op == "=" and _write_target(e.target):
-            init_var, init_expr = _write_target(e.target), e.value
+        if isinstance(e, ir.Assign) and e.op == "=" and write_target(e.target):
+            init_var, init_expr = write_target(e.target), e.value
         else:
             return b.diag(
                 UnsupportedLoopForm, hdr, loop=label,
@@ -84,7 +84,7 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
     # -- step
     if s.step is None:
         return b.diag(UnsupportedLoopForm, hdr, loop=label, detail="it has no step")
-    st = _parse_step(s.step)
+    st = parse_step(s.step)
     if isinstance(st, str):
         if st == "several":
             return b.diag(
@@ -135,7 +135,7 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
         amt = conv.lin(amount) if amount is not None else const(1)
     except NotAffine as err:
         return b.diag(
-            NonConstantStep, s.step.span, loop=label, step=c_text(s.step), var=v, detail=_detail(err)
+            NonConstantStep, s.step.span, loop=label, step=c_text(s.step), var=v, detail=err.detail
         )
     if not amt.is_const:
         return b.diag(
@@ -205,40 +205,36 @@ def bound_diag(b: _NestBuilder, err: NotAffine, label: str, part: str, whole: ir
         return b.diag(WrittenValueBound, span, loop=label, part=part, name=err.name or c_text(node))
     if err.kind == "float":
         return b.diag(NonAffineBound, span, loop=label, part=part, text=c_text(whole), detail=err.detail)
-    return b.diag(NonAffineBound, span, loop=label, part=part, text=c_text(whole), detail=_detail(err))
+    return b.diag(NonAffineBound, span, loop=label, part=part, text=c_text(whole), detail=err.detail)
 
 # ---- accesses
 
 
-def _detail(err: NotAffine) -> str:
-    return err.detail
-
-
-def _loop_var_guess(s: ir.For) -> str:
+def loop_var_guess(s: ir.For) -> str:
     """The loop variable's name as written (for messages), before the header is checked."""
     if isinstance(s.init, ir.Decl) and s.init.declarators:
         return s.init.declarators[0].name
     if isinstance(s.init, ir.ExprStmt) and isinstance(s.init.expr, ir.Assign):
-        n = _write_target(s.init.expr.target)
+        n = write_target(s.init.expr.target)
         if n:
             return n
-    st = _parse_step(s.step) if s.step is not None else None
+    st = parse_step(s.step) if s.step is not None else None
     if isinstance(st, tuple):
         return st[0]
     return "?"
 
 
-def _parse_step(e: ir.Expr) -> tuple[str, int, ir.Expr | None] | str:
+def parse_step(e: ir.Expr) -> tuple[str, int, ir.Expr | None] | str:
     """(variable, sign, amount expression or None for 1), or a reason string ("several" for commas)."""
     if isinstance(e, ir.Binary) and e.op == ",":
         return "several"
     if isinstance(e, ir.IncDec):
-        n = _write_target(e.target)
+        n = write_target(e.target)
         if n:
             return (n, 1 if e.op == "++" else -1, None)
         return "it does not advance a variable"
     if isinstance(e, ir.Assign):
-        n = _write_target(e.target)
+        n = write_target(e.target)
         if not n:
             return "it does not advance a variable"
         if e.op == "+=":
@@ -247,11 +243,11 @@ def _parse_step(e: ir.Expr) -> tuple[str, int, ir.Expr | None] | str:
             return (n, -1, e.value)
         if e.op == "=" and isinstance(e.value, ir.Binary):
             b = e.value
-            if b.op == "+" and _write_target(b.left) == n:
+            if b.op == "+" and write_target(b.left) == n:
                 return (n, 1, b.right)
-            if b.op == "+" and _write_target(b.right) == n:
+            if b.op == "+" and write_target(b.right) == n:
                 return (n, 1, b.left)
-            if b.op == "-" and _write_target(b.left) == n:
+            if b.op == "-" and write_target(b.left) == n:
                 return (n, -1, b.right)
         return "only additions of a constant are counted"
     return "it is not an increment"

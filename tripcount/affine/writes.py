@@ -21,13 +21,13 @@ def walk_exprs(node: ir.Node) -> Iterator[ir.Expr]:
     return (n for n in ir.walk(node) if isinstance(n, ir.Expr))
 
 
-def _write_target(e: ir.Expr) -> str | None:
+def write_target(e: ir.Expr) -> str | None:
     while isinstance(e, ir.Cast):
         e = e.operand
     return e.name if isinstance(e, ir.Name) else None
 
 
-def _array_target(e: ir.Expr) -> str | None:
+def array_target(e: ir.Expr) -> str | None:
     while isinstance(e, ir.Cast):
         e = e.operand
     if isinstance(e, ir.ArrayRef):
@@ -81,14 +81,14 @@ def collect_writes(node: ir.Node) -> Writes:
             w.unparsed_at.append(n.span)
         if isinstance(n, (ir.Assign, ir.IncDec)):
             t = n.target
-            name = _write_target(t)
+            name = write_target(t)
             if name:
                 w.add(name, n.span)
-            arr = _array_target(t)
+            arr = array_target(t)
             if arr:
                 w.arrays.add(arr)
         elif isinstance(n, ir.Unary) and n.op == "&":
-            name = _write_target(n.operand)
+            name = write_target(n.operand)
             if name:  # its address escapes: it may be written
                 w.add(name, n.span)
             elif isinstance(n.operand, ir.ArrayRef):
@@ -134,9 +134,9 @@ def collect_outer_writes(node: ir.Node) -> Writes:
             return
         name = None
         if isinstance(n, (ir.Assign, ir.IncDec)):
-            name = _write_target(n.target)
+            name = write_target(n.target)
         elif isinstance(n, ir.Unary) and n.op == "&":
-            name = _write_target(n.operand)
+            name = write_target(n.operand)
         if name and name not in shadow:
             w.add(name, n.span)
         for c in ir.children(n):
@@ -146,7 +146,7 @@ def collect_outer_writes(node: ir.Node) -> Writes:
     return w
 
 
-def _find_jumps(node: ir.Node, kinds: set[str], into_loops: bool) -> list[ir.Node]:
+def find_jumps(node: ir.Node, kinds: set[str], into_loops: bool) -> list[ir.Node]:
     """Jump statements of the given kinds; `into_loops=False` stops at nested loops/switches."""
     loops = (ir.For, ir.While, ir.DoWhile, ir.Switch)
 
@@ -168,7 +168,7 @@ def _find_jumps(node: ir.Node, kinds: set[str], into_loops: bool) -> list[ir.Nod
     return out
 
 
-def _find_var_write(body: ir.Stmt, name: str) -> Span | None:
+def find_var_write(body: ir.Stmt, name: str) -> Span | None:
     """Where the body assigns the variable `name` (respecting `for (int name ...)` shadowing)."""
 
     def go(n: ir.Node) -> Span | None:
@@ -190,9 +190,9 @@ def _find_var_write(body: ir.Stmt, name: str) -> Span | None:
             return None
         if isinstance(n, ir.Unparsed) and unparsed_writes(n.text, name):
             return n.span
-        if isinstance(n, (ir.Assign, ir.IncDec)) and _write_target(n.target) == name:
+        if isinstance(n, (ir.Assign, ir.IncDec)) and write_target(n.target) == name:
             return n.span
-        if isinstance(n, ir.Unary) and n.op == "&" and _write_target(n.operand) == name:
+        if isinstance(n, ir.Unary) and n.op == "&" and write_target(n.operand) == name:
             return n.span
         for c in ir.children(n):
             r = go(c)

@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING
 from tripcount import ir
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.lexer import Tok
-from tripcount.frontend.scanner import _skip_parens, _split_commas
+from tripcount.frontend.scanner import skip_parens, split_commas
 from tripcount.frontend.vocab import OMP_DIRECTIVES, SCHEDULE_KINDS
 
 if TYPE_CHECKING:
@@ -41,12 +41,12 @@ def omp_clauses(up: UnitParser, p: Tok) -> ir.OmpClauses | None:
         args: list[Tok] = []
         k += 1
         if k < len(toks) and toks[k].value == "(":
-            end = _skip_parens(toks, k)
+            end = skip_parens(toks, k)
             args = toks[k + 1:end - 1]
             k = end
         w = d.where(*up.smap.position(t.start))
         if name == "schedule":
-            parts = _split_commas(args)
+            parts = split_commas(args)
             kind_toks = parts[0] if parts else []
             kinds = [x.value for x in kind_toks if x.kind == "id"]
             if not kinds or kinds[-1] not in SCHEDULE_KINDS:

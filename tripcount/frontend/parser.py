@@ -33,19 +33,19 @@ from tripcount.frontend.preprocess import Preprocessed
 from tripcount.frontend.recovery import Recovery
 from tripcount.frontend.scanner import (
     Scanner,
-    _match,
-    _name_before_paren,
-    _new_token,
-    _skip_brackets,
-    _skip_parens,
-    _split_commas,
-    _strip_attributes,
+    match_brackets,
+    name_before_paren,
+    new_token,
+    skip_brackets,
+    skip_parens,
+    split_commas,
+    strip_attributes,
 )
 from tripcount.frontend.vocab import (
-    _FLOAT_RE,
-    _INT_RE,
     DROP_WORDS,
+    FLOAT_RE,
     GRAMMAR_TOKEN_BUDGET,
+    INT_RE,
     KEYWORD_ALIASES,
     KNOWN_TYPES,
     LARGE_FILE_TOKENS,
@@ -113,13 +113,13 @@ class UnitParser(Scanner, Recovery):
                     i += 1
                     continue
                 elif v in SKIP_WITH_PARENS or (v == "_Pragma" and i + 1 < n and toks[i + 1].value == "("):
-                    i = _skip_parens(toks, i + 1)
+                    i = skip_parens(toks, i + 1)
                     continue
                 ty = terms.get(v, "?")
             elif k == "num":
-                if _INT_RE.match(v):
+                if INT_RE.match(v):
                     ty = "INT_LIT"
-                elif _FLOAT_RE.match(v):
+                elif FLOAT_RE.match(v):
                     ty = "FLOAT_LIT"
                 else:
                     ty = "BAD"
@@ -142,7 +142,7 @@ class UnitParser(Scanner, Recovery):
         li = 0
         last_start = last_end = -1
         pos = (0, 0, 0, 0)
-        new = _new_token
+        new = new_token
         out: list[Token] = []
         append = out.append
         for ty, v, t in base:
@@ -236,7 +236,7 @@ class UnitParser(Scanner, Recovery):
                 except Exception as exc:  # a bug must cost one function, not the file
                     span = self.smap.span(toks[a].start, toks[c].end)
                     self.diags.append(d.FunctionSkipped(
-                        span, name=_name_before_paren(toks[a:b]),
+                        span, name=name_before_paren(toks[a:b]),
                         where=d.where(span.line, span.column),
                         reason=f"internal error ({type(exc).__name__}: {exc}); please report it"))
                     continue
@@ -304,13 +304,13 @@ class UnitParser(Scanner, Recovery):
         return ir.Function(fspan, name, ret, params, body)
 
     def _header(self, toks: list[Tok]) -> tuple[str, str, tuple[ir.Param, ...]]:
-        toks = _strip_attributes(toks)
+        toks = strip_attributes(toks)
         # the parameter list is the first parenthesis at depth 0 after a name
         k = next((i for i, t in enumerate(toks) if t.value == "(" and i > 0
                   and toks[i - 1].kind == "id"), None)
         if k is None:
             raise ParseFailure("cannot find the function name")
-        end = _skip_parens(toks, k)
+        end = skip_parens(toks, k)
         name = toks[k - 1].value
         ret_words: list[str] = []
         stars = 0
@@ -324,7 +324,7 @@ class UnitParser(Scanner, Recovery):
         if stars:
             ret += " " + "*" * stars
         params: list[ir.Param] = []
-        parts = _split_commas(toks[k + 1:end - 1])
+        parts = split_commas(toks[k + 1:end - 1])
         if len(parts) == 1 and [t.value for t in parts[0]] == ["void"]:
             parts = []
         for part in parts:
@@ -372,7 +372,7 @@ class UnitParser(Scanner, Recovery):
         while i < len(toks):
             v = vals[i]
             if v == "[":
-                end = _skip_brackets(toks, i)
+                end = skip_brackets(toks, i)
                 inner = [t for t in toks[i + 1:end - 1]
                          if KEYWORD_ALIASES.get(t.value, t.value) not in QUALIFIERS | {"static"}]
                 if not inner or (len(inner) == 1 and inner[0].value == "*"):
@@ -405,7 +405,7 @@ class UnitParser(Scanner, Recovery):
         span = cover(first, last)
         whole = False
         if first.type == self.LBRACE and last.type == self.RBRACE:
-            m = _match(lt, self._openers(), self._closers())
+            m = match_brackets(lt, self._openers(), self._closers())
             whole = m[0] == len(lt) - 1
         if not whole:
             lb = Token(self.LBRACE, "{", first.start_pos, first.line, first.column, first.line,

@@ -13,7 +13,7 @@ from tripcount import ir
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.build import cover
 from tripcount.frontend.lalr import ParseFailure
-from tripcount.frontend.scanner import _match
+from tripcount.frontend.scanner import match_brackets
 from tripcount.frontend.vocab import MAX_RECOVERY_DEPTH
 
 
@@ -32,7 +32,7 @@ class Recovery:
             return self._parse(lt, "body_start")
         except ParseFailure as exc:
             failure = exc
-        self._match = _match(lt, self._openers(), self._closers())
+        self._match = match_brackets(lt, self._openers(), self._closers())
         self._index = {id(t): k for k, t in enumerate(lt)}
         at = self._index.get(id(failure.token)) if failure.token is not None else None
         known = (at, failure.reason) if at is not None else None

@@ -12,7 +12,7 @@ from tripcount.frontend.vocab import DROP_WORDS, SKIP_WITH_PARENS, SPEC_WORDS
 
 
 # ==================================================================== helpers
-def _name_before_paren(toks: list[Tok]) -> str:
+def name_before_paren(toks: list[Tok]) -> str:
     for k in range(1, len(toks)):
         if toks[k].value == "(" and toks[k - 1].kind == "id":
             return toks[k - 1].value
@@ -22,7 +22,7 @@ def _name_before_paren(toks: list[Tok]) -> str:
 _str_new = str.__new__
 
 
-def _new_token(cls: type, ty: str, value: str, start: int, line: int, column: int,
+def new_token(cls: type, ty: str, value: str, start: int, line: int, column: int,
                end_line: int, end_column: int, end: int) -> Token:
     """A lark Token, made without lark's argument-checking constructor (it is per token)."""
     tok = _str_new(cls, value)
@@ -37,7 +37,7 @@ def _new_token(cls: type, ty: str, value: str, start: int, line: int, column: in
     return tok
 
 
-def _skip_parens(toks: list, k: int, limit: int | None = None) -> int:
+def skip_parens(toks: list, k: int, limit: int | None = None) -> int:
     """Index past the parenthesised group opening at `k` (or `k` if it is not '(').
 
     The search stops at `limit` (default: the end), which it returns when the
@@ -58,7 +58,7 @@ def _skip_parens(toks: list, k: int, limit: int | None = None) -> int:
     return end
 
 
-def _skip_brackets(toks: list[Tok], k: int) -> int:
+def skip_brackets(toks: list[Tok], k: int) -> int:
     depth = 0
     for j in range(k, len(toks)):
         v = toks[j].value
@@ -71,7 +71,7 @@ def _skip_brackets(toks: list[Tok], k: int) -> int:
     return len(toks)
 
 
-def _split_commas(toks: list[Tok]) -> list[list[Tok]]:
+def split_commas(toks: list[Tok]) -> list[list[Tok]]:
     """Split at commas outside parentheses/brackets/braces."""
     parts: list[list[Tok]] = [[]]
     depth = 0
@@ -91,13 +91,13 @@ def _split_commas(toks: list[Tok]) -> list[list[Tok]]:
     return parts
 
 
-def _strip_attributes(toks: list[Tok]) -> list[Tok]:
+def strip_attributes(toks: list[Tok]) -> list[Tok]:
     out: list[Tok] = []
     i = 0
     while i < len(toks):
         v = toks[i].value
         if toks[i].kind == "id" and v in SKIP_WITH_PARENS:
-            i = _skip_parens(toks, i + 1)
+            i = skip_parens(toks, i + 1)
             continue
         if toks[i].kind == "id" and v in DROP_WORDS:
             i += 1
@@ -120,7 +120,7 @@ def _brace_match(toks: list[Tok]) -> list[int]:
     return match
 
 
-def _match(L: list[Token], openers: dict[str, str], closers: set[str]) -> list[int]:
+def match_brackets(L: list[Token], openers: dict[str, str], closers: set[str]) -> list[int]:
     """Index of the matching closer for each opener in L (-1 when there is none)."""
     match = [-1] * len(L)
     stack: list[int] = []

@@ -40,7 +40,7 @@ OMP_DIRECTIVES = {("parallel",), ("parallel", "for"), ("parallel", "for", "simd"
                   ("for",), ("for", "simd")}
 SCHEDULE_KINDS = {"static", "dynamic", "guided", "auto", "runtime"}
 
-_FLOAT_RE = re.compile(
+FLOAT_RE = re.compile(
     r"(?:[0-9]+\.[0-9]*|\.[0-9]+|[0-9]+(?=[eE]))(?:[eE][+-]?[0-9]+)?[fFlL]?$"
     r"|0[xX](?:[0-9a-fA-F]+\.?[0-9a-fA-F]*|\.[0-9a-fA-F]+)[pP][+-]?[0-9]+[fFlL]?$")
-_INT_RE = re.compile(r"(?:0[xX][0-9a-fA-F]+|0[bB][01]+|[0-9]+)(?:[uU](?:ll|LL|[lLzZ])?|(?:ll|LL|[lLzZ])[uU]?)?$")
+INT_RE = re.compile(r"(?:0[xX][0-9a-fA-F]+|0[bB][01]+|[0-9]+)(?:[uU](?:ll|LL|[lLzZ])?|(?:ll|LL|[lLzZ])[uU]?)?$")
