@@ -1,4 +1,6 @@
-# The module graph of the tripcount package has no import cycles.
+# The module graph of the tripcount package has no import cycles, and no
+# stage imports a later one (source -> front end -> affine nests -> integer
+# sets -> engine -> analyses -> reporters -> driver -> entry points).
 #
 # The graph is built from the sources (ast, nothing is imported): an edge for
 # every `import` and `from ... import` of a tripcount module, at module level
@@ -25,6 +27,31 @@ KNOWN_CYCLES: list[frozenset[str]] = [
     # the engine's quasi-polynomials and their formatting
     frozenset({"tripcount.engine.qpoly", "tripcount.engine.fmt", "tripcount.engine.readable"}),
 ]
+
+
+# Rank of each stage (the first part of the module name below tripcount); a
+# module may import modules of its own rank or lower. Rank 0 holds what every
+# stage may use.
+STAGES: list[set[str]] = [
+    {"", "ir", "diagnostics", "ctable", "paths", "options", "config", "sources", "formula"},
+    {"frontend"},
+    {"affine"},
+    {"model"},
+    {"engine", "guard"},
+    {"analysis"},
+    {"report"},
+    {"pipeline"},
+    {"cache"},
+    {"check", "cli", "lsp", "__main__"},
+]
+
+
+def rank(module: str) -> int:
+    stage = module.split(".")[1] if "." in module else ""
+    for k, names in enumerate(STAGES):
+        if stage in names:
+            return k
+    raise AssertionError(f"{module}: add its stage to STAGES in tests/test_imports.py")
 
 
 def module_name(path: Path) -> str:
@@ -116,3 +143,13 @@ def test_no_new_import_cycles():
     found = cycles(graph())
     new = [sorted(c) for c in found if not any(c <= k for k in KNOWN_CYCLES)]
     assert not new, f"import cycles: {new}"
+
+
+def test_no_stage_imports_a_later_one():
+    g = graph()
+    back = sorted(f"{a} -> {b}" for a, bs in g.items() for b in bs if rank(b) > rank(a))
+    assert not back, f"imports of a later stage: {back}"
+
+
+def test_stage_check_can_fail():
+    assert rank("tripcount.report.text") > rank("tripcount.analysis.counts") > rank("tripcount.ir")
