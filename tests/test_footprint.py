@@ -522,7 +522,7 @@ def test_engine_limit_falls_back_to_values(monkeypatch):
     def refuse(*args, **kwargs):
         raise engine.EngineLimit("test limit")
 
-    monkeypatch.setattr(footprint.engine, "count", refuse)
+    monkeypatch.setattr(engine, "count", refuse)
     r = run(MATMUL, Options(at={"N": 6}), with_counts=False)
     ws = levels(r)
     assert ws["i"].whole.elements.value == 108 and ws["i"].whole.elements.formula is None

@@ -89,12 +89,7 @@ from tripcount.affine.lin import (
 )
 from tripcount.affine.loops import parse_step
 from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
-from tripcount.ctable import (  # noqa: F401  (re-exported: the affine stage's view of C types)
-    base_type,
-    is_floating_type,
-    is_integer_type,
-    type_size,
-)
+from tripcount.ctable import base_type, is_floating_type, is_integer_type, type_size
 
 __all__ = [
     "ArrayDependentBound",

@@ -37,7 +37,6 @@
 # outer variables), scopes (footprints of statement sets), worst (worst case
 # over outer variables), fit (cache fit), intensity, table (text), run (entry).
 
-from tripcount import engine  # noqa: F401  (tests replace engine.count to simulate a refusing engine)
 from tripcount.analysis.footprint.intensity import asymptotic_ratio, intensity
 from tripcount.analysis.footprint.isets import (
     _SIMPLIFY_MAX_BASIC,
