@@ -1,7 +1,8 @@
 # The front end: C source text -> ir.TranslationUnit.
 #
 # preprocess.py (comments, continuations, directives, macros; positions kept
-# in the original file; lexer.py makes the tokens, ppexpr.py reads #if) ->
+# in the original file; lexer.py makes the tokens, includes.py reads headers,
+# ppexpr.py evaluates #if) ->
 # parser.py (one file: scanner.py cuts it into functions and declarations,
 # lalr.py runs the grammar of grammar/loops.lark, recovery.py rebuilds what
 # does not parse, omp.py reads OpenMP clauses, vocab.py holds the words) ->
