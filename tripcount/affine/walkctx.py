@@ -14,10 +14,6 @@ if TYPE_CHECKING:
     from tripcount.affine.build import _NestBuilder
 
 
-# --------------------------------------------------------------------------
-# Building one nest
-
-
 @dataclass
 class _Body:
     """State of one loop body during the walk: conditions of `continue`s seen so far."""

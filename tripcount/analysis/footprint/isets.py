@@ -170,7 +170,7 @@ def line_map(acc: Access, elem: int, line: int) -> tuple[isl.Map, str]:
 
 
 # --------------------------------------------------------------------------
-# Counting with the engine, with fallbacks
+# Values of the fixed loop variables at given sizes
 
 
 def _outer_part(dom: isl.Set, fixed: Sequence[str], sizes: Mapping[str, int]) -> isl.Set | None:

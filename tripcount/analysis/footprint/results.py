@@ -314,7 +314,3 @@ class NestFootprint:
     def text_lines(self) -> list[str]:
         """A compact per-level table: loop, working set formula, value at the sizes, cache that holds it."""
         return text_table(self)
-
-
-# --------------------------------------------------------------------------
-# isl helpers
