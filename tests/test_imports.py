@@ -40,7 +40,7 @@ STAGES: list[set[str]] = [
     {"engine", "guard"},
     {"analysis"},
     {"report"},
-    {"pipeline"},
+    {"pipeline", "compdb"},
     {"cache"},
     {"check", "cli", "lsp", "__main__"},
 ]
