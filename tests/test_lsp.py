@@ -16,6 +16,7 @@ import pytest
 from lspwire import WireClient, message
 
 from tripcount import lsp
+from tripcount.analysis.summary import NestSummary
 
 ROOT = Path(__file__).resolve().parent.parent
 pytest_lsp = pytest.importorskip("pytest_lsp")
@@ -43,7 +44,7 @@ def test_positions_round_trip_with_astral_characters():
 
 
 # --------------------------------------------------------------------------
-# Hover and hints on JSON data
+# Hover and hints on typed summaries of our own (NestSummary.to_json shape)
 
 
 def _count(expr, value=None, when="true", degree=1):
@@ -63,14 +64,14 @@ NEST = {
     "loops": [
         {"index": 0, "var": "i", "depth": 0, "parent": None, "line": 2, "column": 5, "end_line": 4,
          "end_column": 26, "step": 1,
-         "parallel": {"directive": "parallel for", "schedule": "static", "chunk": None, "threads": 4,
-                      "imbalance": 1.75, "efficiency": 0.57},
+         "balance": {"directive": "parallel for", "schedule": "static", "chunk": None, "threads": 4,
+                     "imbalance": "7/4"},
          "trips": _count("N", 10, "N >= 1"), "trips_per_entry": _count("N", 10, "N >= 1")},
         {"index": 1, "var": "j", "depth": 1, "parent": 0, "line": 3, "column": 9, "end_line": 4,
          "end_column": 26, "step": 1, "parallel": None,
          "trips": _count("N*(N - 1)/2", 45, degree=2), "trips_per_entry": _count("i"),
          "working_set": {"scope": "all iterations of loop 'j'", "bytes": _count("8*i + 8"),
-                         "cache_fit": {"occupancy_bytes": 128}}},
+                         "occupancy_bytes": 128, "estimate": "exact"}},
     ],
     "statements": [{"id": "S1", "line": 4, "column": 13, "end_line": 4, "end_column": 26,
                     "text": "A[i] += A[j]", "loops": [0, 1],
@@ -78,9 +79,11 @@ NEST = {
 }
 
 
-def analysis():
-    return lsp.Analysis(text=TEXT, result={"path": "f.c", "nests": [NEST], "diagnostics": []},
-                        at={"N": 10}, levels={"L1": 32768, "L2": 1 << 20}, lines=TEXT.split("\n"))
+def analysis(nest=None):
+    nest = nest or NEST
+    return lsp.Analysis(text=TEXT, result={"path": "f.c", "nests": [], "diagnostics": []},
+                        nests=[NestSummary.from_json(nest)], at={"N": 10}, levels={"L1": 32768, "L2": 1 << 20},
+                        lines=TEXT.split("\n"))
 
 
 def test_hover_on_statement_and_loop_headers():
@@ -93,6 +96,20 @@ def test_hover_on_statement_and_loop_headers():
     md = lsp.hover_at(a, 2, 5)
     assert "loop `i`" in md and "imbalance 1.75" in md and "4 threads" in md and "degree 2" in md
     assert lsp.hover_at(a, 1, 3) is None and lsp.hover_at(a, 5, 1) is None
+
+
+def test_hover_says_when_a_working_set_is_a_bound():
+    # the flag travels with the typed result: an upper bound is shown as one, never as the value
+    import copy
+
+    nest = copy.deepcopy(NEST)
+    nest["loops"][1]["working_set"].update(occupancy_bytes=16 << 20, estimate="upper_bound",
+                                           reason="the footprint over all values of i")
+    md = lsp.hover_at(analysis(nest), 3, 12)
+    assert "at most 16 MiB" in md and "upper bound" in md and "the footprint over all values of i" in md
+    nest["loops"][1]["working_set"].update(occupancy_bytes=128, estimate="lower_bound", reason="B is left out")
+    md = lsp.hover_at(analysis(nest), 3, 12)
+    assert "at least 128 B" in md and "lower bound" in md and "fits L1" not in md
 
 
 def test_inlay_hints_after_headers():

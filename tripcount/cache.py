@@ -6,7 +6,9 @@
 # Options.cache_key():
 #   * "file": the exact file text -> the whole file JSON (no parsing at all
 #     when nothing changed);
-#   * "nest": one nest -> its JSON (jsonout.nest_json form) and diagnostics.
+#   * "nest": one nest -> its JSON (jsonout.nest_json form), its typed
+#     summary (analysis.summary.NestSummary.to_json: what the gate and the
+#     language server read) and its diagnostics.
 #     The key is a whitespace- and comment-insensitive hash of the tokens of
 #     the nest, of the enclosing function's text before it (parameters,
 #     declarations, pragmas) and of the file's text outside all functions
@@ -637,11 +639,24 @@ def _file_key(text: str, options: Options) -> str:
 
 
 def analyze_file_uncached(path: str, text: str, options: Options) -> dict[str, Any]:
-    """The file JSON straight from the pipeline (no cache)."""
+    """The file JSON straight from the pipeline (no cache), with the nests' summaries."""
     from tripcount.pipeline import analyze_text
-    from tripcount.report.jsonout import file_json
 
-    return file_json(analyze_text(text, path, options))
+    fr = analyze_text(text, path, options)
+    payloads = [nest_payload(nr, options) for nr in fr.nests]
+    return {"path": fr.path, "nests": [p[0] for p in payloads], "summaries": [p[1] for p in payloads],
+            "diagnostics": [d.to_dict() for d in fr.all_diagnostics()]}
+
+
+def nest_payload(nr: Any, options: Options) -> tuple[dict[str, Any], dict[str, Any]]:
+    """A nest result's report JSON and typed summary JSON (formulas printed alike in both)."""
+    from tripcount.engine.readable import plain_forms
+    from tripcount.report.jsonout import nest_json
+
+    if options.gate:  # the gate prints formulas without the search for their most readable form
+        with plain_forms():
+            return nest_json(nr), nr.summary().to_json()
+    return nest_json(nr), nr.summary().to_json()
 
 
 def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool = True,
@@ -668,9 +683,10 @@ def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool 
     if result is None:
         result = _compute(layout, path, text, options, store)
         _prune_once(store)
-    out = {"path": path, "nests": result[0], "diagnostics": _sort_diags(result[1])}
-    if result[2]:  # every part is cacheable
-        store.put("file", fkey, {"file": {"nests": out["nests"], "diagnostics": out["diagnostics"]}})
+    out = {"path": path, "nests": result[0], "summaries": result[1], "diagnostics": _sort_diags(result[2])}
+    if result[3]:  # every part is cacheable
+        store.put("file", fkey, {"file": {"nests": out["nests"], "summaries": out["summaries"],
+                                          "diagnostics": out["diagnostics"]}})
     return out
 
 
@@ -685,7 +701,7 @@ def _prune_once(store: Store) -> None:
         store.prune()
 
 
-def _assemble(layout: Layout, store: Store) -> tuple[list, list, bool] | None:
+def _assemble(layout: Layout, store: Store) -> tuple[list, list, list, bool] | None:
     """The file's nests and diagnostics from cache entries alone, or None on any miss."""
     toks = layout.tokens
     entries = []
@@ -704,11 +720,13 @@ def _assemble(layout: Layout, store: Store) -> tuple[list, list, bool] | None:
     if out_entry is None:
         return None
     nests: list[dict[str, Any]] = []
+    summaries: list[dict[str, Any]] = []
     diags: list[dict[str, Any]] = list(layout.parse_diagnostics)
     for s, e in entries:
         remap = _entry_remap(e, toks, s.anchors, layout.outside)
         if e.get("nest") is not None:
             nests.append(_slices_in(_remap_json(e["nest"], remap), toks))
+            summaries.append(_slices_in(_remap_json(e["summary"], remap), toks))
         diags.extend(_remap_json(e.get("diagnostics", []), remap))
     for a, b, e in fn_entries:
         i, j = toks.range(a, b)
@@ -716,7 +734,7 @@ def _assemble(layout: Layout, store: Store) -> tuple[list, list, bool] | None:
         diags.extend(_remap_json(e.get("diagnostics", []), remap))
     remap = _Remap(out_entry.get("anchors", []), toks, layout.outside)
     diags.extend(_remap_json(out_entry.get("diagnostics", []), remap))
-    return nests, diags, True
+    return nests, summaries, diags, True
 
 
 ENV_JOBS = "TRIPCOUNT_JOBS"
@@ -731,17 +749,19 @@ def jobs() -> int:
         return max(1, min(os.cpu_count() or 1, 4))
 
 
-def _analyze_one(nest: Any, options: Options) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+_Payload = tuple[dict[str, Any], dict[str, Any], list[dict[str, Any]]]  # nest JSON, summary JSON, diagnostics
+
+
+def _analyze_one(nest: Any, options: Options) -> _Payload:
     from tripcount.pipeline import analyze_nest
-    from tripcount.report.jsonout import nest_json
 
     nr = analyze_nest(nest, options)
-    return nest_json(nr, readable=not options.gate), [d.to_dict() for d in nr.diagnostics]
+    return (*nest_payload(nr, options), [d.to_dict() for d in nr.diagnostics])
 
 
-def _forked_worker(group: list[int]) -> list[tuple[int, tuple[dict[str, Any], list[dict[str, Any]]] | None]]:
+def _forked_worker(group: list[int]) -> list[tuple[int, _Payload | None]]:
     assert _FORKED is not None
-    out: list[tuple[int, tuple[dict[str, Any], list[dict[str, Any]]] | None]] = []
+    out: list[tuple[int, _Payload | None]] = []
     for k in group:
         try:
             out.append((k, _analyze_one(_FORKED[0][k], _FORKED[1])))
@@ -771,7 +791,7 @@ def _work_groups(nests: list[Any], todo: list[int]) -> list[list[int]]:
     return sorted(groups.values(), key=guess, reverse=True)
 
 
-def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[int, tuple[dict, list]]:
+def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[int, _Payload]:
     """Analyze the nests at indices `todo`, on several processes when it pays.
 
     Workers are forked after the model is built, so they inherit the nests
@@ -780,7 +800,7 @@ def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[
     never from the language server, and never off Linux-like systems.
     """
     global _FORKED
-    out: dict[int, tuple[dict, list]] = {}
+    out: dict[int, _Payload] = {}
     n_jobs = min(jobs(), len(todo))
     import threading
 
@@ -818,7 +838,7 @@ def _depends_on_time(diag: dict[str, Any]) -> bool:
 
 
 def _compute(layout: Layout, path: str, text: str, options: Options,
-             store: Store) -> tuple[list, list, bool]:
+             store: Store) -> tuple[list, list, list, bool]:
     """Analyze what the cache lacks; write the new entries."""
     from tripcount.model import build_nests
 
@@ -827,9 +847,10 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
     by_pos = {(s.line, s.column): s for s in layout.sites}
     cacheable = True
     nest_out: list[dict[str, Any]] = []
+    summary_out: list[dict[str, Any]] = []
     diags: list[dict[str, Any]] = list(layout.parse_diagnostics)
-    per_site: dict[str, tuple[dict[str, Any] | None, list[dict[str, Any]]]] = {}
-    found: list[tuple[Site | None, dict[str, Any] | None, list[dict[str, Any]]] | None] = []
+    per_site: set[str] = set()
+    found: list[tuple[Site | None, dict[str, Any] | None, dict[str, Any] | None, list[dict[str, Any]]] | None] = []
     todo: list[int] = []
     for k, nest in enumerate(nests):
         site = by_pos.get((nest.span.line, nest.span.column))
@@ -839,27 +860,31 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
             todo.append(k)
             continue
         remap = _entry_remap(cached, toks, site.anchors, layout.outside)
-        nj = _slices_in(_remap_json(cached["nest"], remap), toks) if cached.get("nest") is not None else None
-        found.append((site, nj, _remap_json(cached.get("diagnostics", []), remap)))
-    for k, (nj, nd) in _analyze_nests(nests, todo, options).items():
+        nj = sj = None
+        if cached.get("nest") is not None:
+            nj = _slices_in(_remap_json(cached["nest"], remap), toks)
+            sj = _slices_in(_remap_json(cached["summary"], remap), toks)
+        found.append((site, nj, sj, _remap_json(cached.get("diagnostics", []), remap)))
+    for k, (nj, sj, nd) in _analyze_nests(nests, todo, options).items():
         site = by_pos.get((nests[k].span.line, nests[k].span.column))
-        found[k] = (site, nj, nd)
+        found[k] = (site, nj, sj, nd)
         if site is None:
             cacheable = False  # a nest the front end did not show us: no key to store it under
         elif not any(_depends_on_time(d) for d in nd):
             store.put("nest", site.key, {
-                "nest": _slices_out(nj, toks), "diagnostics": nd,
-                **_entry_anchors(toks, site.anchors, layout.outside, site.lo, site.stop, [nj, nd])})
+                "nest": _slices_out(nj, toks), "summary": _slices_out(sj, toks), "diagnostics": nd,
+                **_entry_anchors(toks, site.anchors, layout.outside, site.lo, site.stop, [nj, sj, nd])})
         else:
             cacheable = False
     for entry in found:
         assert entry is not None
-        site, nj, nd = entry
-        if nj is not None:
+        site, nj, sj, nd = entry
+        if nj is not None and sj is not None:
             nest_out.append(nj)
+            summary_out.append(sj)
         diags.extend(nd)
         if site is not None:
-            per_site[site.key] = (nj, nd)
+            per_site.add(site.key)
     # Loops the model made no nest of still get an entry, so that the warm path sees no miss.
     for s in layout.sites:
         if s.key not in per_site and store.get("nest", s.key) is None:
@@ -886,7 +911,7 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
                               **_entry_anchors(toks, list(range(i, j)), layout.outside, fa, fb, fn_diags[k])})
     store.put("out", layout.outside_key, {"diagnostics": out_diags,
                                           "anchors": _anchor_positions(toks, layout.outside)})
-    return nest_out, diags, cacheable
+    return nest_out, summary_out, diags, cacheable
 
 
 # --------------------------------------------------------------------------

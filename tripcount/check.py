@@ -34,6 +34,14 @@ from fractions import Fraction
 from typing import Any, TextIO
 
 from tripcount.analysis.caches import fmt_bytes
+from tripcount.analysis.summary import (
+    EXACT,
+    LOWER,
+    UPPER,
+    LoopSummary,
+    NestSummary,
+    WorkingSetSummary,
+)
 from tripcount.config import Config, ConfigError, load_config, parse_bytes
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
@@ -230,86 +238,22 @@ def _is_level(text: str) -> bool:
 
 
 # --------------------------------------------------------------------------
-# Reading quantities out of the nest JSON
+# Readings of the typed nest summaries
 
 
-def nest_work(nest: dict[str, Any]) -> tuple[int | None, list[str], str]:
-    """Degree of the work of a nest, the leading terms of its dominant statements, and who.
-
-    The degree is the highest degree of any statement count; the leading term
-    of the whole nest is the sum of the leading terms of the statements of
-    that degree (the other statements grow more slowly).
-    """
-    best: int | None = None
-    leads: list[tuple[str, str]] = []
-    for s in nest.get("statements", []):
-        c = s.get("count") or {}
-        d = c.get("degree")
-        if not isinstance(d, int) or c.get("pieces") is None:
-            continue
-        if best is None or d > best:
-            best, leads = d, []
-        if d == best:
-            leads.append((s.get("id", "?"), str(c.get("leading") or "")))
-    who = leads[0][0] if len(leads) == 1 else "statements " + ", ".join(i for i, _ in leads)
-    return best, [lead for _, lead in leads if lead], who
+def worst_innermost(nest: NestSummary) -> tuple[LoopSummary, WorkingSetSummary] | None:
+    """The innermost loop with the largest working set value (exact or bound), and that working set."""
+    best: tuple[LoopSummary, WorkingSetSummary] | None = None
+    for lp in nest.innermost_loops():
+        ws = lp.working_set
+        if ws is not None and ws.occupancy is not None and (best is None or ws.occupancy > best[1].occupancy):
+            best = (lp, ws)
+    return best
 
 
-def _number(v: Any) -> float | None:
-    """A plain number out of a value field (int, float or 'p/q')."""
-    if isinstance(v, bool):
-        return None
-    if isinstance(v, (int, float)):
-        return float(v)
-    if isinstance(v, str):
-        try:
-            return float(Fraction(v))
-        except (ValueError, ZeroDivisionError):
-            return None
-    if isinstance(v, dict):
-        for key in ("value", "bytes", "total"):
-            if key in v:
-                return _number(v[key])
-    return None
-
-
-def working_set_bytes(ws: Any) -> float | None:
-    """Bytes of a loop's working set at the given sizes, from its JSON (None when unknown).
-
-    The cache-fit occupancy (worst case over the enclosing loop variables, in
-    whole cache lines) is what the footprint analysis itself compares with
-    the cache levels, so the gate uses it first; then the worst-case bytes,
-    then the plain byte count.
-    """
-    if ws is None:
-        return None
-    if not isinstance(ws, dict):
-        return _number(ws)
-    fit = ws.get("cache_fit")
-    if isinstance(fit, dict):
-        v = _number(fit.get("occupancy_bytes"))
-        if v is not None:
-            return v
-    worst = ws.get("worst")
-    if isinstance(worst, dict) and isinstance(worst.get("bytes"), dict):
-        v = _number(worst["bytes"].get("value"))
-        if v is not None:
-            return v
-    for key in ("bytes", "value"):
-        if key in ws:
-            v = _number(ws[key])
-            if v is not None:
-                return v
-    return None
-
-
-def is_lower_bound(ws: Any) -> bool:
-    """True when a loop's working set leaves out references it could not model."""
-    if not isinstance(ws, dict):
-        return False
-    if ws.get("lower_bound"):
-        return True
-    return any(isinstance(ws.get(k), dict) and ws[k].get("lower_bound") for k in ("bytes", "worst"))
+def has_working_sets(nest: NestSummary) -> bool:
+    """True when the footprint analysis attached working sets to this nest's loops."""
+    return any(lp.working_set is not None for lp in nest.loops)
 
 
 def cache_levels(options: Any) -> dict[str, int]:
@@ -343,42 +287,6 @@ def level_of(size: float, levels: dict[str, int]) -> str:
 def _level_rank(name: str, levels: dict[str, int]) -> int:
     order = [n for n, _ in sorted(levels.items(), key=lambda kv: (kv[1], kv[0]))]
     return order.index(name) if name in order else len(order)
-
-
-def innermost_loops(nest: dict[str, Any]) -> list[dict[str, Any]]:
-    """Loops with no loop inside them."""
-    parents = {lp.get("parent") for lp in nest.get("loops", [])}
-    return [lp for lp in nest.get("loops", []) if lp.get("index") not in parents]
-
-
-def worst_innermost_ws(nest: dict[str, Any]) -> tuple[dict[str, Any] | None, float | None]:
-    """The innermost loop with the largest working set, and that size."""
-    best: tuple[dict[str, Any] | None, float | None] = (None, None)
-    for lp in innermost_loops(nest):
-        b = working_set_bytes(lp.get("working_set"))
-        if b is not None and (best[1] is None or b > best[1]):
-            best = (lp, b)
-    return best
-
-
-def has_working_sets(nest: dict[str, Any]) -> bool:
-    """True when the footprint analysis attached working sets to this nest's loops."""
-    return any("working_set" in lp for lp in nest.get("loops", []))
-
-
-def imbalance_of(par: Any) -> float | None:
-    """The imbalance (busiest thread's work / mean) of a loop's `parallel` object."""
-    if not isinstance(par, dict):
-        return None
-    for key in ("imbalance", "max_over_mean", "ratio"):
-        if key in par:
-            v = _number(par[key])
-            if v is not None:
-                return v
-    bal = par.get("balance")
-    if isinstance(bal, dict):
-        return imbalance_of(bal)
-    return None
 
 
 # --------------------------------------------------------------------------
@@ -561,118 +469,147 @@ def header_span(lines: list[str], line: int, column: int) -> Span:
     return Span(line, column, line, max(end, column))
 
 
-def _loop_span(lp: dict[str, Any], lines: list[str]) -> Span:
-    return header_span(lines, int(lp.get("line", 1)), int(lp.get("column", 1)))
+def _loop_span(lp: LoopSummary | NestSummary, lines: list[str]) -> Span:
+    return header_span(lines, lp.span.line, lp.span.column)
 
 
 # --------------------------------------------------------------------------
 # Checking one file
 
 
-def _outer_loop(nest: dict[str, Any]) -> dict[str, Any]:
-    for lp in nest.get("loops", []):
-        if lp.get("parent") is None:
-            return lp
-    return {"line": nest.get("line", 1), "column": nest.get("column", 1), "var": "?"}
+def _outer_loop(nest: NestSummary) -> LoopSummary | NestSummary:
+    """The outermost loop, or the nest itself (its span) when it has none."""
+    return nest.outer_loop() or nest
 
 
 def _at_text(at: dict[str, int]) -> str:
     return ", ".join(f"{k}={v}" for k, v in at.items()) or "the given sizes"
 
 
-def budget_findings(nest: dict[str, Any], budgets: Budgets, options: Any, lines: list[str],
+def _capacity(limit: str | int, levels: dict[str, int]) -> tuple[int, str]:
+    """Bytes of a `max_working_set` budget and how to name it."""
+    if isinstance(limit, str) and _is_level(limit):
+        if limit not in levels:
+            raise ConfigError(f"max_working_set = '{limit}': no cache level {limit} "
+                              f"(known: {', '.join(sorted(levels)) or 'none'}; set `caches`)")
+        return levels[limit], f"{limit} ({fmt_bytes(levels[limit])})"
+    cap = parse_bytes(limit)
+    return cap, fmt_bytes(cap)
+
+
+def _bound_text(lp: LoopSummary, ws: WorkingSetSummary, cap_text: str) -> str:
+    """Why a working set bound cannot be held against the budget."""
+    size = fmt_bytes(ws.occupancy or 0)
+    if ws.estimate == LOWER:
+        return (f"the working set of loop '{lp.var}' is only known as a lower bound "
+                f"({size}: {ws.reason or 'references that are not modelled are left out'})")
+    return (f"the working set of loop '{lp.var}' is only known as an upper bound "
+            f"(at most {size}, more than {cap_text}: {ws.reason or 'the exact value was not computed'})")
+
+
+def working_set_findings(nest: NestSummary, limit: str | int, options: Any, lines: list[str],
+                         levels: dict[str, int], where: str) -> list[Diagnostic]:
+    """TC602 for an innermost working set proven larger than the budget; TC604 when none can be held.
+
+    A bound proves something only on one side: a lower bound above the
+    budget, or an upper bound within it. Anything else is not checked.
+    """
+    nest_span = _loop_span(_outer_loop(nest), lines)
+    cap, cap_text = _capacity(limit, levels)
+    readings = [(lp, lp.working_set) for lp in nest.innermost_loops()
+                if lp.working_set is not None and lp.working_set.occupancy is not None]
+    if not readings:
+        at = options.at or {}
+        missing = [] if "*" in at else [p for p in nest.parameters if p not in at]
+        if has_working_sets(nest) and missing:
+            reason = (f"no value without sizes for {', '.join(missing)}: give them with `at` in "
+                      "[tool.tripcount] (or --at)")
+        else:
+            reason = "no working set computed for its innermost loops"
+        return [BudgetUnchecked(nest_span, budget="max_working_set", reason=reason)]
+    readings.sort(key=lambda r: -(r[1].occupancy or 0))
+    over = [(lp, ws) for lp, ws in readings if ws.proves_above(cap)]
+    if over:
+        lp, ws = over[0]
+        size = ws.occupancy or 0
+        return [WorkingSetBudget(_loop_span(lp, lines), var=lp.var,
+                                 size=("at least " if ws.estimate == LOWER else "") + fmt_bytes(size),
+                                 at=_at_text(options.at), level=level_of(size, levels), budget=cap_text, where=where)]
+    unproven = [(lp, ws) for lp, ws in readings if not ws.proves_within(cap)]
+    if unproven:
+        lp, ws = unproven[0]
+        return [BudgetUnchecked(nest_span, budget="max_working_set", reason=_bound_text(lp, ws, cap_text))]
+    return []
+
+
+def budget_findings(nest: NestSummary, budgets: Budgets, options: Any, lines: list[str],
                     levels: dict[str, int]) -> list[Diagnostic]:
     """Budget diagnostics of one nest (before suppressions)."""
     out: list[Diagnostic] = []
-    outer = _outer_loop(nest)
-    nest_span = _loop_span(outer, lines)
+    nest_span = _loop_span(_outer_loop(nest), lines)
     where = budgets.source
     if budgets.max_degree is not None:
-        degree, leads, who = nest_work(nest)
-        if degree is None:
-            if nest.get("statements"):
+        work = nest.work()
+        if work.degree is None:
+            if nest.statements:
                 out.append(BudgetUnchecked(nest_span, budget="max_degree", reason="no formula for its counts"))
-        elif degree > budgets.max_degree:
-            out.append(DegreeBudget(nest_span, degree=degree, what=who, leading=" + ".join(leads) or "?",
-                                    budget=budgets.max_degree, where=where))
-    if budgets.max_working_set is not None and nest.get("loops"):
-        lp, size = worst_innermost_ws(nest)
-        if size is None:
-            at = options.at or {}
-            missing = [] if "*" in at else [p for p in nest.get("parameters", []) if p not in at]
-            if has_working_sets(nest) and missing:
-                reason = (f"no value without sizes for {', '.join(missing)}: give them with `at` in "
-                          "[tool.tripcount] (or --at)")
-            else:
-                reason = "no working set computed for its innermost loops"
-            out.append(BudgetUnchecked(nest_span, budget="max_working_set", reason=reason))
-        else:
-            assert lp is not None
-            limit = budgets.max_working_set
-            if isinstance(limit, str) and _is_level(limit):
-                if limit not in levels:
-                    raise ConfigError(f"max_working_set = '{limit}': no cache level {limit} "
-                                      f"(known: {', '.join(sorted(levels)) or 'none'}; set `caches`)")
-                cap = levels[limit]
-                budget_text = f"{limit} ({fmt_bytes(cap)})"
-            else:
-                cap = parse_bytes(limit)  # type: ignore[arg-type]
-                budget_text = fmt_bytes(cap)
-            if size > cap:
-                out.append(WorkingSetBudget(_loop_span(lp, lines), var=lp.get("var", "?"), size=fmt_bytes(size),
-                                            at=_at_text(options.at), level=level_of(size, levels),
-                                            budget=budget_text, where=where))
-            elif is_lower_bound(lp.get("working_set")):
-                out.append(BudgetUnchecked(nest_span, budget="max_working_set", reason=(
-                    f"the working set of loop '{lp.get('var', '?')}' is only known as a lower bound "
-                    f"({fmt_bytes(size)}: references that are not modelled are left out)")))
+        elif work.degree > budgets.max_degree:
+            out.append(DegreeBudget(nest_span, degree=work.degree, what=work.who,
+                                    leading=" + ".join(work.leading) or "?", budget=budgets.max_degree, where=where))
+    if budgets.max_working_set is not None and nest.loops:
+        out += working_set_findings(nest, budgets.max_working_set, options, lines, levels, where)
     if budgets.max_imbalance is not None:
         threads = getattr(options, "threads", None)
-        for lp in nest.get("loops", []):
-            imb = imbalance_of(lp.get("parallel"))
-            if imb is not None and imb > budgets.max_imbalance + 1e-12:
-                t = lp.get("parallel", {}).get("threads", threads)
-                out.append(ImbalanceBudget(_loop_span(lp, lines), var=lp.get("var", "?"), imbalance=f"{imb:.3g}",
-                                           threads=f" with {t} threads" if t else "",
-                                           budget=f"{budgets.max_imbalance:g}", where=where))
+        for lp in nest.loops:
+            bal = lp.balance
+            if bal is None or bal.imbalance is None or bal.imbalance <= Fraction(budgets.max_imbalance):
+                continue
+            t = bal.threads or threads
+            out.append(ImbalanceBudget(_loop_span(lp, lines), var=lp.var, imbalance=f"{float(bal.imbalance):.3g}",
+                                       threads=f" with {t} threads" if t else "",
+                                       budget=f"{budgets.max_imbalance:g}", where=where))
     return out
 
 
-def regression_findings(old: dict[str, Any], new: dict[str, Any], budgets: Budgets, options: Any,
+def regression_findings(old: NestSummary, new: NestSummary, budgets: Budgets, options: Any,
                         lines: list[str], levels: dict[str, int], rev: str) -> list[Diagnostic]:
-    """Baseline diagnostics of one matched pair of nests."""
+    """Baseline diagnostics of one matched pair of nests.
+
+    A working set regression needs proof on both sides: the new value exact
+    or a lower bound, the old one exact or an upper bound.
+    """
     out: list[Diagnostic] = []
     span = _loop_span(_outer_loop(new), lines)
-    d_old, l_old, _ = nest_work(old)
-    d_new, l_new, _ = nest_work(new)
-    if d_old is not None and d_new is not None:
-        if d_new > d_old:
-            out.append(DegreeRegression(span, old=d_old, new=d_new, rev=rev,
+    w_old, w_new = old.work(), new.work()
+    l_old, l_new = list(w_old.leading), list(w_new.leading)
+    if w_old.degree is not None and w_new.degree is not None:
+        if w_new.degree > w_old.degree:
+            out.append(DegreeRegression(span, old=w_old.degree, new=w_new.degree, rev=rev,
                                         old_leading=" + ".join(l_old) or "?", new_leading=" + ".join(l_new) or "?"))
-        elif d_new == d_old and d_new > 0:
+        elif w_new.degree == w_old.degree and w_new.degree > 0:
             r = leading_ratio(l_old, l_new, options.at)
             if r is not None and r > budgets.max_leading_growth + 1e-12:
                 out.append(LeadingGrowth(span, ratio=f"{r:.3g}", rev=rev, old_leading=" + ".join(l_old),
                                          new_leading=" + ".join(l_new), allowed=f"{budgets.max_leading_growth:g}",
                                          where=budgets.source))
-    lo, so = worst_innermost_ws(old)
-    ln_, sn = worst_innermost_ws(new)
-    if so is not None and sn is not None and ln_ is not None:
+    wo, wn = worst_innermost(old), worst_innermost(new)
+    if wo is not None and wn is not None and wo[1].estimate in (EXACT, UPPER) and wn[1].estimate in (EXACT, LOWER):
+        so, sn = wo[1].occupancy or 0, wn[1].occupancy or 0
         a, b = level_of(so, levels), level_of(sn, levels)
         if _level_rank(b, levels) > _level_rank(a, levels):
-            out.append(WorkingSetRegression(_loop_span(ln_, lines), var=ln_.get("var", "?"), new_level=b,
+            out.append(WorkingSetRegression(_loop_span(wn[0], lines), var=wn[0].var, new_level=b,
                                             new_size=fmt_bytes(sn), old_level=a, old_size=fmt_bytes(so),
                                             rev=rev, at=_at_text(options.at)))
     return out
 
 
-def _signature(n: dict[str, Any]) -> str:
-    loops = ",".join(f"{lp.get('var')}@{lp.get('depth')}" for lp in n.get("loops", []))
-    stmts = ";".join(" ".join(str(s.get("text", "")).split()) for s in n.get("statements", []))
+def _signature(n: NestSummary) -> str:
+    loops = ",".join(f"{lp.var}@{lp.depth}" for lp in n.loops)
+    stmts = ";".join(" ".join(s.text.split()) for s in n.statements)
     return loops + "|" + stmts
 
 
-def match_nests(old: list[dict[str, Any]], new: list[dict[str, Any]]) -> list[tuple[int, int]]:
+def match_nests(old: list[NestSummary], new: list[NestSummary]) -> list[tuple[int, int]]:
     """Pairs (old index, new index) of counterpart nests.
 
     Within each function: by ordinal when both versions have as many nests;
@@ -683,9 +620,9 @@ def match_nests(old: list[dict[str, Any]], new: list[dict[str, Any]]) -> list[tu
     pairs: list[tuple[int, int]] = []
     funcs: dict[str, tuple[list[int], list[int]]] = {}
     for i, n in enumerate(old):
-        funcs.setdefault(n.get("function", ""), ([], []))[0].append(i)
+        funcs.setdefault(n.function, ([], []))[0].append(i)
     for j, n in enumerate(new):
-        funcs.setdefault(n.get("function", ""), ([], []))[1].append(j)
+        funcs.setdefault(n.function, ([], []))[1].append(j)
     for _fn, (oi, nj) in funcs.items():
         if not oi or not nj:
             continue
@@ -700,7 +637,7 @@ def match_nests(old: list[dict[str, Any]], new: list[dict[str, Any]]) -> list[tu
                 local.append((oi[blk.a + k], nj[blk.b + k]))
         used_o = {a for a, _ in local}
         used_n = {b for _, b in local}
-        shifts = sorted(new[b]["line"] - old[a]["line"] for a, b in local)
+        shifts = sorted(new[b].span.line - old[a].span.line for a, b in local)
         shift = shifts[len(shifts) // 2] if shifts else 0
         for j in nj:
             if j in used_n:
@@ -708,7 +645,7 @@ def match_nests(old: list[dict[str, Any]], new: list[dict[str, Any]]) -> list[tu
             cands = [i for i in oi if i not in used_o]
             if not cands:
                 break
-            i = min(cands, key=lambda i: (abs(old[i]["line"] + shift - new[j]["line"]), i))
+            i = min(cands, key=lambda i: (abs(old[i].span.line + shift - new[j].span.line), i))
             used_o.add(i)
             local.append((i, j))
         pairs.extend(local)
@@ -842,7 +779,7 @@ def check_file(path: str, args: argparse.Namespace, git: Git, use_cache: bool) -
     for line, col, kind in sup.unknown:
         findings.append(UnknownSuppression(Span(line, col, line, col + len(kind)), kind=kind, known=", ".join(KINDS)))
     raw: list[tuple[Diagnostic, list[int]]] = []
-    nests = result.get("nests", [])
+    nests = summaries_of(result)
     for n in nests:
         outer_lines = _suppress_lines(sup, _outer_loop(n), lines)
         for d in budget_findings(n, budgets, options, lines, levels):
@@ -866,7 +803,12 @@ def check_file(path: str, args: argparse.Namespace, git: Git, use_cache: bool) -
     return FileCheck(path, result, findings, tool_errors, dict(options.at))
 
 
-def _suppress_lines(sup: Suppressions, loop: dict[str, Any], lines: list[str]) -> list[int]:
+def summaries_of(result: dict[str, Any]) -> list[NestSummary]:
+    """The typed summaries of an analyzed file (what the cache or the pipeline gave)."""
+    return [NestSummary.from_json(s) for s in result.get("summaries", [])]
+
+
+def _suppress_lines(sup: Suppressions, loop: LoopSummary | NestSummary, lines: list[str]) -> list[int]:
     span = _loop_span(loop, lines)
     return sup.lines_for(span.line, span.end_line)
 
@@ -876,7 +818,7 @@ class BaselineError(Exception):
 
 
 def _baseline_nests(path: str, rev: str, origin: str, git: Git, options: Any,
-                    use_cache: bool) -> tuple[list[dict[str, Any]], str | None]:
+                    use_cache: bool) -> tuple[list[NestSummary], str | None]:
     """The nests of the baseline version of `path` (empty when the file is new there).
 
     A revision from the command line that cannot be used is an error (exit
@@ -885,7 +827,7 @@ def _baseline_nests(path: str, rev: str, origin: str, git: Git, options: Any,
     """
     from tripcount.cache import analyze_file_cached
 
-    def problem(reason: str) -> tuple[list[dict[str, Any]], str | None]:
+    def problem(reason: str) -> tuple[list[NestSummary], str | None]:
         if origin == "cli":
             raise BaselineError(f"--baseline {rev}: {reason}")
         return [], (f"baseline = '{rev}' in the configuration: {reason}" if origin == "config" else None)
@@ -903,7 +845,7 @@ def _baseline_nests(path: str, rev: str, origin: str, git: Git, options: Any,
     if old_text is None:
         return [], None  # a new file: budgets only
     old = analyze_file_cached(path, old_text, options, use_cache=use_cache)
-    return old.get("nests", []), None
+    return summaries_of(old), None
 
 
 def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
@@ -987,7 +929,7 @@ def check_report(checks: list[FileCheck], args: argparse.Namespace) -> dict[str,
     at: dict[str, int] = {}
     for c in checks:
         diags = list(c.result.get("diagnostics", [])) + [d.to_dict() for d in c.findings]
-        files.append({**c.result, "path": c.path,
+        files.append({**{k: v for k, v in c.result.items() if k != "summaries"}, "path": c.path,
                       "diagnostics": sorted(diags, key=lambda d: (d["line"], d["column"], d["code"]))})
         at.update(c.at)
     return {"schema_version": 1, "tool": {"name": "tripcount", "version": __version__},

@@ -26,6 +26,15 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from tripcount import __version__
+from tripcount.analysis.summary import (
+    EXACT,
+    UPPER,
+    LoopSummary,
+    NestSummary,
+    Quantity,
+    StatementSummary,
+    WorkingSetSummary,
+)
 
 log = logging.getLogger("tripcount.lsp")
 
@@ -73,12 +82,6 @@ def from_lsp(line: int, character: int, lines: list[str], encoding: str = "utf-1
     return line + 1, len(text) + 1
 
 
-def _contains(d: dict[str, Any], line: int, col: int) -> bool:
-    a = (d.get("line", 0), d.get("column", 0))
-    b = (d.get("end_line", 0), d.get("end_column", 0))
-    return a <= (line, col) < b
-
-
 # --------------------------------------------------------------------------
 # Analysis of one document (no pygls)
 
@@ -88,16 +91,17 @@ class Analysis:
     """The result of analyzing one version of a document."""
 
     text: str
-    result: dict[str, Any]  # file JSON
+    result: dict[str, Any]  # file JSON (its diagnostics are published)
+    nests: list[NestSummary] = field(default_factory=list)  # what hover and inlay hints read
     findings: list[dict[str, Any]] = field(default_factory=list)  # TC6xx budget findings
     at: dict[str, int] = field(default_factory=dict)
     levels: dict[str, int] = field(default_factory=dict)
     lines: list[str] = field(default_factory=list)
     headers: dict[tuple[int, int], tuple[int, int, int, int]] = field(default_factory=dict)
 
-    def header(self, loop: dict[str, Any]) -> tuple[int, int, int, int]:
+    def header(self, loop: LoopSummary) -> tuple[int, int, int, int]:
         """(line, column, end_line, end_column) of a loop's `for (...)`."""
-        key = (loop.get("line", 1), loop.get("column", 1))
+        key = (loop.span.line, loop.span.column)
         if key not in self.headers:
             from tripcount.check import header_span
 
@@ -121,6 +125,7 @@ def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Ana
         budgets_from,
         cache_levels,
         effective_table,
+        summaries_of,
     )
     from tripcount.cli import options_from
     from tripcount.config import Config, load_config
@@ -133,17 +138,18 @@ def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Ana
     result = analyze_file_cached(path or "<untitled>", text, options, use_cache=use_cache)
     lines = text.split("\n")
     levels = cache_levels(options)
-    a = Analysis(text=text, result=result, at=dict(options.at), levels=levels, lines=lines)
+    a = Analysis(text=text, result=result, nests=summaries_of(result), at=dict(options.at), levels=levels,
+                 lines=lines)
     if budgets.any():
         sup = Suppressions.scan(text)
-        for n in result.get("nests", []):
-            outer = next((lp for lp in n.get("loops", []) if lp.get("parent") is None), None)
-            base = sup.lines_for(outer["line"]) if outer else []
+        for n in a.nests:
+            outer = n.outer_loop()
+            base = sup.lines_for(outer.span.line) if outer else []
             try:
                 found = budget_findings(n, budgets, options, lines, levels)
             except ValueError as exc:  # e.g. a budget naming a cache level the machine lacks
-                a.findings.append({"line": n["line"], "column": n["column"], "end_line": n["line"],
-                                   "end_column": n["column"] + 3, "severity": "warning", "code": "TC604",
+                a.findings.append({"line": n.span.line, "column": n.span.column, "end_line": n.span.line,
+                                   "end_column": n.span.column + 3, "severity": "warning", "code": "TC604",
                                    "message": f"budgets not checked: {exc}"})
                 continue
             for d in found:
@@ -177,57 +183,66 @@ def _fmt_value(v: Any) -> str:
     return str(v)
 
 
-def _count_md(c: dict[str, Any] | None, unit: str = "") -> list[str]:
-    """Markdown lines of a count object: the formula (generic case first) and its value."""
-    if not c:
+def _count_md(c: Quantity | None, unit: str = "") -> list[str]:
+    """Markdown lines of a count: the formula (generic case first) and its value."""
+    if c is None:
         return ["unknown"]
-    pieces = c.get("pieces")
     out = []
-    if pieces is None:
-        out.append(c.get("note") or "no formula")
-    elif not pieces:
+    if c.pieces is None:
+        out.append(c.note or "no formula")
+    elif not c.pieces:
         out.append("`0`")
     else:
-        first = pieces[0]
-        when = f" when `{first['when']}`" if first.get("when") not in (None, "", "true") else ""
-        out.append(f"`{first['expr']}`{unit}{when}")
-        for p in pieces[1:4]:
-            out.append(f"- `{p['expr']}` when `{p['when']}`")
-        if len(pieces) > 4:
-            out.append(f"- ... {len(pieces) - 4} more case(s)")
-    if c.get("value") is not None:
-        out[0] += f" = **{_fmt_value(c['value'])}**{unit}"
+        first = c.pieces[0]
+        when = f" when `{first.when}`" if first.when not in ("", "true") else ""
+        out.append(f"`{first.expr}`{unit}{when}")
+        for p in c.pieces[1:4]:
+            out.append(f"- `{p.expr}` when `{p.when}`")
+        if len(c.pieces) > 4:
+            out.append(f"- ... {len(c.pieces) - 4} more case(s)")
+    if c.value is not None:
+        out[0] += f" = **{_fmt_value(c.value)}**{unit}"
     return out
 
 
-def _ws_md(ws: dict[str, Any], levels: dict[str, int]) -> list[str]:
-    from tripcount.check import fmt_bytes, level_of, working_set_bytes
+def _ws_md(ws: WorkingSetSummary, levels: dict[str, int]) -> list[str]:
+    from tripcount.check import fmt_bytes, level_of
 
-    out = [f"**working set** ({ws.get('scope', 'this loop')}): " + _count_md(ws.get("bytes"), " bytes")[0]]
-    size = working_set_bytes(ws)
-    if size is not None:
+    scope = ws.scope or "this loop"
+    out = [f"**working set** ({scope}): " + _count_md(ws.bytes, " bytes")[0]]
+    size = ws.occupancy
+    if size is None:
+        return out
+    if ws.estimate == EXACT:
         out.append(f"occupies {fmt_bytes(size)} in whole cache lines: fits {level_of(size, levels)} "
                    "(model estimate)")
+    elif ws.estimate == UPPER:
+        out.append(f"occupies at most {fmt_bytes(size)} in whole cache lines (an upper bound: {ws.reason}): "
+                   f"fits {level_of(size, levels)} at least (model estimate)")
+    else:
+        out.append(f"occupies at least {fmt_bytes(size)} in whole cache lines (a lower bound: {ws.reason}); "
+                   "may not fit " + level_of(size, levels) + " (model estimate)")
     return out
 
 
-def _parallel_md(par: dict[str, Any]) -> list[str]:
+def _parallel_md(lp: LoopSummary) -> list[str]:
+    bal = lp.balance
+    assert bal is not None
     bits = []
-    if par.get("directive"):
-        bits.append(f"`omp {par['directive']}`")
-    if par.get("schedule"):
-        sched = par["schedule"] + (f", {par['chunk']}" if par.get("chunk") not in (None, "") else "")
-        bits.append(f"schedule({sched})")
-    if par.get("threads"):
-        bits.append(f"{par['threads']} threads")
+    if bal.directive:
+        bits.append(f"`omp {bal.directive}`")
+    if bal.schedule:
+        bits.append(f"schedule({bal.schedule + (f', {bal.chunk}' if bal.chunk not in (None, '') else '')})")
+    if bal.threads:
+        bits.append(f"{bal.threads} threads")
     line = "**balance**: " + ", ".join(bits) if bits else "**balance**"
-    if isinstance(par.get("imbalance"), (int, float)):
-        line += f"; imbalance {par['imbalance']:.3g} (busiest thread / mean)"
-        if isinstance(par.get("efficiency"), (int, float)):
-            line += f", efficiency {par['efficiency']:.0%}"
+    if bal.imbalance is not None:
+        line += f"; imbalance {float(bal.imbalance):.3g} (busiest thread / mean)"
+        if bal.efficiency is not None:
+            line += f", efficiency {float(bal.efficiency):.0%}"
     out = [line]
-    if par.get("recommendation"):
-        out.append(str(par["recommendation"]))
+    if bal.recommendation:
+        out.append(bal.recommendation)
     return out
 
 
@@ -238,55 +253,52 @@ def _at_md(at: dict[str, int]) -> str:
 
 def hover_at(a: Analysis, line: int, column: int) -> str | None:
     """Markdown hover for our 1-based position, or None when nothing is there."""
-    best_stmt = None
-    for n in a.result.get("nests", []):
-        for s in n.get("statements", []):
-            if _contains(s, line, column):
-                size = (s["end_line"] - s["line"], s["end_column"] - s["column"])
+    best_stmt: tuple[tuple[int, int], NestSummary, StatementSummary] | None = None
+    for n in a.nests:
+        for s in n.statements:
+            if s.span.contains(line, column):
+                size = (s.span.end_line - s.span.line, s.span.end_column - s.span.column)
                 if best_stmt is None or size < best_stmt[0]:
                     best_stmt = (size, n, s)
     if best_stmt is not None:
         _, n, s = best_stmt
-        text = " ".join(str(s.get("text", "")).split())
+        text = " ".join(s.text.split())
         if len(text) > 80:
             text = text[:77] + "..."
-        md = [f"**{s['id']}** `{text}` in `{n.get('function', '?')}()`", "",
-              "**runs** " + "\n".join(_count_md(s.get("count")))]
-        fl = s.get("flops")
-        if isinstance(fl, dict) and fl.get("per_execution"):
-            md += ["", f"**flops** {fl['per_execution']} per run; " + _count_md(fl)[0] + " in all"]
+        md = [f"**{s.id}** `{text}` in `{n.function or '?'}()`", "",
+              "**runs** " + "\n".join(_count_md(s.count))]
+        fl = s.flops
+        if fl is not None and fl.per_execution:
+            md += ["", f"**flops** {fl.per_execution} per run; " + _count_md(fl.total)[0] + " in all"]
         md += ["", f"_{_at_md(a.at)}_"]
         return "\n".join(md)
-    best_loop = None
-    for n in a.result.get("nests", []):
-        for lp in n.get("loops", []):
+    best_loop: tuple[tuple[int, int], NestSummary, LoopSummary] | None = None
+    for n in a.nests:
+        for lp in n.loops:
             hl, hc, hel, hec = a.header(lp)
             on_header = (hl, hc) <= (line, column) < (hel, hec)
-            on_first_line = line == lp.get("line") and column >= lp.get("column", 1)
+            on_first_line = line == lp.span.line and column >= lp.span.column
             if on_header or on_first_line:
-                rank = (0 if on_header else 1, -lp.get("depth", 0))
+                rank = (0 if on_header else 1, -lp.depth)
                 if best_loop is None or rank < best_loop[0]:
                     best_loop = (rank, n, lp)
     if best_loop is None:
         return None
     _, n, lp = best_loop
-    md = [f"**loop `{lp.get('var', '?')}`** (line {lp.get('line')}, depth {lp.get('depth', 0)}) "
-          f"in `{n.get('function', '?')}()`", ""]
-    md.append("**trips** " + "\n".join(_count_md(lp.get("trips"))))
-    if lp.get("depth", 0) > 0 and lp.get("trips_per_entry"):
-        md += ["", "**per entry** " + "\n".join(_count_md(lp.get("trips_per_entry")))]
-    if isinstance(lp.get("working_set"), dict):
-        md += [""] + _ws_md(lp["working_set"], a.levels)
-    if isinstance(lp.get("parallel"), dict):
-        md += [""] + _parallel_md(lp["parallel"])
-    if lp.get("parent") is None:
-        from tripcount.check import nest_work
-
-        degree, leads, who = nest_work(n)
-        if degree is not None:
-            md += ["", f"**work** of the nest: degree {degree} ({who} ~ `{' + '.join(leads)}`)"]
-        if isinstance(n.get("flops"), dict):
-            md += ["**flops** " + _count_md(n["flops"])[0]]
+    md = [f"**loop `{lp.var}`** (line {lp.span.line}, depth {lp.depth}) in `{n.function or '?'}()`", ""]
+    md.append("**trips** " + "\n".join(_count_md(lp.trips)))
+    if lp.depth > 0 and lp.per_entry is not None:
+        md += ["", "**per entry** " + "\n".join(_count_md(lp.per_entry))]
+    if lp.working_set is not None:
+        md += [""] + _ws_md(lp.working_set, a.levels)
+    if lp.balance is not None:
+        md += [""] + _parallel_md(lp)
+    if lp.parent is None:
+        work = n.work()
+        if work.degree is not None:
+            md += ["", f"**work** of the nest: degree {work.degree} ({work.who} ~ `{' + '.join(work.leading)}`)"]
+        if n.flops is not None:
+            md += ["**flops** " + _count_md(n.flops.total)[0]]
     md += ["", f"_{_at_md(a.at)}_"]
     return "\n".join(md)
 
@@ -295,32 +307,31 @@ def hover_at(a: Analysis, line: int, column: int) -> str | None:
 # Inlay hints
 
 
-def _short(c: dict[str, Any] | None) -> str | None:
-    if not c or not c.get("pieces"):
+def _short(c: Quantity | None) -> str | None:
+    if c is None or not c.pieces:
         return None
-    expr = c["pieces"][0]["expr"]
-    return expr if len(expr) <= 40 else (c.get("leading") and f"~{c['leading']}") or expr[:37] + "..."
+    expr = c.pieces[0].expr
+    return expr if len(expr) <= 40 else (c.leading and f"~{c.leading}") or expr[:37] + "..."
 
 
 def inlay_hints(a: Analysis, first_line: int = 1, last_line: int | None = None) -> list[dict[str, Any]]:
     """(line, column, label) hints after each loop header in [first_line, last_line] (1-based)."""
     out = []
-    for n in a.result.get("nests", []):
-        for lp in n.get("loops", []):
-            if lp.get("line", 0) < first_line or (last_line is not None and lp.get("line", 0) > last_line):
+    for n in a.nests:
+        for lp in n.loops:
+            if lp.span.line < first_line or (last_line is not None and lp.span.line > last_line):
                 continue
-            per = lp.get("trips_per_entry") if lp.get("depth", 0) > 0 else lp.get("trips")
-            label = _short(per)
+            label = _short(lp.per_entry if lp.depth > 0 else lp.trips)
             if label is None:
                 continue
             text = f"{label} trips"
-            if lp.get("depth", 0) > 0:
+            total = lp.trips.value if lp.trips is not None else None
+            if lp.depth > 0:
                 text += " per entry"
-                total = lp.get("trips") or {}
-                if total.get("value") is not None:
-                    text += f" ({_fmt_value(total['value'])} in all)"
-            elif (lp.get("trips") or {}).get("value") is not None:
-                text += f" = {_fmt_value(lp['trips']['value'])}"
+                if total is not None:
+                    text += f" ({_fmt_value(total)} in all)"
+            elif total is not None:
+                text += f" = {_fmt_value(total)}"
             _l, _c, el, ec = a.header(lp)
             out.append({"line": el, "column": ec, "label": text})
     return out

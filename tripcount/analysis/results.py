@@ -4,16 +4,21 @@
 # and statements with their counts, plus `extras`: named, JSON-ready results
 # of the further analyses (working set, flops, balance). Every extra has a
 # `to_json()`; extras that want a text section also have `text_lines()`.
-# Reporters only read these objects.
+# Reporters only read these objects. What the gate and the language server
+# read is the frozen NestSummary (analysis/summary.py) the driver makes of a
+# NestResult; `NestResult.summary()` is that one conversion.
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from fractions import Fraction
-from typing import Any, Protocol
+from typing import TYPE_CHECKING, Any, Protocol
 
+from tripcount.analysis.summary import NestSummary
 from tripcount.diagnostics import Diagnostic
-from tripcount.model import Loop, Nest, Statement
+
+if TYPE_CHECKING:  # the model imports islpy; readers of results (the gate) must not need it
+    from tripcount.model import Loop, Nest, Statement
 
 
 class Extra(Protocol):
@@ -97,6 +102,12 @@ class NestResult:
     statements: list[StatementResult]
     extras: dict[str, Any] = field(default_factory=dict)
     diagnostics: list[Diagnostic] = field(default_factory=list)
+
+    def summary(self) -> NestSummary:
+        """The frozen, typed reading of this result (what the gate and the editor hold against budgets)."""
+        from tripcount.analysis.summary import summarize
+
+        return summarize(self)
 
 
 @dataclass
