@@ -289,17 +289,3 @@ def test_results_cut_short_by_time_are_not_kept():
               {"code": "TC402", "message": "no footprint formula: no formula within the footprint "
                                            "analysis's time of 0.5 s per formula"}):
         assert cache._depends_on_time(d), d
-
-
-def test_work_groups_keep_equal_nests_together_and_strided_first():
-    # scheduling only (common practice: longest jobs first): equal iteration
-    # domains share a worker, a nest with a non-unit step is handed out first
-    from types import SimpleNamespace as NS
-
-    plain = NS(loops=(NS(step=1, domain="[N] -> { L0[i0] : 0 <= i0 < N }"),), statements=(1,))
-    strided = NS(loops=(NS(step=2, domain="[N] -> { L0[i0] : 0 <= i0 < N and i0 % 2 = 0 }"),), statements=(1,))
-    other = NS(loops=(NS(step=1, domain="[M] -> { L0[i0] : 0 <= i0 < M }"),), statements=(1,))
-    nests = [plain, strided, plain, other, strided]
-    groups = cache._work_groups(nests, [0, 1, 2, 3, 4])
-    assert groups[0] == [1, 4]
-    assert sorted(map(sorted, groups)) == [[0, 2], [1, 4], [3]]

@@ -53,3 +53,84 @@ def test_invalid_utf8_is_reported_not_fatal(tmp_path):
     codes = [d.code for d in fr.all_diagnostics()]
     assert "TC190" in codes
     assert fr.nests[0].statements[0].count.value == 3
+
+
+def test_work_groups_keep_equal_nests_together_and_strided_first():
+    # scheduling only (common practice: longest jobs first): equal iteration
+    # domains share a worker, a nest with a non-unit step is handed out first
+    from types import SimpleNamespace as NS
+
+    plain = NS(loops=(NS(step=1, domain="[N] -> { L0[i0] : 0 <= i0 < N }"),), statements=(1,))
+    strided = NS(loops=(NS(step=2, domain="[N] -> { L0[i0] : 0 <= i0 < N and i0 % 2 = 0 }"),), statements=(1,))
+    other = NS(loops=(NS(step=1, domain="[M] -> { L0[i0] : 0 <= i0 < M }"),), statements=(1,))
+    nests = [plain, strided, plain, other, strided]
+    groups = pipeline.work_groups(nests, [0, 1, 2, 3, 4])
+    assert groups[0] == [1, 4]
+    assert sorted(map(sorted, groups)) == [[0, 2], [1, 4], [3]]
+
+
+# --------------------------------------------------------------------------
+# One driver: analyze, check and serve give the same numbers
+
+
+def _numbers_of_report(nest):
+    """The numbers of a nest of the JSON report: counts, trips, innermost cache-fit occupancy, imbalance."""
+    parents = {lp["parent"] for lp in nest["loops"]}
+    return ([(s["id"], s["count"]["value"], s["count"].get("degree")) for s in nest["statements"]],
+            [(lp["var"], lp["trips"]["value"]) for lp in nest["loops"]],
+            [(lp["var"], (lp["working_set"]["cache_fit"] or {}).get("occupancy_bytes"))
+             for lp in nest["loops"] if lp["index"] not in parents and lp.get("working_set")],
+            [(lp["var"], (lp["parallel"] or {}).get("imbalance_exact")) for lp in nest["loops"]])
+
+
+def _numbers_of_summary(n):
+    """The numbers of a typed summary (what the gate and the language server read)."""
+    inner = {lp.index for lp in n.innermost_loops()}
+    return ([(s.id, s.count.value, s.count.degree) for s in n.statements],
+            [(lp.var, lp.trips.value) for lp in n.loops],
+            [(lp.var, lp.working_set.occupancy, lp.working_set.estimate)
+             for lp in n.loops if lp.index in inner and lp.working_set is not None],
+            [(lp.var, None if lp.balance is None or lp.balance.imbalance is None else str(lp.balance.imbalance))
+             for lp in n.loops])
+
+
+def test_analyze_check_and_serve_give_the_same_numbers_on_the_corpus(tmp_path, private_cache, monkeypatch):
+    # the whole corpus through the three entry points, the cache cold and warm:
+    # the reports of `analyze` and of `check` (JSON) agree on every number, and
+    # so do the typed summaries that `check` holds against budgets and that the
+    # language server shows
+    import io
+    import json
+    import shutil
+
+    from tripcount import check, lsp
+    from tripcount.analysis.summary import NestSummary
+    from tripcount.cli import build_parser, main
+
+    root = os.path.join(os.path.dirname(__file__), "..", "corpus")
+    names = sorted(n for n in os.listdir(root) if n.endswith(".c"))
+    for n in names:
+        shutil.copy(os.path.join(root, n), tmp_path / n)
+    (tmp_path / "pyproject.toml").write_text('[tool.tripcount]\nat = { "*" = 100 }\nthreads = 4\n'
+                                             'caches = { L1 = "32KiB", L2 = "1MiB", L3 = "8MiB" }\n')
+    monkeypatch.chdir(tmp_path)
+
+    def cli(*argv):
+        out, err = io.StringIO(), io.StringIO()
+        status = main(list(argv), stdout=out, stderr=err)
+        assert status in (0, 1), err.getvalue()
+        return {os.path.basename(f["path"]): f["nests"] for f in json.loads(out.getvalue())["files"]}
+
+    reported = {k: [_numbers_of_report(n) for n in v] for k, v in cli("analyze", "--format", "json", *names).items()}
+    assert sum(len(v) for v in reported.values()) >= 40
+    args = build_parser().parse_args(["check"])
+    for run in ("cold", "warm"):
+        checked = cli("check", "--format", "json", *names)
+        assert {k: [_numbers_of_report(n) for n in v] for k, v in checked.items()} == reported, run
+        for name in names:
+            gate = [_numbers_of_summary(n) for n in check.summaries_of(check.check_file(name, args, check.Git(),
+                                                                                            True).result)]
+            assert [(c, t, i) for c, t, _ws, i in gate] == [(c, t, i) for c, t, _ws, i in reported[name]]
+            a = lsp.analyze_document(str(tmp_path / name), (tmp_path / name).read_text())
+            assert [_numbers_of_summary(n) for n in a.nests] == gate, (run, name)
+            assert [NestSummary.from_json(n.to_json()) for n in a.nests] == a.nests

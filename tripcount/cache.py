@@ -35,7 +35,6 @@ import json
 import os
 import re
 import shutil
-import sys
 import tempfile
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
@@ -737,95 +736,17 @@ def _assemble(layout: Layout, store: Store) -> tuple[list, list, list, bool] | N
     return nests, summaries, diags, True
 
 
-ENV_JOBS = "TRIPCOUNT_JOBS"
-_FORKED: tuple[list[Any], Options] | None = None  # what forked workers read (inherited, not pickled)
-
-
-def jobs() -> int:
-    """Worker processes for analyzing missed nests: $TRIPCOUNT_JOBS, else the cores (at most 4)."""
-    try:
-        return max(1, int(os.environ.get(ENV_JOBS, "")))
-    except ValueError:
-        return max(1, min(os.cpu_count() or 1, 4))
-
-
 _Payload = tuple[dict[str, Any], dict[str, Any], list[dict[str, Any]]]  # nest JSON, summary JSON, diagnostics
 
 
-def _analyze_one(nest: Any, options: Options) -> _Payload:
-    from tripcount.pipeline import analyze_nest
+class _Render:
+    """What the driver's workers send back for one nest: its payload (picklable JSON, no isl objects)."""
 
-    nr = analyze_nest(nest, options)
-    return (*nest_payload(nr, options), [d.to_dict() for d in nr.diagnostics])
+    def __init__(self, options: Options) -> None:
+        self.options = options
 
-
-def _forked_worker(group: list[int]) -> list[tuple[int, _Payload | None]]:
-    assert _FORKED is not None
-    out: list[tuple[int, _Payload | None]] = []
-    for k in group:
-        try:
-            out.append((k, _analyze_one(_FORKED[0][k], _FORKED[1])))
-        except Exception:  # the parent analyzes it again and reports what happens there
-            out.append((k, None))
-    return out
-
-
-def _work_groups(nests: list[Any], todo: list[int]) -> list[list[int]]:
-    """The nests at `todo` in groups for the workers, the likely slowest first.
-
-    Nests with the same iteration domains (the same loops, over the same or
-    other arrays, in any function) go to one worker: the engine's memo answers
-    the later ones' counts there, where two workers would each compute them. The order is
-    a guess from the shape (non-unit steps give periodic formulas, the slowest
-    part of a report; then depth and size), so that no long group starts last.
-    """
-    groups: dict[tuple[str, ...], list[int]] = {}
-    for k in todo:
-        groups.setdefault(tuple(str(lp.domain) for lp in nests[k].loops), []).append(k)
-
-    def guess(ks: list[int]) -> tuple[int, int, int]:
-        n = nests[ks[0]]
-        strided = sum(1 for lp in n.loops if lp.step not in (1, -1))
-        return (strided, len(ks) * (1 + len(n.loops)), len(n.statements))
-
-    return sorted(groups.values(), key=guess, reverse=True)
-
-
-def _analyze_nests(nests: list[Any], todo: list[int], options: Options) -> dict[int, _Payload]:
-    """Analyze the nests at indices `todo`, on several processes when it pays.
-
-    Workers are forked after the model is built, so they inherit the nests
-    (isl objects do not pickle) and every import; only JSON comes back.
-    Forking is used only from a single-threaded process (the command line),
-    never from the language server, and never off Linux-like systems.
-    """
-    global _FORKED
-    out: dict[int, _Payload] = {}
-    n_jobs = min(jobs(), len(todo))
-    import threading
-
-    can_fork = (n_jobs > 1 and hasattr(os, "fork") and threading.active_count() == 1
-                and sys.platform.startswith("linux"))
-    groups = _work_groups(nests, todo) if can_fork else []
-    if len(groups) > 1:
-        n_jobs = min(n_jobs, len(groups))
-        import multiprocessing
-
-        _FORKED = (nests, options)
-        try:
-            with multiprocessing.get_context("fork").Pool(n_jobs) as pool:
-                for done in pool.imap_unordered(_forked_worker, groups):
-                    for k, res in done:
-                        if res is not None:
-                            out[k] = res
-        except Exception:  # no processes to be had: do it here
-            out.clear()
-        finally:
-            _FORKED = None
-    for k in todo:
-        if k not in out:
-            out[k] = _analyze_one(nests[k], options)
-    return out
+    def __call__(self, nr: Any) -> _Payload:
+        return (*nest_payload(nr, self.options), [d.to_dict() for d in nr.diagnostics])
 
 
 def _depends_on_time(diag: dict[str, Any]) -> bool:
@@ -865,7 +786,9 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
             nj = _slices_in(_remap_json(cached["nest"], remap), toks)
             sj = _slices_in(_remap_json(cached["summary"], remap), toks)
         found.append((site, nj, sj, _remap_json(cached.get("diagnostics", []), remap)))
-    for k, (nj, sj, nd) in _analyze_nests(nests, todo, options).items():
+    from tripcount.pipeline import run_nests
+
+    for k, (nj, sj, nd) in run_nests(nests, todo, options, _Render(options)).items():
         site = by_pos.get((nests[k].span.line, nests[k].span.column))
         found[k] = (site, nj, sj, nd)
         if site is None:

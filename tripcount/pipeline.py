@@ -10,12 +10,16 @@
 # isl operation budget (Options.time_limit), so that one hard nest cannot stop
 # the others; a nest that hits them keeps its completed counts and gets a
 # limit diagnostic (TC310). A file's nests share FILE_TIME_FACTOR x time_limit;
-# nests past it are listed as not analyzed (TC311).
+# nests past it are listed as not analyzed (TC311). The nests of a file run
+# on a pool of forked workers when that pays (run_nests), else serially; the
+# result cache (cache.py) asks run_nests for the nests it lacks, so every
+# entry point gets its results from this one driver.
 
 from __future__ import annotations
 
 import dataclasses
 import os
+import sys
 import time
 import traceback
 from collections.abc import Callable, Iterable
@@ -194,31 +198,126 @@ def _file_failure(path: str, text: str, stage: str, exc: BaseException, snippet:
     return result
 
 
+def _skipped(nest: Nest, options: Options) -> NestResult:
+    """A nest left out because its file's time budget is spent (TC311)."""
+    skipped = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
+    _complete_counts(skipped, "not analyzed (file budget spent)")
+    skipped.diagnostics.append(guard.FileBudgetSpent(
+        nest.span, seconds=guard.FILE_TIME_FACTOR * guard.time_limit_of(options), factor=guard.FILE_TIME_FACTOR))
+    return skipped
+
+
+def analyze_in_file(nest: Nest, options: Options, deadline: float) -> NestResult:
+    """One nest of a file whose budget ends at `deadline` (time.monotonic()); failures of the
+    set-up are contained like those of the analyses."""
+    if time.monotonic() > deadline:
+        return _skipped(nest, options)
+    try:
+        if nest.context is not None and not nest.context.get_space().is_params():
+            nest.context = nest.context.params()
+        return analyze_nest(nest, options)
+    except Exception as exc:  # analyze_nest contains its analyses; this guards the set-up
+        failed = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
+        failed.diagnostics.append(InternalError(
+            nest.span, what=f"set-up: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
+        return failed
+
+
 def analyze_nests(nests: Iterable[Nest], options: Options) -> list[NestResult]:
     """Analyze the nests of one file under the file's budget (FILE_TIME_FACTOR x time_limit).
 
     Nests past the budget are returned not analyzed, with a TC311 diagnostic.
     """
-    out: list[NestResult] = []
     deadline = guard.file_deadline(options)
-    for nest in nests:
-        if time.monotonic() > deadline:
-            skipped = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
-            _complete_counts(skipped, "not analyzed (file budget spent)")
-            skipped.diagnostics.append(guard.FileBudgetSpent(
-                nest.span, seconds=guard.FILE_TIME_FACTOR * guard.time_limit_of(options),
-                factor=guard.FILE_TIME_FACTOR))
-            out.append(skipped)
-            continue
+    return [analyze_in_file(nest, options, deadline) for nest in nests]
+
+
+# --------------------------------------------------------------------------
+# The worker pool: nests of one file on several processes, with a serial fallback
+
+ENV_JOBS = "TRIPCOUNT_JOBS"
+_FORKED: tuple[list[Nest], Options, Callable[[NestResult], Any], float] | None = None  # inherited, not pickled
+
+
+def jobs() -> int:
+    """Worker processes for analyzing nests: $TRIPCOUNT_JOBS, else the cores (at most 4)."""
+    try:
+        return max(1, int(os.environ.get(ENV_JOBS, "")))
+    except ValueError:
+        return max(1, min(os.cpu_count() or 1, 4))
+
+
+def _forked_worker(group: list[int]) -> list[tuple[int, Any]]:
+    assert _FORKED is not None
+    nests, options, render, deadline = _FORKED
+    out: list[tuple[int, Any]] = []
+    for k in group:
         try:
-            if nest.context is not None and not nest.context.get_space().is_params():
-                nest.context = nest.context.params()
-            out.append(analyze_nest(nest, options))
-        except Exception as exc:  # analyze_nest contains its analyses; this guards the set-up
-            failed = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
-            failed.diagnostics.append(InternalError(
-                nest.span, what=f"set-up: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
-            out.append(failed)
+            out.append((k, render(analyze_in_file(nests[k], options, deadline))))
+        except Exception:  # the parent analyzes it again and reports what happens there
+            out.append((k, None))
+    return out
+
+
+def work_groups(nests: list[Any], todo: list[int]) -> list[list[int]]:
+    """The nests at `todo` in groups for the workers, the likely slowest first.
+
+    Nests with the same iteration domains (the same loops, over the same or
+    other arrays, in any function) go to one worker: the engine's memo answers
+    the later ones' counts there, where two workers would each compute them. The order is
+    a guess from the shape (non-unit steps give periodic formulas, the slowest
+    part of a report; then depth and size), so that no long group starts last.
+    """
+    groups: dict[tuple[str, ...], list[int]] = {}
+    for k in todo:
+        groups.setdefault(tuple(str(lp.domain) for lp in nests[k].loops), []).append(k)
+
+    def guess(ks: list[int]) -> tuple[int, int, int]:
+        n = nests[ks[0]]
+        strided = sum(1 for lp in n.loops if lp.step not in (1, -1))
+        return (strided, len(ks) * (1 + len(n.loops)), len(n.statements))
+
+    return sorted(groups.values(), key=guess, reverse=True)
+
+
+def run_nests(nests: list[Nest], todo: list[int], options: Options,
+              render: Callable[[NestResult], Any]) -> dict[int, Any]:
+    """`render(result)` of the nests at indices `todo` of one file, under the file's budget.
+
+    Several processes when it pays: workers are forked after the model is
+    built, so they inherit the nests (isl objects do not pickle) and every
+    import; only what `render` makes (JSON) comes back. Forking is used only
+    from a single-threaded process (the command line), never from the
+    language server, and never off Linux-like systems; otherwise, or when no
+    process can be had, the nests are analyzed here, one after the other.
+    """
+    global _FORKED
+    deadline = guard.file_deadline(options)
+    out: dict[int, Any] = {}
+    n_jobs = min(jobs(), len(todo))
+    import threading
+
+    can_fork = (n_jobs > 1 and hasattr(os, "fork") and threading.active_count() == 1
+                and sys.platform.startswith("linux"))
+    groups = work_groups(nests, todo) if can_fork else []
+    if len(groups) > 1:
+        n_jobs = min(n_jobs, len(groups))
+        import multiprocessing
+
+        _FORKED = (nests, options, render, deadline)
+        try:
+            with multiprocessing.get_context("fork").Pool(n_jobs) as pool:
+                for done in pool.imap_unordered(_forked_worker, groups):
+                    for k, res in done:
+                        if res is not None:
+                            out[k] = res
+        except Exception:  # no processes to be had: do it here
+            out.clear()
+        finally:
+            _FORKED = None
+    for k in todo:
+        if k not in out:
+            out[k] = render(analyze_in_file(nests[k], options, deadline))
     return out
 
 
