@@ -135,3 +135,29 @@ def test_snippet_with_declarations_gives_bytes(run_cli):
     nest = json.loads(out)["files"][0]["nests"][0]
     assert nest["statements"][0]["count"]["value"] == 4096
     assert nest["footprint"]["bytes"]["value"] == 64 * 64 * 8
+
+
+def test_entry_points_do_not_import_each_other():
+    # cli dispatches to the commands; the gate and the language server share
+    # library modules (config, gate.findings) and never import cli or each other's command
+    import ast
+    import pathlib
+
+    pkg = pathlib.Path(__file__).resolve().parent.parent / "tripcount"
+
+    def imports(path):
+        out = set()
+        for node in ast.walk(ast.parse(path.read_text())):
+            if isinstance(node, ast.ImportFrom) and node.module:
+                out.add(node.module)
+                out.update(f"{node.module}.{a.name}" for a in node.names)
+            elif isinstance(node, ast.Import):
+                out.update(a.name for a in node.names)
+        return out
+
+    for path in [pkg / "lsp.py", *sorted((pkg / "gate").glob("*.py"))]:
+        found = imports(path)
+        assert "tripcount.cli" not in found, path
+        if path.name != "command.py":
+            assert "tripcount.gate.command" not in found, path
+        assert "tripcount.lsp" not in found, path

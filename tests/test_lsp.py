@@ -324,3 +324,11 @@ def test_server_survives_malformed_messages(tmp_path):
         if s.proc.poll() is None:
             s.proc.kill()
             s.proc.wait()
+
+
+@needs_pipeline
+def test_the_editor_reports_unknown_suppression_kinds_like_the_gate(tmp_path, private_cache):
+    text = "void f(int n, double *a) {\n  for (int i = 0; i < n; i++)  // tripcount: allow speed\n    a[i] = 0;\n}\n"
+    (tmp_path / "f.c").write_text(text)
+    a = lsp.analyze_document(str(tmp_path / "f.c"), text)
+    assert [(f["code"], f["line"]) for f in a.findings] == [("TC620", 2)]

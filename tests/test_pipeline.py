@@ -103,9 +103,13 @@ def test_analyze_check_and_serve_give_the_same_numbers_on_the_corpus(tmp_path, p
     import json
     import shutil
 
-    from tripcount import check, lsp
+    from tripcount import lsp
     from tripcount.analysis.summary import NestSummary
-    from tripcount.cli import build_parser, main
+    from tripcount.cli import main
+    from tripcount.config import CommandLine
+    from tripcount.gate.baseline import Git
+    from tripcount.gate.command import check_file
+    from tripcount.gate.readings import summaries_of
 
     root = os.path.join(os.path.dirname(__file__), "..", "corpus")
     names = sorted(n for n in os.listdir(root) if n.endswith(".c"))
@@ -123,13 +127,11 @@ def test_analyze_check_and_serve_give_the_same_numbers_on_the_corpus(tmp_path, p
 
     reported = {k: [_numbers_of_report(n) for n in v] for k, v in cli("analyze", "--format", "json", *names).items()}
     assert sum(len(v) for v in reported.values()) >= 40
-    args = build_parser().parse_args(["check"])
     for run in ("cold", "warm"):
         checked = cli("check", "--format", "json", *names)
         assert {k: [_numbers_of_report(n) for n in v] for k, v in checked.items()} == reported, run
         for name in names:
-            gate = [_numbers_of_summary(n) for n in check.summaries_of(check.check_file(name, args, check.Git(),
-                                                                                            True).result)]
+            gate = [_numbers_of_summary(n) for n in summaries_of(check_file(name, CommandLine(), Git(), True).result)]
             assert [(c, t, i) for c, t, _ws, i in gate] == [(c, t, i) for c, t, _ws, i in reported[name]]
             a = lsp.analyze_document(str(tmp_path / name), (tmp_path / name).read_text())
             assert [_numbers_of_summary(n) for n in a.nests] == gate, (run, name)

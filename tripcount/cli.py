@@ -14,17 +14,20 @@ from collections.abc import Sequence
 from typing import TextIO
 
 from tripcount import __version__
-from tripcount.config import Config, ConfigError, load_config, parse_bytes, parse_sizes
+from tripcount.config import (
+    CommandLine,
+    Config,
+    ConfigError,
+    UsageError,
+    build_options,
+    load_config,
+)
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
 from tripcount.options import Options
 from tripcount.sources import output_clash
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
-
-
-class UsageError(Exception):
-    """Bad command-line input (exit status 2)."""
 
 
 class _Parser(argparse.ArgumentParser):
@@ -80,48 +83,8 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def options_from(args: argparse.Namespace, config: Config) -> Options:
-    """Merge configuration and command line into Options (the command line wins)."""
-    o = Options()
-    cfg = config.table
-    try:
-        at = cfg.get("at", {})
-        if isinstance(at, str):
-            o.at.update(parse_sizes(at))
-        elif isinstance(at, dict):
-            o.at.update({str(k): int(v) for k, v in at.items()})
-        for text in args.at:
-            o.at.update(parse_sizes(text))
-    except (ValueError, TypeError) as exc:
-        raise UsageError(f"--at: {exc}") from None
-    assumptions = []
-    if cfg.get("assume"):
-        a = cfg["assume"]
-        assumptions.extend(a if isinstance(a, list) else [a])
-    assumptions.extend(args.assume)
-    o.assume = ", ".join(str(x) for x in assumptions) or None
-    o.verify = bool(getattr(args, "verify", False))
-    o.time_limit = args.time_limit or float(cfg.get("time_limit", o.time_limit))
-    o.max_pieces = args.max_pieces or int(cfg.get("max_pieces", o.max_pieces))
-    o.line_size = args.line_size or int(cfg.get("line_size", 0)) or 0
-    caches = {str(k).upper(): parse_bytes(v) for k, v in cfg.get("caches", {}).items()}
-    try:
-        for text in args.cache:
-            name, _, size = text.partition("=")
-            caches[name.strip().upper()] = parse_bytes(size)
-    except ValueError as exc:
-        raise UsageError(f"--cache: {exc}") from None
-    o.caches = caches
-    o.elem_size = args.elem_size or cfg.get("elem_size")
-    o.solve_for = args.solve_for or cfg.get("solve_for")
-    o.threads = args.threads or cfg.get("threads")
-    o.work = args.work or cfg.get("work", o.work)
-    o.parallel_lines = tuple(args.parallel) + tuple(cfg.get("parallel", []))
-    o.imbalance_threshold = float(cfg.get("imbalance_threshold", o.imbalance_threshold))
-    o.peak_gflops = cfg.get("peak_gflops")
-    o.bandwidth_gbs = cfg.get("bandwidth_gbs")
-    if not (0 < o.time_limit < float("inf")) or o.max_pieces <= 0:
-        raise UsageError("--time-limit and --max-pieces must be positive")
-    return o
+    """Options of a command: its configuration under its command line (config.build_options)."""
+    return build_options(config.table, CommandLine.of(vars(args)))
 
 
 def open_output(path: str | None) -> TextIO:
@@ -275,7 +238,7 @@ def _main(argv: Sequence[str] | None, stdin: TextIO | None,
         if args.command == "analyze":
             return run_analyze(args, stdin, stdout, stderr)
         if args.command == "check":
-            from tripcount.check import run_check
+            from tripcount.gate.command import run_check
 
             return run_check(args, stdout, stderr)
         if args.command == "schema":

@@ -1,17 +1,27 @@
 # Configuration: `[tool.tripcount]` in pyproject.toml, found by walking up
 # from the analyzed file (or the working directory), merged under the
-# command-line options (the command line wins).
+# command-line options (the command line wins) into Options by the one
+# function `build_options`, which every entry point (analyze, check, serve)
+# calls; the command line reaches it as a plain CommandLine, never as the
+# argument parser's namespace.
 
 from __future__ import annotations
 
 import os
 import tomllib
-from dataclasses import dataclass, field
+from collections.abc import Mapping
+from dataclasses import dataclass, field, fields
 from typing import Any
+
+from tripcount.options import Options
 
 
 class ConfigError(ValueError):
     """A configuration file that cannot be used (the CLI exits with status 2)."""
+
+
+class UsageError(ValueError):
+    """Bad command-line input (exit status 2)."""
 
 
 @dataclass
@@ -90,3 +100,81 @@ def parse_bytes(text: str | int) -> int:
     if unit not in UNITS or not num:
         raise ValueError(f"cannot read size '{text}' (use e.g. 48KiB, 2MiB, 32768)")
     return int(float(num) * UNITS[unit])
+
+
+@dataclass(frozen=True)
+class CommandLine:
+    """The command-line options that feed Options; None or empty means "not given"."""
+
+    at: tuple[str, ...] = ()  # --at texts, in order
+    assume: tuple[str, ...] = ()
+    verify: bool = False
+    time_limit: float | None = None
+    max_pieces: int | None = None
+    line_size: int | None = None
+    cache: tuple[str, ...] = ()  # --cache L1=48KiB texts
+    elem_size: int | None = None
+    solve_for: str | None = None
+    threads: int | None = None
+    work: str | None = None
+    parallel: tuple[int, ...] = ()
+
+    @staticmethod
+    def of(values: Mapping[str, Any]) -> CommandLine:
+        """The fields of CommandLine found in `values` (e.g. vars() of parsed arguments)."""
+        out: dict[str, Any] = {}
+        for f in fields(CommandLine):
+            v = values.get(f.name)
+            if v is None:
+                continue
+            out[f.name] = tuple(v) if isinstance(v, list) else v
+        return CommandLine(**out)
+
+
+def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), detail: str = "full") -> Options:
+    """Options from a (merged) `[tool.tripcount]` table and the command line, which wins."""
+    try:
+        at: dict[str, int] = {}
+        cfg_at = table.get("at", {})
+        if isinstance(cfg_at, str):
+            at.update(parse_sizes(cfg_at))
+        elif isinstance(cfg_at, dict):
+            at.update({str(k): int(v) for k, v in cfg_at.items()})
+        for text in given.at:
+            at.update(parse_sizes(text))
+    except (ValueError, TypeError) as exc:
+        raise UsageError(f"--at: {exc}") from None
+    assumptions = []
+    if table.get("assume"):
+        a = table["assume"]
+        assumptions.extend(a if isinstance(a, list) else [a])
+    assumptions.extend(given.assume)
+    caches = {str(k).upper(): parse_bytes(v) for k, v in table.get("caches", {}).items()}
+    try:
+        for text in given.cache:
+            name, _, size = text.partition("=")
+            caches[name.strip().upper()] = parse_bytes(size)
+    except ValueError as exc:
+        raise UsageError(f"--cache: {exc}") from None
+    d = Options()
+    o = Options(
+        at=at,
+        assume=", ".join(str(x) for x in assumptions) or None,
+        verify=given.verify,
+        time_limit=given.time_limit or float(table.get("time_limit", d.time_limit)),
+        max_pieces=given.max_pieces or int(table.get("max_pieces", d.max_pieces)),
+        line_size=given.line_size or int(table.get("line_size", 0)) or 0,
+        caches=caches,
+        elem_size=given.elem_size or table.get("elem_size"),
+        solve_for=given.solve_for or table.get("solve_for"),
+        threads=given.threads or table.get("threads"),
+        work=given.work or table.get("work", d.work),
+        parallel_lines=tuple(given.parallel) + tuple(table.get("parallel", [])),
+        imbalance_threshold=float(table.get("imbalance_threshold", d.imbalance_threshold)),
+        peak_gflops=table.get("peak_gflops"),
+        bandwidth_gbs=table.get("bandwidth_gbs"),
+        detail=detail,
+    )
+    if not (0 < o.time_limit < float("inf")) or o.max_pieces <= 0:
+        raise UsageError("--time-limit and --max-pieces must be positive")
+    return o

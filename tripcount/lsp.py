@@ -17,7 +17,6 @@
 
 from __future__ import annotations
 
-import argparse
 import asyncio
 import logging
 import os
@@ -103,58 +102,39 @@ class Analysis:
         """(line, column, end_line, end_column) of a loop's `for (...)`."""
         key = (loop.span.line, loop.span.column)
         if key not in self.headers:
-            from tripcount.check import header_span
+            from tripcount.gate.suppress import header_span
 
             s = header_span(self.lines, *key)
             self.headers[key] = (s.line, s.column, s.end_line, s.end_column)
         return self.headers[key]
 
 
-def _default_args() -> argparse.Namespace:
-    from tripcount.cli import build_parser
-
-    return build_parser().parse_args(["check"])
-
-
 def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Analysis:
-    """Analyze a document's text with the configuration found from its path."""
+    """Analyze a document's text with the configuration found from its path.
+
+    Its findings are those `tripcount check` gives the file without a
+    baseline (the same gate.findings_for, budgets and suppression comments).
+    """
     from tripcount.cache import analyze_file_cached
-    from tripcount.check import (
-        Suppressions,
-        budget_findings,
-        budgets_from,
-        cache_levels,
-        effective_table,
-        summaries_of,
-    )
-    from tripcount.cli import options_from
-    from tripcount.config import Config, load_config
+    from tripcount.config import build_options, load_config
+    from tripcount.gate.budgets import budgets_from, cache_levels, effective_table
+    from tripcount.gate.findings import findings_for
+    from tripcount.gate.readings import summaries_of
 
     where = path or os.getcwd()
     config = load_config(where)
     table = effective_table(config, where) if path else dict(config.table)
     budgets = budgets_from(table, config.path)
-    options = options_from(_default_args(), Config(path=config.path, table=table))
+    options = build_options(table)
     result = analyze_file_cached(path or "<untitled>", text, options, use_cache=use_cache)
-    lines = text.split("\n")
     levels = cache_levels(options)
     a = Analysis(text=text, result=result, nests=summaries_of(result), at=dict(options.at), levels=levels,
-                 lines=lines)
-    if budgets.any():
-        sup = Suppressions.scan(text)
-        for n in a.nests:
-            outer = n.outer_loop()
-            base = sup.lines_for(outer.span.line) if outer else []
-            try:
-                found = budget_findings(n, budgets, options, lines, levels)
-            except ValueError as exc:  # e.g. a budget naming a cache level the machine lacks
-                a.findings.append({"line": n.span.line, "column": n.span.column, "end_line": n.span.line,
-                                   "end_column": n.span.column + 3, "severity": "warning", "code": "TC604",
-                                   "message": f"budgets not checked: {exc}"})
-                continue
-            for d in found:
-                if not sup.allows(d.code, base + sup.lines_for(d.span.line, d.span.end_line)):
-                    a.findings.append(d.to_dict())
+                 lines=text.split("\n"))
+    try:
+        a.findings = [d.to_dict() for d in findings_for(a.nests, text, budgets, options, levels)]
+    except ValueError as exc:  # e.g. a budget naming a cache level the machine lacks
+        a.findings = [{"line": 1, "column": 1, "end_line": 1, "end_column": 1, "severity": "warning",
+                       "code": "TC604", "message": f"budgets not checked: {exc}"}]
     return a
 
 
@@ -206,7 +186,8 @@ def _count_md(c: Quantity | None, unit: str = "") -> list[str]:
 
 
 def _ws_md(ws: WorkingSetSummary, levels: dict[str, int]) -> list[str]:
-    from tripcount.check import fmt_bytes, level_of
+    from tripcount.analysis.caches import fmt_bytes
+    from tripcount.gate.budgets import level_of
 
     scope = ws.scope or "this loop"
     out = [f"**working set** ({scope}): " + _count_md(ws.bytes, " bytes")[0]]
