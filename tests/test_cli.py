@@ -161,3 +161,33 @@ def test_entry_points_do_not_import_each_other():
         if path.name != "command.py":
             assert "tripcount.gate.command" not in found, path
         assert "tripcount.lsp" not in found, path
+
+
+def test_analyze_json_and_sarif_come_from_the_cache_and_no_cache_bypasses_it(run_cli, private_cache, monkeypatch):
+    # cold (computed, stored), warm (every nest from the cache: the analyses
+    # must not run) and --no-cache (computed, nothing read) give the same
+    # report as the driver's own JSON rendering of its results
+    from tripcount import pipeline
+    from tripcount.analysis.results import Report
+    from tripcount.options import Options
+    from tripcount.report.jsonout import report_json
+
+    args = ("analyze", FLUSH, "--at", "n=10,m=10", "--format", "json")
+    cold = run_cli(*args)
+    assert cold[0] == 0 and os.path.isdir(private_cache)
+    direct = report_json(Report([pipeline.analyze_file(FLUSH, Options(at={"n": 10, "m": 10}))], {"n": 10, "m": 10}))
+    assert json.loads(cold[1])["files"] == direct["files"]
+
+    def no_analysis(*a, **k):
+        raise AssertionError("a warm run analyzed a nest")
+
+    monkeypatch.setattr(pipeline, "analyze_nest", no_analysis)
+    assert run_cli(*args) == cold
+    assert run_cli(*args, "--format", "sarif")[0] == 0
+    monkeypatch.undo()
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(private_cache))
+    import shutil
+
+    shutil.rmtree(private_cache)
+    assert run_cli(*args, "--no-cache") == cold
+    assert not os.path.exists(private_cache)

@@ -647,6 +647,26 @@ def analyze_file_uncached(path: str, text: str, options: Options) -> dict[str, A
             "diagnostics": [d.to_dict() for d in fr.all_diagnostics()]}
 
 
+def analyze_path_cached(path: str, options: Options, use_cache: bool = True) -> dict[str, Any]:
+    """The file JSON (jsonout.file_json form) of the file at `path`, from the cache where possible.
+
+    An unreadable file gives the pipeline's file-level diagnostic; invalid
+    UTF-8 is reported first, as the pipeline does.
+    """
+    try:
+        text, bad = read_source(path)
+    except (OSError, ValueError):
+        from tripcount.pipeline import analyze_file
+        from tripcount.report.jsonout import file_json
+
+        return file_json(analyze_file(path, options))
+    out = analyze_file_cached(path, text, options, use_cache=use_cache)
+    out = {k: v for k, v in out.items() if k != "summaries"}
+    if bad is not None:
+        out["diagnostics"] = _sort_diags([bad, *out["diagnostics"]])
+    return out
+
+
 def nest_payload(nr: Any, options: Options) -> tuple[dict[str, Any], dict[str, Any]]:
     """A nest result's report JSON and typed summary JSON (formulas printed alike in both)."""
     from tripcount.engine.readable import plain_forms
@@ -676,7 +696,7 @@ def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool 
     fkey = _file_key(text, options)
     hit = store.get("file", fkey)
     if hit is not None and isinstance(hit.get("file"), dict):
-        return {**hit["file"], "path": path}
+        return {"path": path, **{k: v for k, v in hit["file"].items() if k != "path"}}
     layout = locate(text, path, options)
     result = _assemble(layout, store)
     if result is None:

@@ -126,13 +126,39 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     if files and not paths:
         stderr.write("tripcount: error: no .c or .h files under the given directories\n")
         return EXIT_USAGE
+    # The JSON and SARIF reports are renderings of the file JSON, which the result
+    # cache keeps per nest; the text report and the plot need the live formulas,
+    # and --verify is a fresh check by definition.
+    cached = args.format in ("json", "sarif") and not args.plot and not options.verify
+    file_json: list[dict] = []
     for path in paths:
-        results.append(analyze_file(path, options))
-    unmatched_parallel(results, options)
+        if cached:
+            from tripcount.cache import analyze_path_cached
+
+            file_json.append(analyze_path_cached(path, options, use_cache=not args.no_cache))
+        else:
+            results.append(analyze_file(path, options))
+    loop_lines = {lr.loop.span.line for fr in results for nr in fr.nests for lr in nr.loops}
+    loop_lines |= {lp["line"] for f in file_json for n in f["nests"] for lp in n["loops"]}
+    unmatched = unmatched_parallel(loop_lines, options, (results[0].path if results else file_json[0]["path"])
+                                   if results or file_json else "")
+    if unmatched and results:
+        results[0].diagnostics.extend(unmatched)
+    elif unmatched:
+        file_json[0]["diagnostics"] = sorted(file_json[0]["diagnostics"] + [d.to_dict() for d in unmatched],
+                                             key=lambda d: (d["line"], d["column"], d["code"]))
     report = Report(files=results, at=options.at, settings=settings_of(options))
     out = open_output(args.output) if args.output else stdout
     try:
-        get_reporter(args.format, out).write(report)
+        reporter = get_reporter(args.format, out)
+        if cached:
+            from tripcount.report.jsonout import report_json
+
+            whole = report_json(report)
+            whole["files"] += file_json
+            reporter.write(whole)
+        else:
+            reporter.write(report)
     finally:
         if args.output:
             out.close()
@@ -143,12 +169,13 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
         if why:
             stderr.write(f"tripcount: no plot: {why}\n")
     status = EXIT_OK
-    for fr in results:
-        for d in fr.all_diagnostics():
-            if d.code in ("TC901",):
-                status = EXIT_USAGE
-            elif d.code == "TC302" and status == EXIT_OK:
-                status = EXIT_FINDINGS
+    codes = [d.code for fr in results for d in fr.all_diagnostics()]
+    codes += [d["code"] for f in file_json for d in f["diagnostics"]]
+    for code in codes:
+        if code == "TC901":
+            status = EXIT_USAGE
+        elif code == "TC302" and status == EXIT_OK:
+            status = EXIT_FINDINGS
     if sources and all(not fr.nests for fr in results[: len(sources)]) and _not_c(results[: len(sources)]):
         stderr.write("tripcount: error: the snippet could not be read as C (see the diagnostics above)\n")
         status = EXIT_USAGE
@@ -173,12 +200,12 @@ class UnmatchedParallel(Diagnostic):
     template = "--parallel {line}: no loop of the analysed files starts on line {line}"
 
 
-def unmatched_parallel(results: list, options: Options) -> None:
-    """Report --parallel lines that match no loop (the balance analysis sees one nest at a time)."""
-    lines = {lr.loop.span.line for fr in results for nr in fr.nests for lr in nr.loops}
-    for line in options.parallel_lines:
-        if line not in lines and results:
-            results[0].diagnostics.append(UnmatchedParallel(Span.point(1, 1), path=results[0].path, line=line))
+def unmatched_parallel(loop_lines: set[int], options: Options, path: str) -> list[Diagnostic]:
+    """--parallel lines on which no analysed loop starts (the balance analysis sees one nest at a time)."""
+    if not path:
+        return []
+    return [UnmatchedParallel(Span.point(1, 1), path=path, line=line)
+            for line in options.parallel_lines if line not in loop_lines]
 
 
 def settings_of(options: Options) -> dict:

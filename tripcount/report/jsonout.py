@@ -125,7 +125,7 @@ def report_json(report: Report) -> dict[str, Any]:
 class JsonReporter(Reporter):
     """Writes the report as one JSON document."""
 
-    def write(self, report: Report) -> None:
-        """Render `report` as indented JSON."""
-        json.dump(report_json(report), self.stream, indent=2)
+    def write(self, report: Report | dict[str, Any]) -> None:
+        """Render `report` (a Report, or its JSON form as the result cache assembles it) as indented JSON."""
+        json.dump(report if isinstance(report, dict) else report_json(report), self.stream, indent=2)
         self.stream.write("\n")
