@@ -191,3 +191,27 @@ def test_analyze_json_and_sarif_come_from_the_cache_and_no_cache_bypasses_it(run
     shutil.rmtree(private_cache)
     assert run_cli(*args, "--no-cache") == cold
     assert not os.path.exists(private_cache)
+
+
+def test_last_resort_turns_any_exception_into_status_2(monkeypatch):
+    # the one last-resort handler is cli.main's
+    import io
+
+    from tripcount import cli
+
+    def crash(*a):
+        raise KeyError("x")
+
+    monkeypatch.setattr(cli, "_main", crash)
+    err = io.StringIO()
+    assert cli.main([], stderr=err) == 2
+    lines = err.getvalue().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("tripcount: error: internal error (KeyError")
+
+    def interrupted(*a):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(cli, "_main", interrupted)
+    assert cli.main([], stderr=io.StringIO()) == 130
+    monkeypatch.setattr(cli, "_main", lambda *a: 1)
+    assert cli.main([], stderr=io.StringIO()) == 1

@@ -3,7 +3,6 @@
 
 from __future__ import annotations
 
-import io
 import threading
 import time
 
@@ -209,23 +208,6 @@ def test_file_budget_marks_the_remaining_nests(monkeypatch):
     fr = pipeline.analyze_file(FLUSH, Options(at={"n": 4}))
     assert all(any(d.code == "TC311" for d in nr.diagnostics) for nr in fr.nests)
     assert all(sr.count.value is None for nr in fr.nests for sr in nr.statements)
-
-
-def test_last_resort_turns_any_exception_into_status_2():
-    err = io.StringIO()
-
-    def crash() -> int:
-        raise KeyError("x")
-
-    assert guard.last_resort(crash, err) == 2
-    lines = err.getvalue().splitlines()
-    assert len(lines) == 1 and lines[0].startswith("tripcount: error: internal error (KeyError")
-
-    def interrupted() -> int:
-        raise KeyboardInterrupt
-
-    assert guard.last_resort(interrupted, io.StringIO()) == 130
-    assert guard.last_resort(lambda: 1, io.StringIO()) == 1
 
 
 def test_limit_diagnostics_are_registered():

@@ -34,12 +34,11 @@ import math
 import os
 import select
 import signal
-import sys
 import threading
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
-from typing import Any, TextIO
+from typing import Any
 
 import islpy as isl
 
@@ -491,40 +490,6 @@ def file_deadline(options: Options) -> float:
     return time.monotonic() + FILE_TIME_FACTOR * time_limit_of(options)
 
 
-def last_resort(run: Callable[[], int], stderr: TextIO | None = None) -> int:
-    """Call `run`; any exception becomes a one-line tool error and exit status 2.
-
-    KeyboardInterrupt gives 130 and a closed output pipe 0, as the CLI documents.
-    """
-    try:
-        return run()
-    except KeyboardInterrupt:
-        _say(stderr, "tripcount: interrupted")
-        return 130
-    except BrokenPipeError:
-        return 0
-    except NestLimit as exc:  # a budget escaping its nest: still a clean stop
-        _say(stderr, f"tripcount: error: limit: {exc}")
-        return 2
-    except (Exception, RecursionError, MemoryError) as exc:  # noqa: BLE001 - last resort by design
-        where = ""
-        tb = exc.__traceback__
-        while tb is not None and tb.tb_next is not None:
-            tb = tb.tb_next
-        if tb is not None:
-            where = f" at {os.path.basename(tb.tb_frame.f_code.co_filename)}:{tb.tb_lineno}"
-        _say(stderr, f"tripcount: error: internal error ({type(exc).__name__}: {_short(exc)}{where}); "
-                     "please report it")
-        return 2
-
-
 def _short(exc: BaseException, limit: int = 200) -> str:
     text = " ".join(str(exc).split())
     return text if len(text) <= limit else text[: limit - 3] + "..."
-
-
-def _say(stream: TextIO | None, line: str) -> None:
-    stream = stream or sys.stderr
-    with contextlib.suppress(Exception):
-        stream.write(line + "\n")
-        stream.flush()

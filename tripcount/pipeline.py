@@ -40,20 +40,9 @@ Analysis = Callable[[NestResult, Options], None]
 
 def analyses() -> list[tuple[str, Analysis]]:
     """The analyses run on every nest, in order (counts first: others read them)."""
-    out: list[tuple[str, Analysis]] = [("counts", counts.analyze)]
-    try:
-        from tripcount.analysis import footprint
+    from tripcount.analysis import balance, footprint
 
-        out.append(("footprint", footprint.analyze))
-    except ImportError:
-        pass
-    try:
-        from tripcount.analysis import balance
-
-        out.append(("balance", balance.analyze))
-    except ImportError:
-        pass
-    return out
+    return [("counts", counts.analyze), ("footprint", footprint.analyze), ("balance", balance.analyze)]
 
 
 def _where(exc: BaseException) -> str:
