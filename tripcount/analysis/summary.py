@@ -369,7 +369,8 @@ def _working_set(ws: Any) -> WorkingSetSummary:
     worst = getattr(fp, "worst", None)
     reasons = []
     if upper:
-        reasons.append(worst.method if worst is not None and worst.bound else "an upper bound")
+        reasons.append(worst.method.removeprefix("upper bound: ") if worst is not None and worst.bound
+                       else "the exact value was not computed")
     if lower:
         reasons += [n[len("lower bound: "):] for n in fp.notes if n.startswith("lower bound: ")] \
             or ["references that are not modelled are left out"]
