@@ -289,3 +289,22 @@ def test_results_cut_short_by_time_are_not_kept():
               {"code": "TC402", "message": "no footprint formula: no formula within the footprint "
                                            "analysis's time of 0.5 s per formula"}):
         assert cache._depends_on_time(d), d
+
+
+def test_an_entry_without_its_summary_is_a_miss(tmp_path):
+    # an entry written by other code (or cut short) must be computed again, never crash the gate
+    import shutil
+
+    st = cache.Store(str(tmp_path))
+    o = Options(at={"N": 8})
+    first = cache.analyze_file_cached("t.c", TIDE, o, store=st)
+    for dirpath, _dirs, files in os.walk(os.path.join(st.root, "nest")):
+        for name in files:
+            p = os.path.join(dirpath, name)
+            with open(p, encoding="utf-8") as f:
+                e = json.load(f)
+            e.pop("summary", None)
+            with open(p, "w", encoding="utf-8") as f:
+                json.dump(e, f)
+    shutil.rmtree(os.path.join(st.root, "file"), ignore_errors=True)
+    assert cache.analyze_file_cached("t.c", TIDE, o, store=st) == first

@@ -720,13 +720,22 @@ def _prune_once(store: Store) -> None:
         store.prune()
 
 
+def _usable_nest_entry(e: dict[str, Any] | None) -> bool:
+    """An entry with a nest has both its renderings (report JSON and typed summary); else it is a miss."""
+    if e is None:
+        return False
+    if e.get("nest") is None:
+        return True  # a loop the model made no nest of
+    return isinstance(e.get("nest"), dict) and isinstance(e.get("summary"), dict)
+
+
 def _assemble(layout: Layout, store: Store) -> tuple[list, list, list, bool] | None:
     """The file's nests and diagnostics from cache entries alone, or None on any miss."""
     toks = layout.tokens
     entries = []
     for s in layout.sites:
         e = store.get("nest", s.key)
-        if e is None:
+        if not _usable_nest_entry(e):
             return None
         entries.append((s, e))
     fn_entries = []
@@ -796,7 +805,7 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
     for k, nest in enumerate(nests):
         site = by_pos.get((nest.span.line, nest.span.column))
         cached = store.get("nest", site.key) if site is not None else None
-        if cached is None:
+        if not _usable_nest_entry(cached):
             found.append(None)
             todo.append(k)
             continue
