@@ -427,15 +427,15 @@ def _run(exe: str, stdin: str, timeout: float, threads: int | None = None) -> st
 
 
 def _build_and_run(program: str, openmp: bool, stdin: str, timeout: float,
-                   threads: int | None = None) -> str:
+                   threads: int | None = None, flags: Sequence[str] = ()) -> str:
     with tempfile.TemporaryDirectory(prefix="tripcount-oracle-") as tmp:
-        return _run(_build(program, openmp, tmp, timeout), stdin, timeout, threads)
+        return _run(_build(program, openmp, tmp, timeout, flags), stdin, timeout, threads)
 
 
 def _run_counts(c_source: str, function: str, statements: Sequence[SpanTuple],
                 param_types: Sequence[ParamType], points: Sequence[Mapping[str, int]],
                 symbols: Mapping[str, str] | None, per_thread: bool, threads: int | None,
-                timeout: float, path: str) -> list[list[int]]:
+                timeout: float, path: str, flags: Sequence[str] = ()) -> list[list[int]]:
     syms = list(symbols or {})
     openmp = openmp_available()
     if per_thread and not openmp:
@@ -443,7 +443,7 @@ def _run_counts(c_source: str, function: str, statements: Sequence[SpanTuple],
     edited = instrument(c_source, function, statements, symbols, per_thread)
     program = (_prelude(len(statements), syms, per_thread, path) + edited
                + _driver(function, param_types, syms, len(statements), per_thread))
-    out = _build_and_run(program, openmp, _stdin_for(param_types, syms, points), timeout, threads)
+    out = _build_and_run(program, openmp, _stdin_for(param_types, syms, points), timeout, threads, flags)
     rows = [line.split()[1:] for line in out.splitlines() if line.startswith("point")]
     if len(rows) != len(points):
         raise OracleError(f"expected {len(points)} result lines, got {len(rows)}:\n{out[-2000:]}")
@@ -453,7 +453,7 @@ def _run_counts(c_source: str, function: str, statements: Sequence[SpanTuple],
 def count_statements(c_source: str, function: str, statements: Sequence[SpanTuple],
                      param_types: Sequence[ParamType], points: Sequence[Mapping[str, int]],
                      symbols: Mapping[str, str] | None = None, timeout: float = DEFAULT_TIMEOUT,
-                     path: str = "input.c") -> list[list[int]]:
+                     path: str = "input.c", flags: Sequence[str] = ()) -> list[list[int]]:
     """Execution count of every listed statement, per point, as gcc runs `function`.
 
     statements: spans (line, column, end_line, end_column), 1-based, exclusive
@@ -464,7 +464,7 @@ def count_statements(c_source: str, function: str, statements: Sequence[SpanTupl
     Returns counts[point][statement]. Raises OracleError on failure.
     """
     return _run_counts(c_source, function, statements, param_types, points, symbols,
-                       per_thread=False, threads=None, timeout=timeout, path=path)
+                       per_thread=False, threads=None, timeout=timeout, path=path, flags=flags)
 
 
 def count_per_thread(c_source: str, function: str, statements: Sequence[SpanTuple],

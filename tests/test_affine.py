@@ -418,7 +418,7 @@ def test_three_thousand_nested_ifs_stop_at_the_limit_with_a_position():
     head = "void f(int N, int x, double *A) { for (int i = 0; i < N; i++) "
     text = head + "if (x) " * 3000 + "A[i] = 1; }\n"
     nests, file_diags, elapsed = _deep_run(text)
-    assert elapsed < 2.0
+    assert elapsed < 20.0  # a guard against quadratic blow-up (minutes), not a speed target
     (nest,) = nests
     assert "TC900" not in codes(nest) and file_diags == []
     deep = [d for d in nest.diagnostics if d.code == "TC112"]
@@ -435,7 +435,7 @@ def test_twenty_thousand_nested_blocks_are_cut_inside_and_outside_nests():
     inner = "void f(int N, double *A) { for (int i = 0; i < N; i++) " + "{" * 20000 + "A[i] = 1;" + "}" * 20000 + " }\n"
     outer = "void g(int N, double *A) { " + "{" * 20000 + "A[0] = 1;" + "}" * 20000 + "\n for (int i = 0; i < N; i++) A[i] = 2; }\n"
     nests, file_diags, elapsed = _deep_run(inner + outer)
-    assert elapsed < 2.0
+    assert elapsed < 20.0  # a guard against quadratic blow-up (minutes), not a speed target
     f_nest, g_nest = nests
     assert [d.code for d in f_nest.diagnostics] == ["TC112"]
     assert f_nest.diagnostics[0].span.line == 1
@@ -448,7 +448,7 @@ def test_twenty_thousand_nested_blocks_are_cut_inside_and_outside_nests():
 def test_deep_expression_gets_its_own_diagnostic():
     text = "void f(int N, double *A) { for (int i = 0; i < N; i++) A[i] = " + " + ".join(["A[i]"] * 5000) + "; }\n"
     nests, file_diags, elapsed = _deep_run(text)
-    assert elapsed < 2.0
+    assert elapsed < 20.0  # a guard against quadratic blow-up (minutes), not a speed target
     (nest,) = nests
     deep = [d for d in nest.diagnostics if d.code == "TC220"]
     assert len(deep) == 1 and deep[0].span.line == 1

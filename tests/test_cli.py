@@ -215,3 +215,19 @@ def test_last_resort_turns_any_exception_into_status_2(monkeypatch):
     assert cli.main([], stderr=io.StringIO()) == 130
     monkeypatch.setattr(cli, "_main", lambda *a: 1)
     assert cli.main([], stderr=io.StringIO()) == 1
+
+
+def test_unreadable_assumption_is_a_usage_error(run_cli):
+    code = "for (i = 0; i < n; i++) s += a[i];"
+    status, _, err = run_cli("analyze", "--code", code, "--assume", "n*n > 4", "--at", "n=10")
+    assert status == 2 and "--assume" in err and "not affine" in err
+
+
+def test_at_names_that_no_nest_has(run_cli):
+    code = "for (i = 0; i < n; i++) s += a[i];"
+    status, out, err = run_cli("analyze", "--code", code, "--at", "N=1000")
+    assert status == 2 and "N (did you mean n?)" in err and out == ""
+    status, out, err = run_cli("analyze", "--code", code, "--at", "N=1000,n=5")
+    assert status == 0 and "warning" in err and "= 5" in out
+    status, _, err = run_cli("analyze", "--code", code, "--at", "*=7")
+    assert status == 0 and err == ""

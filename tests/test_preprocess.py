@@ -284,7 +284,7 @@ def test_exponential_macro_use_is_capped_quickly_and_left_as_written():
     pre = preprocess(text)
     elapsed = time.monotonic() - start
     grown_kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss - before
-    assert elapsed < 0.5, elapsed
+    assert elapsed < 5.0, elapsed  # a guard against a blow-up, not a speed target
     assert grown_kib < 200 * 1024, grown_kib  # bounded memory (ru_maxrss is in KiB on Linux)
     (diag,) = [d for d in pre.diagnostics if d.code == "TC118"]
     line = text.count("\n", 0, text.index("A40;")) + 1
@@ -303,7 +303,7 @@ def test_many_capped_uses_are_bounded_by_the_file_budget():
     text = _doubling(40, "y = " + " + ".join(["A40"] * 200) + ";\nz = A3;\n")
     start = time.monotonic()
     pre = preprocess(text)
-    assert time.monotonic() - start < 1.5
+    assert time.monotonic() - start < 15  # a guard against a blow-up, not a speed target
     codes = [d.code for d in pre.diagnostics]
     assert codes[-1] == "TC108" and set(codes[:-1]) == {"TC118"}  # capped uses, then the file budget
     assert "budget" in pre.diagnostics[-1].message

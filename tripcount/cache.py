@@ -41,6 +41,7 @@ from dataclasses import dataclass, field
 from typing import Any, TextIO
 
 from tripcount import __version__
+from tripcount.compdb import source_inputs
 from tripcount.options import Options
 from tripcount.paths import cache_dir
 from tripcount.sources import decode_source, read_bytes
@@ -410,12 +411,21 @@ def _outermost_fors(node: Any) -> Iterator[Any]:
 
 
 def locate(text: str, path: str, options: Options) -> Layout:
-    """Parse `text` with the front end and compute the cache keys of its nests."""
-    from tripcount.frontend import parse_text
+    """Parse `text` with the front end and compute the cache keys of its nests.
 
-    unit, diags = parse_text(text, path=path, snippet=False)
+    The keys include the build flags and the bytes of every header the file
+    may read (compdb.source_inputs), so a changed header is a miss.
+    """
+    from tripcount.diagnostics import BuildFlagsUnreadable
+    from tripcount.frontend import parse_text
+    from tripcount.ir import Span
+
+    includes, inputs_key, problem = source_inputs(path, text, options)
+    unit, diags = parse_text(text, path=path, snippet=False, includes=includes)
+    if problem is not None:
+        diags = [BuildFlagsUnreadable(Span.point(1, 1), reason=problem), *diags]
     toks = tokenize(text)
-    opt_key = options.cache_key()
+    opt_key = options.cache_key() + inputs_key
     fp = code_fingerprint()
     by_position = bool(options.parallel_lines)  # --parallel LINE ties results to absolute lines
 
@@ -633,8 +643,8 @@ def _sort_diags(diags: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return sorted(diags, key=lambda d: (d.get("line", 0), d.get("column", 0), d.get("code", "")))
 
 
-def _file_key(text: str, options: Options) -> str:
-    return _digest(["file", code_fingerprint(), options.cache_key(), text])
+def _file_key(path: str, text: str, options: Options) -> str:
+    return _digest(["file", code_fingerprint(), options.cache_key(), source_inputs(path, text, options)[1], text])
 
 
 def analyze_file_uncached(path: str, text: str, options: Options) -> dict[str, Any]:
@@ -693,7 +703,7 @@ def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool 
     store = store or Store()
     if not store.enabled:
         return analyze_file_uncached(path, text, options)
-    fkey = _file_key(text, options)
+    fkey = _file_key(path, text, options)
     hit = store.get("file", fkey)
     if hit is not None and isinstance(hit.get("file"), dict):
         return {"path": path, **{k: v for k, v in hit["file"].items() if k != "path"}}

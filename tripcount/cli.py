@@ -21,11 +21,12 @@ from tripcount.config import (
     UsageError,
     build_options,
     load_config,
+    parse_sizes,
 )
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
 from tripcount.options import Options
-from tripcount.sources import output_clash
+from tripcount.sources import collect_paths, output_clash
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 
@@ -55,6 +56,15 @@ def add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--parallel", action="append", type=int, default=[], metavar="LINE",
                    help="treat the loop on LINE as '#pragma omp parallel for' (repeatable)")
     p.add_argument("--no-cache", action="store_true", help="do not read or write the result cache")
+    p.add_argument("-I", dest="include", action="append", default=[], metavar="DIR",
+                   help="look for quoted and angle #include files in DIR too (repeatable)")
+    p.add_argument("-D", dest="define", action="append", default=[], metavar="NAME[=VALUE]",
+                   help="define a macro, as the compiler's -D (repeatable)")
+    p.add_argument("-U", dest="undefine", action="append", default=[], metavar="NAME",
+                   help="undefine a macro, as the compiler's -U (repeatable)")
+    p.add_argument("--compile-commands", metavar="PATH",
+                   help="compile_commands.json giving each file its -I/-D/-U (default: the one "
+                        "found beside the sources or in build/, up to the project root)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -84,7 +94,38 @@ def build_parser() -> argparse.ArgumentParser:
 
 def options_from(args: argparse.Namespace, config: Config) -> Options:
     """Options of a command: its configuration under its command line (config.build_options)."""
-    return build_options(config.table, CommandLine.of(vars(args)))
+    base = os.path.dirname(config.path) if config.path else None
+    return build_options(config.table, CommandLine.of(vars(args)), base=base)
+
+
+def check_assumptions(options: Options) -> None:
+    """--assume (and the configuration's `assume`) must be readable: raises UsageError."""
+    if not options.assume:
+        return
+    from tripcount.model import parse_assumptions
+
+    try:
+        parse_assumptions(options.assume)
+    except ValueError as exc:
+        raise UsageError(f"--assume: cannot read '{options.assume}': {exc}") from None
+
+
+def source_paths(files: list[str], options: Options) -> list[str]:
+    """The files to analyze: files as given; for a directory, its sources, or
+    with --compile-commands (or the configuration's), exactly the sources the
+    database compiles under it. Raises UsageError for an unreadable database."""
+    from tripcount.compdb import CompileDbError, compiled_sources, database
+
+    if not options.compile_commands:
+        return collect_paths(files)
+    try:
+        database(options.compile_commands)
+    except CompileDbError as exc:
+        raise UsageError(f"--compile-commands: {exc}") from None
+    out: list[str] = []
+    for p in files:
+        out.extend(compiled_sources(options.compile_commands, [p]) if os.path.isdir(p) else [p])
+    return out
 
 
 def open_output(path: str | None) -> TextIO:
@@ -97,7 +138,7 @@ def open_output(path: str | None) -> TextIO:
 def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr: TextIO) -> int:
     """`tripcount analyze`."""
     from tripcount.analysis.results import Report
-    from tripcount.pipeline import analyze_file, analyze_text, collect_paths
+    from tripcount.pipeline import analyze_file, analyze_text
     from tripcount.report import get_reporter
 
     sources: list[tuple[str, str | None]] = []  # (path, text for snippets)
@@ -119,10 +160,11 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
         return EXIT_USAGE
     config = load_config(files[0] if files else os.getcwd())
     options = options_from(args, config)
+    check_assumptions(options)
     results = []
     for path, text in sources:
         results.append(analyze_text(text or "", path, options, snippet=True))
-    paths = collect_paths(files)
+    paths = source_paths(files, options)
     if files and not paths:
         stderr.write("tripcount: error: no .c or .h files under the given directories\n")
         return EXIT_USAGE
@@ -147,6 +189,17 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     elif unmatched:
         file_json[0]["diagnostics"] = sorted(file_json[0]["diagnostics"] + [d.to_dict() for d in unmatched],
                                              key=lambda d: (d["line"], d["column"], d["code"]))
+    known = {p for fr in results for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names)}
+    known |= {p for f in file_json for n in f["nests"] for p in (*n.get("parameters", []), *n.get("symbolic", {}))}
+    given_at: dict[str, int] = {}  # only the command line's names: a project's configuration
+    for text in args.at:  # may well list sizes of kernels that this run does not read
+        given_at.update(parse_sizes(text))
+    unknown, none_used = unknown_sizes(given_at, known)
+    if unknown:
+        kind = "error" if none_used else "warning"
+        stderr.write(f"tripcount: {kind}: --at names no parameter of any nest: {unknown}\n")
+        if none_used:
+            return EXIT_USAGE
     report = Report(files=results, at=options.at, settings=settings_of(options))
     out = open_output(args.output) if args.output else stdout
     try:
@@ -198,6 +251,24 @@ class UnmatchedParallel(Diagnostic):
     severity = "warning"
     title = "parallel-line-unmatched"
     template = "--parallel {line}: no loop of the analysed files starts on line {line}"
+
+
+def unknown_sizes(at: dict[str, int], known: set[str]) -> tuple[str, bool]:
+    """Names given sizes that no nest has as a parameter ('N (did you mean n?)'),
+    and whether none of the given names is used at all (only when some nest
+    has parameters: a file without any says nothing about a typo)."""
+    import difflib
+
+    given = [n for n in at if n != "*"]
+    missing = [n for n in given if n not in known]
+    if not missing or not known:
+        return "", False
+    parts = []
+    for n in missing:
+        near = difflib.get_close_matches(n, sorted(known), n=1, cutoff=0.5) or \
+            [k for k in sorted(known) if k.lower() == n.lower()]
+        parts.append(f"{n} (did you mean {near[0]}?)" if near else n)
+    return ", ".join(parts), len(missing) == len(given)
 
 
 def unmatched_parallel(loop_lines: set[int], options: Options, path: str) -> list[Diagnostic]:

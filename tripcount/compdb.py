@@ -12,13 +12,17 @@
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
+import re
 import shlex
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 
-from tripcount.frontend.includes import Includes
+from tripcount.config import parse_define
+from tripcount.options import Includes, Options
 from tripcount.sources import read_bytes
 
 DB_NAME = "compile_commands.json"
@@ -37,12 +41,6 @@ class FileFlags:
     path: str  # absolute, normalised
     includes: Includes = field(default_factory=Includes)
     cxx: bool = False
-
-
-def parse_define(text: str) -> tuple[str, str]:
-    """-D text to (NAME, VALUE): `N=1024` -> ('N', '1024'), `DEBUG` -> ('DEBUG', '1')."""
-    name, eq, value = text.partition("=")
-    return name.strip(), (value if eq else "1")
 
 
 def flags_from_arguments(args: Sequence[str], directory: str) -> tuple[Includes, bool]:
@@ -119,24 +117,114 @@ def load(path: str) -> list[FileFlags]:
     return out
 
 
-def find(start: Iterable[str]) -> str | None:
-    """A compilation database for the given paths: in the first directory, or
-    one of its parents up to the filesystem root, either beside the sources or
-    in its `build/` subdirectory."""
-    for p in start:
-        d = os.path.abspath(p if os.path.isdir(p) else os.path.dirname(p) or ".")
-        while True:
-            for cand in (os.path.join(d, DB_NAME), os.path.join(d, "build", DB_NAME)):
-                if os.path.isfile(cand):
-                    return cand
-            parent = os.path.dirname(d)
-            if parent == d:
-                break
-            d = parent
-        break
-    return None
+def find(start: str) -> str | None:
+    """The compilation database that applies to a file or directory: in its
+    directory or a parent, beside the sources or in `build/`; the walk stops
+    at the project root (a directory with pyproject.toml or .git), so a
+    database elsewhere on the machine is never picked up."""
+    d = os.path.abspath(start if os.path.isdir(start) else os.path.dirname(start) or ".")
+    return _find_from(d)
+
+
+def _find_from(d: str) -> str | None:
+    while True:
+        for cand in (os.path.join(d, DB_NAME), os.path.join(d, "build", DB_NAME)):
+            if os.path.isfile(cand):
+                return cand
+        if any(os.path.exists(os.path.join(d, m)) for m in ("pyproject.toml", ".git")):
+            return None
+        parent = os.path.dirname(d)
+        if parent == d:
+            return None
+        d = parent
+
+
+def compiled_sources(db_path: str, roots: Iterable[str]) -> list[str]:
+    """The sources a database compiles that lie under one of `roots` (sorted)."""
+    real = [os.path.realpath(r) for r in roots]
+    out = []
+    for p in database(db_path):
+        rp = os.path.realpath(p)
+        if os.path.isfile(p) and any(rp == r or rp.startswith(r.rstrip(os.sep) + os.sep) for r in real):
+            out.append(p)
+    return sorted(out)
 
 
 def merge(base: Includes, extra: Includes) -> Includes:
     """Flags of a file's compile command, then the command line's own (which win)."""
     return Includes(base.dirs + extra.dirs, base.defines + extra.defines, base.undefines + extra.undefines)
+
+
+@lru_cache(maxsize=8)
+def _load_cached(path: str, stamp: tuple[int, int]) -> dict[str, FileFlags]:
+    return {f.path: f for f in load(path)}
+
+
+def database(path: str) -> dict[str, FileFlags]:
+    """The entries of a compilation database by absolute source path (read once
+    per process while the file is unchanged). Raises CompileDbError."""
+    try:
+        st = os.stat(path)
+    except OSError as exc:
+        raise CompileDbError(f"{path}: cannot read: {exc.strerror or exc}") from exc
+    return _load_cached(os.path.abspath(path), (st.st_mtime_ns, st.st_size))
+
+
+def includes_for(path: str | None, options: Options) -> Includes:
+    """The -I/-D/-U of one file: its compile command's (from --compile-commands,
+    else the database found for it, when it lists the file), then those of the
+    command line and the configuration. Raises CompileDbError."""
+    given = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
+    if not path or path.startswith("<"):
+        return given
+    db = options.compile_commands or find(path)
+    if db is None:
+        return given
+    entry = database(db).get(os.path.normpath(os.path.abspath(path)))
+    return given if entry is None else merge(entry.includes, given)
+
+
+_INCLUDE_RE = re.compile(rb'^[ \t]*#[ \t]*include[ \t]*([<"])([^">\n]+)[">]', re.M)
+MAX_FINGERPRINT_HEADERS = 256
+
+
+def inputs_fingerprint(text: str, path: str | None, includes: Includes) -> str:
+    """A digest of everything besides `text` that the front end may read for it:
+    the flags, and the bytes of every header it could include (found the way
+    the preprocessor finds them, every #include followed whatever the #if
+    around it), so a cached result goes stale when a header changes."""
+    h = hashlib.sha256(repr((includes.dirs, includes.defines, includes.undefines)).encode())
+    here = os.path.dirname(os.path.abspath(path)) if path and not path.startswith("<") else os.getcwd()
+    todo = [(here, text.encode("utf-8", "surrogatepass"))]
+    seen: set[str] = set()
+    while todo and len(seen) < MAX_FINGERPRINT_HEADERS:
+        base, data = todo.pop()
+        for m in _INCLUDE_RE.finditer(data):
+            name = m.group(2).decode("utf-8", "replace")
+            dirs = ([base] if m.group(1) == b'"' else []) + list(includes.dirs)
+            for d in dirs:
+                cand = os.path.realpath(os.path.join(d, name))
+                if cand in seen or not os.path.isfile(cand):
+                    continue
+                seen.add(cand)
+                try:
+                    body = read_bytes(cand)
+                except OSError:
+                    break
+                h.update(cand.encode("utf-8", "surrogatepass") + b"\0" + hashlib.sha256(body).digest())
+                todo.append((os.path.dirname(cand), body))
+                break
+    return h.hexdigest()[:32]
+
+
+def source_inputs(path: str | None, text: str, options: Options) -> tuple[Includes, str, str | None]:
+    """(the file's -I/-D/-U, the fingerprint of what the front end may read
+    besides `text`, and a reason when its compilation database is unreadable).
+    Never raises: a bad database means the command line's flags only."""
+    problem = None
+    try:
+        inc = includes_for(path, options)
+    except CompileDbError as exc:
+        inc = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
+        problem = str(exc)
+    return inc, inputs_fingerprint(text, path, inc), problem

@@ -118,6 +118,10 @@ class CommandLine:
     threads: int | None = None
     work: str | None = None
     parallel: tuple[int, ...] = ()
+    include: tuple[str, ...] = ()  # -I DIR
+    define: tuple[str, ...] = ()  # -D NAME[=VALUE]
+    undefine: tuple[str, ...] = ()  # -U NAME
+    compile_commands: str | None = None
 
     @staticmethod
     def of(values: Mapping[str, Any]) -> CommandLine:
@@ -131,8 +135,48 @@ class CommandLine:
         return CommandLine(**out)
 
 
-def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), detail: str = "full") -> Options:
-    """Options from a (merged) `[tool.tripcount]` table and the command line, which wins."""
+def parse_define(text: str) -> tuple[str, str]:
+    """-D text to (NAME, VALUE): `N=1024` -> ('N', '1024'), `DEBUG` -> ('DEBUG', '1')."""
+    name, eq, value = text.partition("=")
+    return name.strip(), (value if eq else "1")
+
+
+def _strings(table: Mapping[str, Any], key: str) -> list[str]:
+    v = table.get(key, [])
+    if isinstance(v, str):
+        v = [v]
+    if isinstance(v, dict) and key == "define":
+        v = [f"{k}={x}" for k, x in v.items()]
+    if not isinstance(v, list) or not all(isinstance(x, (str, int)) for x in v):
+        raise ConfigError(f"[tool.tripcount] {key}: expected a string or a list of strings")
+    return [str(x) for x in v]
+
+
+def _source_flags(table: Mapping[str, Any], given: CommandLine, base: str | None) -> dict[str, Any]:
+    """-I/-D/-U and the compilation database: the configuration's first (its
+    relative paths from its own directory), then the command line's."""
+    root = base or os.getcwd()
+    dirs = [os.path.normpath(os.path.join(root, d)) for d in _strings(table, "include")]
+    dirs += [os.path.abspath(d) for d in given.include]
+    defines = [parse_define(x) for x in _strings(table, "define") + list(given.define)]
+    if any(not n for n, _ in defines):
+        raise UsageError("-D: a macro name is expected (-D NAME or -D NAME=VALUE)")
+    db = given.compile_commands and os.path.abspath(given.compile_commands)
+    if not db and table.get("compile_commands"):
+        db = os.path.normpath(os.path.join(root, str(table["compile_commands"])))
+    if db and not os.path.isfile(db):
+        raise UsageError(f"--compile-commands: no such file: {db}")
+    return {"include_dirs": tuple(dirs), "defines": tuple(defines),
+            "undefines": tuple(_strings(table, "undefine") + list(given.undefine)),
+            "compile_commands": db or None}
+
+
+def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), detail: str = "full",
+                  base: str | None = None) -> Options:
+    """Options from a (merged) `[tool.tripcount]` table and the command line, which wins.
+
+    `base`: the directory of the configuration file, for its relative paths.
+    """
     try:
         at: dict[str, int] = {}
         cfg_at = table.get("at", {})
@@ -174,6 +218,7 @@ def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), 
         peak_gflops=table.get("peak_gflops"),
         bandwidth_gbs=table.get("bandwidth_gbs"),
         detail=detail,
+        **_source_flags(table, given, base),
     )
     if not (0 < o.time_limit < float("inf")) or o.max_pieces <= 0:
         raise UsageError("--time-limit and --max-pieces must be positive")

@@ -107,6 +107,15 @@ class InvalidEncoding(Diagnostic):
     template = "byte {byte} is not valid UTF-8; read as U+FFFD"
 
 
+class BuildFlagsUnreadable(Diagnostic):
+    """A compilation database that applies to the file cannot be read; the file is read without it."""
+
+    code = "TC191"
+    severity = "warning"
+    title = "compile-commands-unreadable"
+    template = "cannot use {reason}; this file is read without its build flags"
+
+
 def sort_key(d: Diagnostic) -> tuple[str, int, int, str]:
     """Order diagnostics by file, position and code."""
     return (d.path or "", d.span.line, d.span.column, d.code)

@@ -125,7 +125,7 @@ def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Ana
     config = load_config(where)
     table = effective_table(config, where) if path else dict(config.table)
     budgets = budgets_from(table, config.path)
-    options = build_options(table)
+    options = build_options(table, base=os.path.dirname(config.path) if config.path else None)
     result = analyze_file_cached(path or "<untitled>", text, options, use_cache=use_cache)
     levels = cache_levels(options)
     a = Analysis(text=text, result=result, nests=summaries_of(result), at=dict(options.at), levels=levels,

@@ -12,6 +12,20 @@ from collections.abc import Iterable
 from dataclasses import asdict, dataclass, field
 
 
+@dataclass(frozen=True)
+class Includes:
+    """How #include and the command-line macros are handled for one file.
+
+    `dirs`: the -I directories, in order. `defines`: -D NAME[=VALUE] as
+    (NAME, VALUE) pairs in command-line order, NAME possibly with a
+    parameter list (`F(x)`); `undefines`: -U NAME, applied after them.
+    """
+
+    dirs: tuple[str, ...] = ()
+    defines: tuple[tuple[str, str], ...] = ()
+    undefines: tuple[str, ...] = ()
+
+
 @dataclass
 class Options:
     """What to compute and at which sizes."""
@@ -34,6 +48,11 @@ class Options:
     # performance model (optional roofline)
     peak_gflops: float | None = None
     bandwidth_gbs: float | None = None
+    # how the sources are read: -I, -D NAME[=VALUE], -U, and a compilation database
+    include_dirs: tuple[str, ...] = ()
+    defines: tuple[tuple[str, str], ...] = ()
+    undefines: tuple[str, ...] = ()
+    compile_commands: str | None = None
     # "full": every analysis at every loop level; "gate": what `tripcount check`
     # holds against budgets and baselines (statement counts, innermost working
     # sets, balance), so that a cold pre-commit run stays fast

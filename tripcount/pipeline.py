@@ -28,7 +28,8 @@ from typing import Any
 from tripcount import guard
 from tripcount.analysis import counts
 from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, StatementResult
-from tripcount.diagnostics import InternalError, UnreadableFile
+from tripcount.compdb import source_inputs
+from tripcount.diagnostics import BuildFlagsUnreadable, InternalError, UnreadableFile
 from tripcount.frontend import parse_text
 from tripcount.ir import Span
 from tripcount.model import Nest, build_nests
@@ -312,11 +313,14 @@ def run_nests(nests: list[Nest], todo: list[int], options: Options,
 
 def analyze_text(text: str, path: str, options: Options, snippet: bool = False) -> FileResult:
     """Analyze C source text; `path` is used in diagnostics and the report."""
+    includes, _, problem = source_inputs(None if snippet else path, text, options)
     try:
-        unit, diags = parse_text(text, path=path, snippet=snippet)
+        unit, diags = parse_text(text, path=path, snippet=snippet, includes=includes)
     except Exception as exc:  # the front end promises not to raise; if it does, this file only
         return _finish(_file_failure(path, text, "front end", exc, snippet), path)
     result = FileResult(path=path, diagnostics=list(diags), source=text if snippet else None)
+    if problem is not None:
+        result.diagnostics.insert(0, BuildFlagsUnreadable(Span.point(1, 1), reason=problem))
     try:
         nests, model_diags = build_nests(unit, assume=options.assume, path=path)
     except Exception as exc:  # build_nests contains failures per nest; this is the last net

@@ -12,25 +12,12 @@ from dataclasses import dataclass, field
 from tripcount import ir
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.lexer import Tok
+from tripcount.options import Includes  # noqa: F401 - where the front end's users find it
 from tripcount.sources import read_bytes
 
 # Headers: how deep #include may nest, and how many headers one file may read.
 MAX_INCLUDE_DEPTH = 16
 MAX_HEADERS = 256
-
-
-@dataclass
-class Includes:
-    """How #include and the command-line macros are handled for one file.
-
-    `dirs`: the -I directories, in order. `defines`: -D NAME[=VALUE] as
-    (NAME, VALUE) pairs in command-line order, NAME possibly with a
-    parameter list (`F(x)`); `undefines`: -U NAME, applied after them.
-    """
-
-    dirs: tuple[str, ...] = ()
-    defines: tuple[tuple[str, str], ...] = ()
-    undefines: tuple[str, ...] = ()
 
 
 @dataclass

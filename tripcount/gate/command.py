@@ -62,7 +62,7 @@ def check_file(path: str, given: CommandLine, git: Git, use_cache: bool, baselin
     config = load_config(path)
     table = effective_table(config, path)
     budgets = budgets_from(table, config.path)
-    options = build_options(table, given, detail="gate")
+    options = build_options(table, given, detail="gate", base=os.path.dirname(config.path) if config.path else None)
     text, bad = read_source(path)
     result = analyze_file_cached(path, text, options, use_cache=use_cache)
     if bad is not None:
