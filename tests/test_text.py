@@ -37,3 +37,13 @@ def test_loop_without_variable_is_named_as_written(run_cli):
     _, out, _ = run_cli("analyze", "--code", "for (;;) { if (k >= n) break; k++; }")
     assert "for (;;)  (line 1)   not counted" in out
     assert "_u3f_" not in out
+
+
+def test_dominant_statement_is_the_largest_not_the_first_of_the_highest_degree(run_cli):
+    # S1 runs n times, S2 100*n times: both degree 1, S2 dominates (direct count)
+    code = "for (i = 0; i < n; i++) { t = 0; for (j = 0; j < 100; j++) t += a[i][j]; }"
+    status, out, _ = run_cli("analyze", "--code", code)
+    assert status == 0
+    assert "dominant S2 ~ 100*n, the largest count for large equal sizes" in out
+    status, out, _ = run_cli("analyze", "--code", code, "--at", "n=3")
+    assert "dominant S2 ~ 100*n, the largest count at the --at sizes" in out

@@ -8,10 +8,11 @@
 
 from __future__ import annotations
 
+from fractions import Fraction
 from typing import Any
 
 from tripcount import ir
-from tripcount.analysis.results import Count, FileResult, NestResult, Report
+from tripcount.analysis.results import Count, FileResult, NestResult, Report, StatementResult
 from tripcount.report.base import Reporter
 
 
@@ -176,17 +177,31 @@ class TextReporter(Reporter):
         w("\n")
 
     def write_summary(self, nr: NestResult) -> None:
-        """Degree of the dominant statement count and what doubling the sizes does."""
-        best = None
-        for sr in nr.statements:
-            f = sr.count.formula
-            if f is None or not f.pieces:
-                continue
-            d = f.degree()
-            if best is None or d > best[0]:
-                best = (d, sr, f)
-        if best is None or not nr.nest.params:
+        """Degree of the dominant statement count and what doubling the sizes does.
+
+        The dominant statement is the one with the largest count at the --at
+        sizes when every count has a value there, else the one with the
+        largest count when all sizes are equal and large (its generic piece
+        at 10^6): the first of the highest degree can be a lesser one
+        (n against 100*n, m*n*p/32 against m*n*p).
+        """
+        counted = [sr for sr in nr.statements if sr.count.formula is not None and sr.count.formula.pieces]
+        if not counted or not nr.nest.params:
             return
-        d, sr, f = best
-        self.stream.write(f"  work: degree {d} in the sizes (dominant {sr.stmt.id} ~ {f.leading()}); "
-                          f"doubling all sizes multiplies it by about {2 ** d}\n")
+        degree = max(sr.count.formula.degree() for sr in counted)
+        if all(sr.count.value is not None for sr in counted):
+            sr = max(counted, key=lambda x: x.count.value)
+            rule = "the largest count at the --at sizes"
+        else:
+            big = {p: 10**6 for p in nr.nest.params}
+
+            def size(x: StatementResult) -> Fraction:
+                try:
+                    return x.count.formula.pieces[0].poly.evaluate(big)
+                except (KeyError, ZeroDivisionError):
+                    return Fraction(-1)
+            sr = max(counted, key=size)
+            rule = "the largest count for large equal sizes"
+        f = sr.count.formula
+        self.stream.write(f"  work: degree {degree} in the sizes (dominant {sr.stmt.id} ~ {f.leading()}, "
+                          f"{rule}); doubling all sizes multiplies it by about {2 ** degree}\n")
