@@ -13,3 +13,14 @@ def test_memo_keeps_and_forgets_all_when_full():
     assert dict(m) == {1: "a", 2: "b", 3: "c"}
     m.keep(4, "d")  # full: emptied first, so memory stays bounded
     assert dict(m) == {4: "d"}
+
+
+def test_clear_all_empties_every_table():
+    from tripcount.engine.memo import clear_all
+
+    a: Memo[int, int] = Memo(5)
+    b: Memo[str, int] = Memo(5)
+    a.keep(1, 1)
+    b.keep("x", 2)
+    assert clear_all() >= 2
+    assert not a and not b

@@ -14,9 +14,10 @@ from collections.abc import Mapping
 
 import islpy as isl
 
-from tripcount.engine.memo import Memo
+from tripcount.engine.memo import Memo, clear_all
 from tripcount.engine.piecewise import Piece, PieceList, Piecewise, add_all, build, qpoly_identical
 from tripcount.engine.qpoly import Floor, QPoly
+from tripcount.engine.readable import plain_forms  # also registers the printer of QPoly
 from tripcount.engine.summation import EngineLimit, Limits, _State, sum_set
 
 __all__ = [
@@ -28,8 +29,10 @@ __all__ = [
     "Piecewise",
     "QPoly",
     "add_all",
+    "clear_memos",
     "count",
     "enumerate_count",
+    "plain_forms",
     "qpoly_identical",
     "sum_over",
 ]
@@ -101,6 +104,11 @@ def _sum_over(s: isl.Set, weight: QPoly, context: isl.Set | None, limits: Limits
         return build(terms, params, context, st, support=prepared.params())
     except RecursionError as e:  # pragma: no cover - defensive
         raise EngineLimit("nest too deep for the engine") from e
+
+
+def clear_memos() -> None:
+    """Forget every remembered result of the engine (benchmarks time the computation so)."""
+    clear_all()
 
 
 def count(

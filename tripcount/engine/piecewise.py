@@ -23,17 +23,10 @@ import islpy as isl
 from tripcount.engine.fmt import format_conditions
 from tripcount.engine.islconv import bset_constraints, exceeds, lin_isl, params_set
 from tripcount.engine.memo import Memo
-from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value
+from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value, compile_conditions
 from tripcount.engine.summation import EngineLimit, _State
 
 _dt = isl.dim_type
-
-
-def _lin_value(lin: Lin, env: Mapping[str, int], cache: dict) -> Fraction:
-    s = lin[1]
-    for a, c in lin[0].items():
-        s += c * atom_value(a, env, cache)
-    return s
 
 
 class _Cond:
@@ -41,19 +34,15 @@ class _Cond:
 
     def __init__(self, s: isl.Set) -> None:
         self.dnf = [bset_constraints(b) for b in s.compute_divs().get_basic_sets()]
+        self._test = None
 
     def contains(self, env: Mapping[str, int]) -> bool:
-        cache: dict = {}
-        for conj in self.dnf:
-            ok = True
-            for lin, eq in conj:
-                v = _lin_value(lin, env, cache)
-                if (v != 0) if eq else (v < 0):
-                    ok = False
-                    break
-            if ok:
-                return True
-        return False
+        # compiled on first use: pieces are tested thousands of times (values,
+        # footprint maxima), and integer code is many times cheaper than Fractions
+        test = self._test
+        if test is None:
+            test = self._test = compile_conditions(self.dnf)
+        return test(env)
 
 
 @dataclass(frozen=True)

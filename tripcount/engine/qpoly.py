@@ -78,6 +78,35 @@ def atom_value(a: Atom, env: Mapping[str, int], cache: dict) -> int:
     return a.value(env, cache)
 
 
+def atom_code(a: Atom) -> str:
+    """Python integer expression of an atom over a mapping V of variable values (floors by //)."""
+    if isinstance(a, str):
+        return f"V[{a!r}]"
+    parts = [f"({c})*{atom_code(b)}" for b, c in a.terms]
+    return f"(({' + '.join(parts)} + ({a.const})) // {a.den})"
+
+
+def compile_conditions(dnf: list[list[tuple[Lin, bool]]]):
+    """fn(V) -> bool: some conjunction holds, each (lin, eq) meaning lin == 0 (eq) or lin >= 0.
+
+    Integer-only code (each constraint scaled by the lcm of its denominators),
+    so membership tests cost no Fraction arithmetic; evaluation short-circuits
+    as a loop over the constraints would."""
+    disj = []
+    for conj in dnf:
+        tests = []
+        for (terms, const), eq in conj:
+            den = lcm(Fraction(const).denominator, *(Fraction(c).denominator for c in terms.values()))
+            parts = [f"({int(c * den)})*{atom_code(a)}" for a, c in terms.items() if c]
+            parts.append(f"({int(const * den)})")
+            tests.append(f"({' + '.join(parts)}) {'==' if eq else '>='} 0")
+        disj.append("(" + (" and ".join(tests) or "True") + ")")
+    src = f"def _f(V):\n    return bool({' or '.join(disj) or 'False'})\n"
+    ns: dict = {}
+    exec(src, ns)  # noqa: S102 - generated from our own integer data only
+    return ns["_f"]
+
+
 def atom_vars(a: Atom) -> frozenset[str]:
     return frozenset((a,)) if isinstance(a, str) else a._vars
 
@@ -436,19 +465,15 @@ class QPoly:
         (inside readable.plain_forms() without the search, and not kept).
         """
         if self._text is None:
-            from tripcount.engine.readable import readable, searching
-
-            text = readable(self)
-            if not searching():
+            text = _PRINTER.readable(self)
+            if not _PRINTER.searching():
                 return text
             self._text = text
         return self._text
 
     def to_expanded(self) -> str:
         """Expanded form, terms by decreasing degree."""
-        from tripcount.engine.fmt import format_expanded
-
-        return format_expanded(self)
+        return _PRINTER.expanded(self)
 
     def linear_part(self) -> QPoly:
         """Replace every floor(e/m) by its linear part (e without constant)/m, recursively."""
@@ -483,6 +508,30 @@ class QPoly:
     def leading(self) -> str:
         """Leading homogeneous part (floors replaced by their linear part) as an expression."""
         return self.leading_poly().to_expr()
+
+
+class Printer:
+    """The text forms of a QPoly. The printer modules (fmt.py, readable.py) import
+    this one, so they hand their functions in (set_printer, done when the engine
+    package is loaded) instead of being imported here: no import cycle."""
+
+    def readable(self, p: QPoly) -> str:
+        raise RuntimeError("no printer registered (import tripcount.engine)")
+
+    def expanded(self, p: QPoly) -> str:
+        raise RuntimeError("no printer registered (import tripcount.engine)")
+
+    def searching(self) -> bool:
+        return False
+
+
+_PRINTER = Printer()
+
+
+def set_printer(printer: Printer) -> None:
+    """Make `printer` the one QPoly.to_expr and to_expanded use."""
+    global _PRINTER
+    _PRINTER = printer
 
 
 def _lift(x: QPoly | int | Fraction) -> QPoly:

@@ -35,11 +35,10 @@ from tripcount.engine.fmt import (
     eval_mod,
     format_expanded,
     format_qpoly,
-    frac_mod,
     probe_point,
 )
 from tripcount.engine.memo import Memo
-from tripcount.engine.qpoly import Floor, QPoly, atom_key, atom_period
+from tripcount.engine.qpoly import Floor, Printer, QPoly, atom_key, atom_period, set_printer
 
 _K = "_rk_"
 _ZERO = Fraction(0)
@@ -117,16 +116,14 @@ def _simple_floors_of(p: QPoly, v: str) -> list[Floor] | None:
     return out
 
 
-def _affine_on_class(atom, v: str, m: int, r: int) -> tuple[Fraction, Fraction]:
+def _affine_on_class(atom, v: str, m: int, r: int) -> tuple[int, int]:
     """(a, b) with atom(v = m*k + r) = a*k + b for every integer k (atom has period | m)."""
     if atom == v:
-        return Fraction(m), Fraction(r)
+        return m, r
     (_, c), = atom.terms
     # floor((c*(m*k + r) + c0)/d) with d | c*m
-    a = Fraction(c * m, atom.den)
-    assert a.denominator == 1
-    b = Fraction((c * r + atom.const) // atom.den)
-    return a, b
+    assert (c * m) % atom.den == 0
+    return c * m // atom.den, (c * r + atom.const) // atom.den
 
 
 def _monomials(n_atoms: int, d: int) -> list[tuple[int, ...]]:
@@ -139,11 +136,11 @@ def _monomials(n_atoms: int, d: int) -> list[tuple[int, ...]]:
     return out
 
 
-def _poly_k(a: Fraction, b: Fraction, e: int) -> list[Fraction]:
-    """Coefficients of (a*k + b)^e in k."""
-    out = [Fraction(1)]
+def _poly_k(a: int, b: int, e: int) -> list[int]:
+    """Coefficients of (a*k + b)^e in k (integers: the system's matrix is integral)."""
+    out = [1]
     for _ in range(e):
-        nxt = [_ZERO] * (len(out) + 1)
+        nxt = [0] * (len(out) + 1)
         for j, c in enumerate(out):
             nxt[j] += c * b
             nxt[j + 1] += c * a
@@ -154,7 +151,7 @@ def _poly_k(a: Fraction, b: Fraction, e: int) -> list[Fraction]:
 def _rref(rows: list[list[Fraction]], rhs: list[QPoly]):
     """Reduced row echelon form of rows * x = rhs: (pivots [(row, col)], rows, rhs), or None
     if inconsistent (the formula is not a polynomial in this basis)."""
-    rows = [list(r) for r in rows]
+    rows = [[Fraction(x) for x in r] for r in rows]
     rhs = list(rhs)
     piv: list[tuple[int, int]] = []
     used = [False] * len(rows)
@@ -178,15 +175,24 @@ def _rref(rows: list[list[Fraction]], rhs: list[QPoly]):
     return piv, rows, rhs
 
 
-def _consistent_mod(rows: list[list[Fraction]], rhs: list[QPoly]) -> bool:
-    """False when rows * x = rhs has no solution at one point of the other atoms,
-    modulo a large prime: then it has none as quasi-polynomials either, and the
-    exact elimination (QPoly right-hand sides) is not worth running. (A wrong
-    True only costs that elimination; a wrong False, with chance about 2^-61,
-    only a less readable form.)"""
+def _rhs_mod(rhs: list[QPoly]) -> list[int]:
+    """The right-hand sides at one point of their atoms, modulo a large prime."""
     atoms = sorted({a for q in rhs for a in q.atoms()}, key=atom_key)
     point = probe_point(atoms)
-    mat = [[frac_mod(x) for x in r] + [eval_mod(q, point)] for r, q in zip(rows, rhs, strict=True)]
+    return [eval_mod(q, point) for q in rhs]
+
+
+def _independent_rows(rows: list[list[int]], rhs_mod: list[int]) -> list[int] | None:
+    """None when rows * x = rhs has no solution at one point of the other atoms,
+    modulo a large prime (rhs_mod: see _rhs_mod): then it has none as
+    quasi-polynomials either, and the exact elimination (QPoly right-hand sides)
+    is not worth running. Else the indices of rows independent modulo the prime,
+    which span the row space: the exact elimination needs only them (its reduced
+    form, so its solutions, depend only on the row space). (A wrong answer, with
+    chance about 2^-61, only costs a less readable form: every form found is
+    proven equal before it is used.)"""
+    mat = [[x % PRIME for x in r] + [q] for r, q in zip(rows, rhs_mod, strict=True)]
+    order = list(range(len(mat)))
     n = len(mat[0]) - 1 if mat else 0
     rank = 0
     for col in range(n):
@@ -194,6 +200,7 @@ def _consistent_mod(rows: list[list[Fraction]], rhs: list[QPoly]) -> bool:
         if pr is None:
             continue
         mat[rank], mat[pr] = mat[pr], mat[rank]
+        order[rank], order[pr] = order[pr], order[rank]
         inv = pow(mat[rank][col], -1, PRIME)
         piv = [x * inv % PRIME for x in mat[rank]]
         mat[rank] = piv
@@ -202,7 +209,9 @@ def _consistent_mod(rows: list[list[Fraction]], rhs: list[QPoly]) -> bool:
                 f = mat[i][col]
                 mat[i] = [(x - f * y) % PRIME for x, y in zip(mat[i], piv, strict=True)]
         rank += 1
-    return all(r[n] == 0 for r in mat[rank:])
+    if any(r[n] for r in mat[rank:]):
+        return None
+    return sorted(order[:rank])
 
 
 def _solutions(rows: list[list[Fraction]], rhs: list[QPoly], n: int) -> list[list[QPoly]]:
@@ -248,20 +257,32 @@ def _solutions(rows: list[list[Fraction]], rhs: list[QPoly], n: int) -> list[lis
     return out
 
 
-def _rewrite_in(p: QPoly, v: str, basis: list, m: int, classes: list[dict[int, QPoly]],
-                d: int) -> list[QPoly]:
-    """Forms of p as a polynomial in `basis` (atoms of v), coefficients free of v."""
-    monos = _monomials(len(basis), d)
-    rows: list[list[Fraction]] = []
+def _system_rhs(classes: list[dict[int, QPoly]], d: int) -> list[QPoly]:
+    """Right-hand sides of the systems of _rewrite_in (the same for every basis):
+    coefficient j of k on class r, for j up to max(degree, d)."""
     rhs: list[QPoly] = []
+    for cls in classes:
+        top = max(max(cls, default=0), d)
+        rhs.extend(cls.get(j, QPoly()) for j in range(top + 1))
+    return rhs
+
+
+def _rewrite_in(p: QPoly, v: str, basis: list, m: int, classes: list[dict[int, QPoly]],
+                d: int, rhs: list[QPoly], rhs_mod: list[int]) -> list[QPoly]:
+    """Forms of p as a polynomial in `basis` (atoms of v), coefficients free of v.
+    rhs, rhs_mod: _system_rhs(classes, d) and _rhs_mod of it."""
+    monos = _monomials(len(basis), d)
+    rows: list[list[int]] = []
     for r, cls in enumerate(classes):
         aff = [_affine_on_class(a, v, m, r) for a in basis]
         cols = []
         for mono in monos:
-            poly = [Fraction(1)]
+            poly = [1]
             for (a, b), e in zip(aff, mono, strict=True):
+                if not e:
+                    continue
                 q = _poly_k(a, b, e)
-                nxt = [_ZERO] * (len(poly) + len(q) - 1)
+                nxt = [0] * (len(poly) + len(q) - 1)
                 for i, x in enumerate(poly):
                     for j, y in enumerate(q):
                         nxt[i + j] += x * y
@@ -269,10 +290,12 @@ def _rewrite_in(p: QPoly, v: str, basis: list, m: int, classes: list[dict[int, Q
             cols.append(poly)
         top = max(max(cls, default=0), d)
         for j in range(top + 1):
-            rows.append([c[j] if j < len(c) else _ZERO for c in cols])
-            rhs.append(cls.get(j, QPoly()))
-    if not _consistent_mod(rows, rhs):
+            rows.append([c[j] if j < len(c) else 0 for c in cols])
+    keep = _independent_rows(rows, rhs_mod)
+    if keep is None:
         return []
+    rows = [rows[i] for i in keep]
+    rhs = [rhs[i] for i in keep]
     out = []
     seen = set()
     for x in _solutions(rows, rhs, len(monos)):
@@ -338,6 +361,8 @@ def _rewrite_variable(p: QPoly, v: str, cost, budget: _Budget) -> QPoly:
     if any(_K in a.variables() for c in classes for a in c.floors()):
         return p
     coeffs = [c.coeffs_in(_K) for c in classes]
+    rhs = _system_rhs(coeffs, d)
+    rhs_mod = _rhs_mod(rhs)
     atoms = _candidate_atoms(fl, v, m)
     bases: list[list] = [[a] for a in atoms]
     if d >= 1:
@@ -347,7 +372,7 @@ def _rewrite_variable(p: QPoly, v: str, cost, budget: _Budget) -> QPoly:
         if budget.left <= 0:
             break
         budget.left -= 1
-        for q in _rewrite_in(p, v, basis, m, coeffs, d):
+        for q in _rewrite_in(p, v, basis, m, coeffs, d, rhs, rhs_mod):
             if q == best or len(q.terms) > _MAX_TERMS:
                 continue
             qc = cost(q)
@@ -472,3 +497,19 @@ def _has_division(text: str) -> bool:
             return True
         i += 1
     return False
+
+
+class _ReadablePrinter(Printer):
+    """QPoly.to_expr prints through readable(); to_expanded through fmt.format_expanded."""
+
+    def readable(self, p: QPoly) -> str:
+        return readable(p)
+
+    def expanded(self, p: QPoly) -> str:
+        return format_expanded(p)
+
+    def searching(self) -> bool:
+        return searching()
+
+
+set_printer(_ReadablePrinter())
