@@ -214,18 +214,36 @@ class Piecewise(PieceList):
 PAIRWISE_MAX = 24
 
 
+def _sample_env(d: isl.Set) -> dict[str, int] | None:
+    """One parameter point of d (None if d is empty)."""
+    if d.is_empty():
+        return None
+    pt = d.sample_point()
+    sp = d.get_space()
+    return {sp.get_dim_name(_dt.param, i): pt.get_coordinate_val(_dt.param, i).to_python()
+            for i in range(d.dim(_dt.param))}
+
+
 def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list]:
     """Disjoint regions [set, poly]; the poly of a region is the sum of the terms covering it."""
-    # identical domains first: add their polys
+    # identical domains first: add their polys. Equal sets contain the same
+    # points, so isl's equality test (costly on sets with existentials, and
+    # quadratic in the number of terms) runs only on domains that agree on one
+    # sample point of every term (compiled membership tests, microseconds each).
+    terms = [(d.coalesce(), f) for d, f in terms]
+    probes = [e for e in (_sample_env(d) for d, _ in terms) if e is not None]
     grouped: list[list] = []
+    sigs: list[tuple] = []
     for d, f in terms:
-        d = d.coalesce()
-        for g in grouped:
-            if g[0].is_equal(d):
+        cond = _Cond(d)
+        sig = tuple(cond.contains(e) for e in probes)
+        for g, sg in zip(grouped, sigs, strict=True):
+            if sg == sig and g[0].is_equal(d):
                 g[1] = g[1] + f
                 break
         else:
             grouped.append([d, f])
+            sigs.append(sig)
     if not grouped:
         return []
     limit = st.limits.max_pieces * 8 if st is not None else 4096
