@@ -258,15 +258,20 @@ def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list
     # (exact: integer constants never cancel). Much cheaper than subtracting
     # the sets pairwise here.
     ctx = grouped[0][0].get_ctx()
-    acc = None
-    for i, (d, _f) in enumerate(grouped):
-        if st is not None:
-            st.check("combining pieces")
-        pa = isl.PwAff.val_on_domain(d, isl.Val.read_from_str(ctx, str(1 << i)))
-        acc = pa if acc is None else acc.union_add(pa)
-        if i % 8 == 7:
-            acc = acc.coalesce()
-    acc = acc.coalesce()
+    # pairwise in a balanced tree: each union_add meets operands of similar
+    # size, instead of every term meeting the ever larger accumulated overlay
+    level = [isl.PwAff.val_on_domain(d, isl.Val.read_from_str(ctx, str(1 << i)))
+             for i, (d, _f) in enumerate(grouped)]
+    while len(level) > 1:
+        nxt = []
+        for i in range(0, len(level) - 1, 2):
+            if st is not None:
+                st.check("combining pieces")
+            nxt.append(level[i].union_add(level[i + 1]).coalesce())
+        if len(level) % 2:
+            nxt.append(level[-1])
+        level = nxt
+    acc = level[0]
     by_mask: dict[int, isl.Set] = {}
     for dom, aff in acc.get_pieces():
         mask = int(aff.get_constant_val().to_python())
@@ -382,16 +387,19 @@ def qpoly_identical(f: QPoly, g: QPoly, budget: int = 20000) -> bool:
     degree <= deg_v(h) in each k_v; vanishing on a (deg_v + 1)-point grid per
     class (tensor-product interpolation) proves h == 0.
     """
-    h = f - g
-    if h.is_zero():
+    if f == g:
         return True
-    vs = sorted(h.variables())
+    # refute first on the operands themselves: their compiled evaluators are
+    # kept on them, while h below would be compiled anew for every pair
+    vs = sorted(f.variables() | g.variables())
     n = len(vs)
     seq = _probe_values(6 * n)
     for r in range(6):
         env = {v: seq[r * n + j] for j, v in enumerate(vs)}
-        if h.evaluate(env) != 0:
+        if f.evaluate(env) != g.evaluate(env):
             return False
+    h = f - g
+    vs = sorted(h.variables())
     periods = {}
     fl = h.floors()
     for v in vs:

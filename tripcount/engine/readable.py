@@ -55,6 +55,10 @@ _MAX_FLOORS = 8
 # printed form never depends on machine speed): most formulas settle within a
 # dozen; long per-level footprints of strided loops would try hundreds.
 _MAX_BASES = 20
+# Grouping tries two printings per atom: past this many terms it costs tens of
+# milliseconds per formula (long footprints of strided nests) for a text that
+# stays long anyway.
+_GROUP_MAX_TERMS = 24
 # Texts already chosen, by formula: reports print the same counts many times
 # (bytes and lines of each array, per level, in text and JSON).
 _MEMO: Memo[QPoly, str] = Memo(20_000)
@@ -461,7 +465,7 @@ def format_grouped(p: QPoly, fmt) -> str:
     'floor(M/2)*floor(N/2) + floor((M + 1)/2)*floor((N + 1)/2)' - the terms
     containing one atom are printed (and factored) apart from the rest."""
     best = fmt(p)
-    if len(p.terms) < 3 or len(p.terms) > _MAX_TERMS:
+    if len(p.terms) < 3 or len(p.terms) > _GROUP_MAX_TERMS:
         return best
     best_cost = text_cost(best)
     for a in sorted(p.atoms(), key=lambda at: (isinstance(at, Floor), str(at))):
