@@ -209,13 +209,14 @@ def _mono_degree(m: Mono) -> int:
 class QPoly:
     """An immutable quasi-polynomial with Fraction coefficients."""
 
-    __slots__ = ("terms", "_hash", "_compiled", "_text")
+    __slots__ = ("terms", "_hash", "_compiled", "_text", "_vars")
 
     def __init__(self, terms: Mapping[Mono, Fraction] | None = None) -> None:
         self.terms: dict[Mono, Fraction] = dict(terms) if terms else {}
         self._hash = None
         self._compiled = None
         self._text = None
+        self._vars = None
 
     # -- construction -------------------------------------------------------
     @staticmethod
@@ -362,10 +363,13 @@ class QPoly:
 
     def variables(self) -> set[str]:
         """All variable names, including those inside floors."""
-        out: set[str] = set()
-        for a in self.atoms():
-            out |= atom_vars(a)
-        return out
+        vs = self._vars
+        if vs is None:
+            out: set[str] = set()
+            for a in self.atoms():
+                out |= atom_vars(a)
+            vs = self._vars = frozenset(out)
+        return set(vs)
 
     def floors(self) -> set[Floor]:
         """All floor atoms, nested ones included."""
