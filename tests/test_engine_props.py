@@ -123,9 +123,11 @@ def test_random_nests_match_isl_enumeration(depth):
     STATS.update(run=0, refused=0)
     run()
     # known gap: deep nests mixing strides, modulo guards and floor bounds can
-    # exceed the budget while making the pieces disjoint
-    # (loose enough not to flake on a slower machine: the budget is wall-clock time)
-    rate = {1: 0.03, 2: 0.05, 3: 0.20, 4: 0.35}[depth]
+    # exceed the budget while making the pieces disjoint. Measured with this
+    # profile on the 2-core development machine under load: 0%, 2.9%, 6.4-7.6%
+    # and 21-22% of the nests up to depth 1..4 stop at the 0.5 s budget; the
+    # allowances leave room for a slower machine (the budget is wall-clock time)
+    rate = {1: 0.01, 2: 0.05, 3: 0.12, 4: 0.28}[depth]
     assert STATS["refused"] <= rate * STATS["run"] + 1, STATS
 
 
