@@ -205,6 +205,40 @@ def test_identity_proof():
     assert not qpoly_identical(g, QPoly.const(0))
 
 
+def test_qpoly_does_not_import_its_printers():
+    # the printers import qpoly, so qpoly must not import them back (no import cycle)
+    import ast
+
+    import tripcount.engine.qpoly as qp
+
+    tree = ast.parse(open(qp.__file__, encoding="utf-8").read())
+    names = {a.name for n in ast.walk(tree) if isinstance(n, ast.Import) for a in n.names}
+    names |= {n.module for n in ast.walk(tree) if isinstance(n, ast.ImportFrom) and n.module}
+    assert not any(n.startswith("tripcount.") for n in names), names
+    assert (N - QPoly.floor(N, 2)).to_expr() == "floor((N + 1)/2)"  # printed through the registered printer
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.tuples(st.integers(-4, 4), st.integers(-4, 4), st.integers(-6, 6), st.integers(2, 5),
+                          st.booleans()), min_size=1, max_size=3),
+       st.integers(-30, 30), st.integers(-30, 30))
+def test_compiled_conditions_match_exact_evaluation(cons, n, m):
+    # reference: Python's exact integer floor division (the definition of floor)
+    # and exact Fraction arithmetic, constraint by constraint
+    from tripcount.engine.qpoly import compile_conditions
+
+    conj = []
+    want = True
+    for a, b, c, d, eq in cons:
+        fl = Floor((("N", 1), ("M", 2)), 1, d)
+        lin = ({"N": Fraction(a, 2), fl: Fraction(b)}, Fraction(c, 3))
+        conj.append((lin, eq))
+        v = Fraction(a, 2) * n + b * ((n + 2 * m + 1) // d) + Fraction(c, 3)
+        want = want and (v == 0 if eq else v >= 0)
+    test = compile_conditions([conj, [(({"M": Fraction(1)}, Fraction(-100)), False)]])
+    assert test({"N": n, "M": m}) == want  # the second conjunction (M >= 100) never holds here
+
+
 def test_engine_import_does_not_import_sympy():
     code = "import sys, tripcount.engine; print('sympy' in sys.modules)"
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
