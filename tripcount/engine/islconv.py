@@ -18,9 +18,18 @@ from tripcount.engine.qpoly import Floor, Lin, floor_of, lin_add
 _dt = isl.dim_type
 
 
+# the values met almost always (coefficients and small constants), ready made:
+# reading a Fraction from text is the costly part of converting constraints
+_SMALL = {str(i): Fraction(i) for i in range(-256, 257)}
+
+
 def val_frac(v: isl.Val) -> Fraction:
     """Exact rational value of an isl Val."""
-    return Fraction(v.to_str())
+    s = v.to_str()
+    f = _SMALL.get(s)
+    if f is None:
+        f = Fraction(s) if "/" in s else Fraction(int(s))
+    return f
 
 
 def aff_to_lin(aff: isl.Aff) -> Lin:

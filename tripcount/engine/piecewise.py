@@ -35,14 +35,39 @@ class _Cond:
     def __init__(self, s: isl.Set) -> None:
         self.dnf = [bset_constraints(b) for b in s.compute_divs().get_basic_sets()]
         self._test = None
+        self._uses = 0
 
     def contains(self, env: Mapping[str, int]) -> bool:
-        # compiled on first use: pieces are tested thousands of times (values,
-        # footprint maxima), and integer code is many times cheaper than Fractions
+        # compiled once used often: some pieces are tested thousands of times
+        # (values, footprint maxima), and integer code is many times cheaper
+        # than Fractions; most are tested a few times, cheaper than compiling
         test = self._test
-        if test is None:
-            test = self._test = compile_conditions(self.dnf)
-        return test(env)
+        if test is not None:
+            return test(env)
+        self._uses += 1
+        if self._uses > _COMPILE_AFTER:
+            self._test = compile_conditions(self.dnf)
+        cache: dict = {}
+        for conj in self.dnf:
+            ok = True
+            for lin, eq in conj:
+                v = _lin_value(lin, env, cache)
+                if (v != 0) if eq else (v < 0):
+                    ok = False
+                    break
+            if ok:
+                return True
+        return False
+
+
+_COMPILE_AFTER = 16
+
+
+def _lin_value(lin: Lin, env: Mapping[str, int], cache: dict) -> Fraction:
+    s = lin[1]
+    for a, c in lin[0].items():
+        s += c * atom_value(a, env, cache)
+    return s
 
 
 @dataclass(frozen=True)
@@ -224,6 +249,9 @@ def _sample_env(d: isl.Set) -> dict[str, int] | None:
             for i in range(d.dim(_dt.param))}
 
 
+_FEW_TERMS = 6
+
+
 def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list]:
     """Disjoint regions [set, poly]; the poly of a region is the sum of the terms covering it."""
     # identical domains first: add their polys. Equal sets contain the same
@@ -231,12 +259,13 @@ def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list
     # quadratic in the number of terms) runs only on domains that agree on one
     # sample point of every term (compiled membership tests, microseconds each).
     terms = [(d.coalesce(), f) for d, f in terms]
-    probes = [e for e in (_sample_env(d) for d, _ in terms) if e is not None]
+    few = len(terms) <= _FEW_TERMS  # then the few isl tests are cheaper than the probes
+    probes = [] if few else [e for e in (_sample_env(d) for d, _ in terms) if e is not None]
     grouped: list[list] = []
     sigs: list[tuple] = []
     for d, f in terms:
-        cond = _Cond(d)
-        sig = tuple(cond.contains(e) for e in probes)
+        cond = None if few else _Cond(d)
+        sig = () if cond is None else tuple(cond.contains(e) for e in probes)
         for g, sg in zip(grouped, sigs, strict=True):
             if sg == sig and g[0].is_equal(d):
                 g[1] = g[1] + f
