@@ -18,6 +18,10 @@
 #    nest in Python (C semantics) at small sizes.
 #
 #   python bench/bench_engine.py [--repeat 5] [--per-depth 100] [--seed 1] [--check]
+#
+# The default profile (100 nests at each depth 1..5) takes the better part of
+# an hour on a 2-core machine: the nests that end at the time limit dominate.
+# --per-depth 30 --depths 1,2,3,4 gives the table in about ten minutes.
 
 from __future__ import annotations
 
