@@ -21,10 +21,7 @@ from pathlib import Path
 PACKAGE = Path(__file__).resolve().parent.parent / "tripcount"
 
 # Each entry: the modules of one strongly connected component.
-KNOWN_CYCLES: list[frozenset[str]] = [
-    # the engine's quasi-polynomials and their formatting
-    frozenset({"tripcount.engine.qpoly", "tripcount.engine.fmt", "tripcount.engine.readable"}),
-]
+KNOWN_CYCLES: list[frozenset[str]] = []
 
 
 # Rank of each stage (the first part of the module name below tripcount); a
