@@ -41,9 +41,10 @@ Analysis = Callable[[NestResult, Options], None]
 
 def analyses() -> list[tuple[str, Analysis]]:
     """The analyses run on every nest, in order (counts first: others read them)."""
-    from tripcount.analysis import balance, footprint
+    from tripcount.analysis import balance, footprint, verify
 
-    return [("counts", counts.analyze), ("footprint", footprint.analyze), ("balance", balance.analyze)]
+    return [("counts", counts.analyze), ("footprint", footprint.analyze), ("balance", balance.analyze),
+            ("verify", verify.analyze)]
 
 
 def _where(exc: BaseException) -> str:

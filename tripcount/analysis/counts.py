@@ -36,7 +36,7 @@ class FormulaLimit(Diagnostic):
 
 
 class VerifyMismatch(Diagnostic):
-    """--verify found a formula that disagrees with enumeration (a bug: please report)."""
+    """--verify found a formula or figure that disagrees with enumeration (a bug: please report)."""
 
     code = "TC302"
     severity = "error"
@@ -233,9 +233,13 @@ def printed_value(formula: engine.Piecewise, point: Mapping[str, int]) -> Fracti
 
 def _check_formula(formula: engine.Piecewise, dom: isl.Set, context: isl.Set) -> tuple[str, Any, Any, dict] | None:
     """First disagreement of the formula (evaluated, and as printed) with
-    enumeration: (which, got, want, point), or None."""
+    enumeration: (which, got, want, point), or None. Only points where the
+    formula is claimed count: the assumptions, and for trips per entry the
+    outer iterations that reach the loop (the formula's own context)."""
     for pt in verification_points(formula, dom):
-        if not _in_context(context, pt):
+        if not in_context(context, pt):
+            continue
+        if formula.context is not None and not in_context(formula.context, pt):
             continue
         want = engine.enumerate_count(dom, pt)
         got = formula.evaluate(pt)
@@ -274,13 +278,14 @@ def verify(result: NestResult, options: Options) -> None:
         if bad is not None:
             which, got, want, pt = bad
             result.diagnostics.append(VerifyMismatch(
-                span, what=f"{what} ({which})", got=got, want=want, point=_fmt_point(pt)))
+                span, what=f"{what} ({which})", got=got, want=want, point=point_text(pt)))
     mismatches = len(result.diagnostics) - before
     if checked and not mismatches:
         result.diagnostics.append(VerifyPassed(nest.span, n=checked, points=npoints))
 
 
-def _in_context(context: isl.Set, pt: Mapping[str, int]) -> bool:
+def in_context(context: isl.Set, pt: Mapping[str, int]) -> bool:
+    """True when the parameter values `pt` satisfy `context` (names it lacks are free)."""
     s = context
     for i in range(s.dim(isl.dim_type.param)):
         name = s.get_dim_name(isl.dim_type.param, i)
@@ -289,5 +294,6 @@ def _in_context(context: isl.Set, pt: Mapping[str, int]) -> bool:
     return not s.is_empty()
 
 
-def _fmt_point(pt: Mapping[str, int]) -> str:
+def point_text(pt: Mapping[str, int]) -> str:
+    """'N=3, M=0' text of a parameter point."""
     return ", ".join(f"{k}={v}" for k, v in pt.items()) or "(no parameters)"

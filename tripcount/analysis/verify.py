@@ -1,0 +1,133 @@
+# Analysis: --verify for the work figures (flops by kind and by call, loads,
+# stores), run after every other analysis.
+#
+# Each of these is a sum over statements of a weight per execution times the
+# statement's execution count. At every verification point the printed
+# formula (read back with tripcount.formula, as --verify does for the counts)
+# and its value at the --at sizes must equal that sum with each execution
+# count enumerated exactly (isl), not taken from the count formulas: a slip
+# in scaling, summing or printing shows as a TC302 mismatch.
+
+from __future__ import annotations
+
+import itertools
+from collections.abc import Mapping
+from fractions import Fraction
+from typing import Any
+
+from tripcount import engine
+from tripcount.analysis.counts import (
+    VerifyMismatch,
+    in_context,
+    point_text,
+    printed_value,
+    verification_points,
+)
+from tripcount.analysis.results import Count, NestResult
+from tripcount.diagnostics import Diagnostic
+from tripcount.options import Options
+
+MAX_POINTS = 60
+
+
+class WorkVerified(Diagnostic):
+    """--verify summary for the flop, load and store figures of one nest."""
+
+    code = "TC304"
+    severity = "note"
+    title = "work-verified"
+    template = ("verified {n} flop, load and store figures of this nest, as computed and as printed, "
+                "against weights times enumerated statement counts at {points} parameter points")
+
+
+def _figures(result: NestResult) -> list[tuple[str, Count, dict[int, int]]]:
+    """(name, printed count, weight per execution of each statement) of every work figure."""
+    out: list[tuple[str, Count, dict[int, int]]] = []
+    nest_weights: dict[str, dict[int, int]] = {}
+    for k, sr in enumerate(result.statements):
+        f = sr.extras.get("flops")
+        if f is None:
+            continue
+        parts: list[tuple[str, Any, int]] = [("flops", f.total, f.per_execution)]
+        parts += [(f"flops {kind}", wc, wc.per_execution or 0) for kind, wc in f.kinds.items()]
+        parts += [(f"calls to {name}", wc, wc.per_execution or 0) for name, wc in f.calls.items()]
+        for key in ("loads", "stores"):
+            wc = sr.extras.get(key)
+            if wc is not None:
+                parts.append((key, wc, wc.per_execution or 0))
+        for name, wc, weight in parts:
+            out.append((f"{name} of {sr.stmt.id}", wc.count, {k: weight}))
+            nest_weights.setdefault(name, {})[k] = weight
+    totals = {"flops": result.extras.get("flops"), "loads": result.extras.get("loads"),
+              "stores": result.extras.get("stores")}
+    flops = totals["flops"]
+    if flops is not None:
+        out.append(("flops of the nest", flops.total.count, nest_weights.get("flops", {})))
+        out += [(f"flops {kind} of the nest", wc.count, nest_weights.get(f"flops {kind}", {}))
+                for kind, wc in flops.kinds.items()]
+        out += [(f"calls to {name} in the nest", wc.count, nest_weights.get(f"calls to {name}", {}))
+                for name, wc in flops.calls.items()]
+    for key in ("loads", "stores"):
+        if totals[key] is not None:
+            out.append((f"{key} of the nest", totals[key].count, nest_weights.get(key, {})))
+    return out
+
+
+def _points(result: NestResult) -> list[dict[str, int]]:
+    seen: set[tuple] = set()
+    out: list[dict[str, int]] = []
+    for sr in result.statements:
+        if sr.stmt.domain is None or sr.count.formula is None:
+            continue
+        for pt in verification_points(sr.count.formula, sr.stmt.domain):
+            key = tuple(sorted(pt.items()))
+            if key not in seen and in_context(result.nest.context, pt):
+                seen.add(key)
+                out.append(pt)
+    return out[:MAX_POINTS]
+
+
+def _counts_at(result: NestResult, pt: Mapping[str, int]) -> dict[int, int] | None:
+    out = {}
+    for k, sr in enumerate(result.statements):
+        if sr.stmt.domain is None:
+            return None
+        out[k] = int(engine.enumerate_count(sr.stmt.domain, dict(pt)))
+    return out
+
+
+def analyze(result: NestResult, options: Options) -> None:
+    """With --verify: check every work figure against weights times enumerated counts."""
+    if not options.verify or not result.statements:
+        return
+    figures = _figures(result)
+    if not figures:
+        return
+    nest = result.nest
+    points = _points(result)
+    at = options.sizes(nest.params)
+    enumerated = [(pt, _counts_at(result, pt)) for pt in itertools.chain(points, [at] if at else [])]
+    bad = 0
+    for what, count, weights in figures:
+        for idx, (pt, counts) in enumerate(enumerated):
+            if counts is None:
+                break
+            want = Fraction(sum(w * counts[k] for k, w in weights.items()))
+            is_at = at is not None and idx == len(enumerated) - 1
+            got: Any = None
+            if is_at and count.value is not None:
+                got = count.value
+            elif count.formula is not None and not is_at:
+                got = count.formula.evaluate(pt)
+                if got == want:
+                    try:
+                        got = printed_value(count.formula, pt)
+                    except (ValueError, KeyError, ZeroDivisionError) as exc:
+                        got = f"an unreadable text ({exc})"
+            if got is not None and got != want:
+                result.diagnostics.append(VerifyMismatch(nest.span, what=what, got=got, want=want,
+                                                         point=point_text(pt)))
+                bad += 1
+                break
+    if not bad:
+        result.diagnostics.append(WorkVerified(nest.span, n=len(figures), points=len(enumerated)))
