@@ -44,7 +44,7 @@ def add_common(p: argparse.ArgumentParser) -> None:
                    help="assumptions on the parameters (affine comparisons, comma separated)")
     p.add_argument("--format", choices=("text", "json", "sarif"), default="text", help="output format")
     p.add_argument("-o", "--output", metavar="FILE", help="write the report to FILE instead of stdout")
-    p.add_argument("--time-limit", type=float, metavar="SECONDS", help="time limit per nest (default 20)")
+    p.add_argument("--time-limit", type=float, metavar="SECONDS", help="time limit per nest, all its analyses (default 20)")
     p.add_argument("--max-pieces", type=int, metavar="K", help="cap on pieces of one formula (default 256)")
     p.add_argument("--line-size", type=int, metavar="BYTES", help="cache line size (default: host, else 64)")
     p.add_argument("--cache", action="append", default=[], metavar="L1=48KiB",
@@ -77,7 +77,7 @@ def build_parser() -> argparse.ArgumentParser:
     a.add_argument("paths", nargs="*", metavar="PATH", help="C files or directories ('-' reads stdin)")
     a.add_argument("--code", metavar="C", help="analyze this C text (a file, a function body or bare loops)")
     a.add_argument("--verify", action="store_true", help="re-check every formula by exact enumeration")
-    a.add_argument("--plot", metavar="FILE.png", help="plot work and working sets against one size (needs matplotlib)")
+    a.add_argument("--plot", metavar="FILE.png", help="plot the working set of each loop level against one size (needs matplotlib)")
     a.add_argument("--plot-param", metavar="PARAM", help="the size parameter on the plot's x axis")
     add_common(a)
     c = sub.add_parser("check", help="pre-commit gate: budgets and baseline regressions")
@@ -215,13 +215,14 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     finally:
         if args.output:
             out.close()
+    status = EXIT_OK
     if args.plot:
         from tripcount.report.plot import write_plot
 
         why = write_plot(report, args.plot, args.plot_param)
         if why:
-            stderr.write(f"tripcount: no plot: {why}\n")
-    status = EXIT_OK
+            stderr.write(f"tripcount: error: no plot: {why}\n")
+            status = EXIT_USAGE
     codes = [d.code for fr in results for d in fr.all_diagnostics()]
     codes += [d["code"] for f in file_json for d in f["diagnostics"]]
     for code in codes:

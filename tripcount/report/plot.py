@@ -71,8 +71,9 @@ def write_plot(report: Report, path: str, param: str | None = None) -> str | Non
         ax.set_ylabel("working set, bytes of lines")
         ax.set_title(f"{fpath}:{nr.nest.span.line} {nr.nest.function}()", fontsize=8)
         ax.legend(fontsize=7)
-    fig.suptitle("working set per loop level -- model estimate (fully associative capacity-only caches)", fontsize=9)
-    fig.tight_layout()
+    # two short lines: one panel is only 5 inches wide
+    fig.suptitle("working set per loop level\nmodel estimate: fully associative, capacity-only caches", fontsize=9)
+    fig.tight_layout(rect=(0, 0, 1, 0.93))  # room for the title above the panels
     fig.savefig(path, dpi=110)
     plt.close(fig)
     return None
