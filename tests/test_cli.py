@@ -221,6 +221,8 @@ def test_unreadable_assumption_is_a_usage_error(run_cli):
     code = "for (i = 0; i < n; i++) s += a[i];"
     status, _, err = run_cli("analyze", "--code", code, "--assume", "n*n > 4", "--at", "n=10")
     assert status == 2 and "--assume" in err and "not affine" in err
+    status, _, err = run_cli("analyze", "--code", code, "--assume", "n >= 10, n < 5")
+    assert status == 2 and "holds for no values" in err
 
 
 def test_at_names_that_no_nest_has(run_cli):

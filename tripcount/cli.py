@@ -105,9 +105,11 @@ def check_assumptions(options: Options) -> None:
     from tripcount.model import parse_assumptions
 
     try:
-        parse_assumptions(options.assume)
+        allowed = parse_assumptions(options.assume)
     except ValueError as exc:
         raise UsageError(f"--assume: cannot read '{options.assume}': {exc}") from None
+    if allowed.is_empty():
+        raise UsageError(f"--assume: '{options.assume}' holds for no values of the parameters")
 
 
 def source_paths(files: list[str], options: Options) -> list[str]:
