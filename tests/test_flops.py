@@ -234,3 +234,19 @@ def test_else_if_chain_total_is_exact():
     assert total.value == 60
     for n in (0, 1, 7, 59, 60, 61, 500):
         assert total.formula.evaluate({"N": n}) == min(n, 60)
+
+
+def test_typedef_element_types_give_bytes_and_flops():
+    # sediment_types.c reads velin_types.h beside it: grain_t and real_ptr are
+    # double (8 B), base is char (1 B), depth_code unsigned short (2 B), sample
+    # float (4 B); sizes of the LP64 ABI (common practice). Integer arithmetic
+    # on char and unsigned short elements is not a flop.
+    path = os.path.join(HERE, "inputs", "frontend", "typedefs", "sediment_types.c")
+    fr = analyze_file(path, Options(at={"n": 100}))
+    (nr,) = fr.nests
+    assert not [g for g in fr.diagnostics + nr.diagnostics if g.code == "TC403"]
+    fp = nr.extras["footprint"].footprint.to_json()
+    sizes = {name: a["elem_size"] for name, a in fp["by_array"].items()}
+    assert sizes == {"g": 8, "out": 8, "tag": 1, "code": 2, "s": 4}
+    assert fp["bytes"]["value"] == 23 * 100
+    assert [sr.extras["flops"].per_execution for sr in nr.statements] == [2, 0, 0]

@@ -88,6 +88,25 @@ def test_prototypes_structs_typedefs_are_skipped():
     assert [g.declarators[0].name for g in tu.globals] == ["table", "piers"]
 
 
+def test_typedefs_in_the_file_and_a_read_header_resolve_to_their_base_type():
+    # velin_types.h (beside the file) chains grain_t -> real -> double and
+    # defines a pointer typedef; the file adds its own typedef and a C++ alias
+    tu, diags = read(os.path.join("typedefs", "sediment_types.c"))
+    assert [g for g in diags if g.severity != "note"] == []
+    (fn,) = tu.functions
+    types = {p.name: (p.ctype, p.pointer) for p in fn.params[1:]}
+    assert [p.type_name for p in fn.params][1:3] == ["grain_t", "base"]  # as written
+    assert types == {"g": ("double", 1), "tag": ("char", 1), "code": ("unsigned short", 1),
+                     "out": ("double", 1), "s": ("float", 1)}
+    casts = [(n.type_name, n.ctype) for n in walk(fn.body) if isinstance(n, ir.Cast)]
+    assert casts == [("real", "double")]
+    tu, _ = parse_text("typedef float real; typedef real *row_t;\n"
+                       "void f(int n) { row_t r; const real w = 2; for (int i = 0; i < n; i++) r[i] = w; }")
+    decls = {d.declarators[0].name: (d.ctype, d.declarators[0].pointer)
+             for d in walk(tu.functions[0].body) if isinstance(d, ir.Decl)}
+    assert decls["r"] == ("float", 1) and decls["w"] == ("const float", 0)
+
+
 def test_extern_c_block_is_read():
     tu, diags = parse_text('extern "C" {\nvoid f(int n) { n++; }\n}\nvoid g(void) { }\n')
     assert diags == []

@@ -125,6 +125,12 @@ class Cast(Expr):
 
     type_name: str
     operand: Expr
+    resolved: str = ""  # type_name with typedef names replaced by their types ("" when none)
+
+    @property
+    def ctype(self) -> str:
+        """The C type as the compiler sees it (typedef names resolved)."""
+        return self.resolved or self.type_name
 
 
 @dataclass(frozen=True)
@@ -189,6 +195,12 @@ class Decl(Stmt):
     type_name: str
     declarators: tuple[Declarator, ...]
     text: str = ""
+    resolved: str = ""  # type_name with typedef names replaced by their types ("" when none)
+
+    @property
+    def ctype(self) -> str:
+        """The C type as the compiler sees it (typedef names resolved)."""
+        return self.resolved or self.type_name
 
 
 @dataclass(frozen=True)
@@ -311,6 +323,12 @@ class Param(Node):
     type_name: str
     pointer: int = 0
     dims: tuple[Expr | None, ...] = ()
+    resolved: str = ""  # type_name with typedef names replaced by their types ("" when none)
+
+    @property
+    def ctype(self) -> str:
+        """The C type as the compiler sees it (typedef names resolved)."""
+        return self.resolved or self.type_name
 
 
 @dataclass(frozen=True)

@@ -224,7 +224,7 @@ class _NestBuilder:
                     ctx.env[d.name] = ("array",)
                 elif d.init is None:
                     ctx.env[d.name] = ("plain",)
-                elif is_floating_type(s.type_name):
+                elif is_floating_type(s.ctype):
                     ctx.env[d.name] = ("error", NotAffine("float", d, f"'{d.name}' is a floating-point variable"))
                 else:
                     try:

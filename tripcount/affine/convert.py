@@ -100,9 +100,9 @@ class Converter:
         if isinstance(e, ir.ArrayRef):
             raise NotAffine("array", e, "array element")
         if isinstance(e, ir.Cast):
-            if is_integer_type(e.type_name):
+            if is_integer_type(e.ctype):
                 return self.lin(e.operand)
-            if is_floating_type(e.type_name):
+            if is_floating_type(e.ctype):
                 raise NotAffine("float", e, f"cast to {e.type_name}")
             raise NotAffine("other", e, f"cast to {e.type_name}")
         if isinstance(e, (ir.Assign, ir.IncDec)):
@@ -184,7 +184,7 @@ class Converter:
         if isinstance(e, ir.Ternary):
             c = self.cond(e.cond)
             return disj([conj([c, self.cond(e.then)]), conj([negate(c), self.cond(e.other)])])
-        if isinstance(e, ir.Cast) and is_integer_type(e.type_name):
+        if isinstance(e, ir.Cast) and is_integer_type(e.ctype):
             return self.cond(e.operand)
         return ne(self.lin(e), const(0))
 

@@ -49,7 +49,7 @@ class FunctionInfo:
         self.cuts = {id(c.node): c for c in cuts or ()}  # code cut for its depth, by its ir.Unparsed
         self.cuts_reported: set[int] = set()
         self.params = {
-            p.name: VarDecl(p.name, p.type_name, p.pointer, p.dims, None, "param", p.span)
+            p.name: VarDecl(p.name, p.ctype, p.pointer, p.dims, None, "param", p.span)
             for p in fn.params
         }
         # (declaration, span of the block or `for` it is visible in)
@@ -63,7 +63,7 @@ class FunctionInfo:
                 decls = [n.init]
             for x in decls:
                 for d in x.declarators:
-                    self.locals.append((VarDecl(d.name, x.type_name, d.pointer, d.dims, d.init, "local", d.span), scope))
+                    self.locals.append((VarDecl(d.name, x.ctype, d.pointer, d.dims, d.init, "local", d.span), scope))
         self.locals.sort(key=lambda t: (t[0].span.line, t[0].span.column))
         self.writes = collect_writes(fn.body)
 
@@ -109,5 +109,5 @@ def global_decls(unit: ir.TranslationUnit) -> list[VarDecl]:
     out = []
     for g in unit.globals:
         for d in g.declarators:
-            out.append(VarDecl(d.name, g.type_name, d.pointer, d.dims, d.init, "global", d.span))
+            out.append(VarDecl(d.name, g.ctype, d.pointer, d.dims, d.init, "global", d.span))
     return out

@@ -69,7 +69,7 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
             return b.diag(UnsupportedLoopForm, hdr, loop=label, detail="it declares several variables")
         if ds[0].init is None:
             return b.diag(UnsupportedLoopForm, hdr, loop=label, detail="its variable has no start value")
-        init_var, init_expr, var_type = ds[0].name, ds[0].init, s.init.type_name
+        init_var, init_expr, var_type = ds[0].name, ds[0].init, s.init.ctype
     elif isinstance(s.init, ir.ExprStmt):
         e = s.init.expr
         if isinstance(e, ir.Assign) and e.op == "=" and write_target(e.target):

@@ -106,7 +106,7 @@ class _Counter:
         if isinstance(e, ir.ArrayRef):
             return type_class(self.arrays.get(e.array))
         if isinstance(e, ir.Cast):
-            return type_class(e.type_name)
+            return type_class(e.ctype)
         if isinstance(e, ir.Unary):
             if e.op in ("!",):
                 return "int"
@@ -142,7 +142,7 @@ class _Counter:
             self.target_int = self._target_is_int(s.expr)
             self.expr(s.expr)
         elif isinstance(s, ir.Decl):
-            self.target_int = type_class(s.type_name) == "int"
+            self.target_int = type_class(s.ctype) == "int"
             for d in s.declarators:
                 if d.init is not None and not d.pointer:
                     self.expr(d.init)
@@ -225,7 +225,7 @@ def declared_types(statements: Iterable[Statement]) -> dict[str, str]:
         if isinstance(s.ir, ir.Decl):
             for d in s.ir.declarators:
                 if not d.dims:
-                    out[d.name] = s.ir.type_name + ("*" * d.pointer)
+                    out[d.name] = s.ir.ctype + ("*" * d.pointer)
     return out
 
 

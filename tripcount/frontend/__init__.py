@@ -77,9 +77,11 @@ def parse_text(text: str, path: str = "<input>", snippet: bool = False,
         diags: list[Diagnostic] = list(pre.diagnostics)
         with eng.lock:
             # the callbacks are shared by every parse; they read this file's context
-            eng.builder.ctx = Context(pre.source, diags)
+            ctx = Context(pre.source, diags)
+            eng.builder.ctx = ctx
             try:
                 unit = UnitParser(pre, diags)
+                unit.typedef_types = ctx.typedefs  # the scanner fills what the builder reads
                 functions, globals_ = unit.parse_unit(snippet)
             finally:
                 eng.builder.ctx = None

@@ -18,6 +18,7 @@ from tripcount import ir
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.lexer import SourceMap, char_value, int_value
+from tripcount.frontend.scanner import resolve_typedef
 
 # How deep the OpenMP region rewrite follows nested statements.
 MAX_REGION_DEPTH = 200
@@ -79,6 +80,8 @@ class Context:
     def __init__(self, smap: SourceMap, diags: list[Diagnostic]) -> None:
         self.smap = smap
         self.diags = diags
+        # typedef name -> (the type it stands for, pointer levels it adds), filled by the scanner
+        self.typedefs: dict[str, tuple[str, int]] = {}
 
 
 class IRBuilder(Transformer):
@@ -179,7 +182,18 @@ class IRBuilder(Transformer):
         specs, decls, semi = ch
         declarators = tuple(decls or ())
         last = declarators[-1] if declarators else specs
-        return ir.Decl(cover(specs, semi), specs.text, declarators, self._text(cover(specs, last)))
+        resolved, more = self._resolve(specs.text)
+        if more:
+            declarators = tuple(replace(x, pointer=x.pointer + more) for x in declarators)
+        return ir.Decl(cover(specs, semi), specs.text, declarators, self._text(cover(specs, last)),
+                       resolved if resolved != specs.text else "")
+
+    def _resolve(self, text: str) -> tuple[str, int]:
+        # typedef names become the type they stand for, so that element sizes and
+        # flops see `float` where the code says `real` (the source text keeps `real`)
+        if self.ctx is None or not self.ctx.typedefs:
+            return text, 0
+        return resolve_typedef(text, self.ctx.typedefs)
 
     def decl_specs(self, ch: list) -> _Words:
         words = [c.text if isinstance(c, _Words) else str(c) for c in ch]
@@ -229,11 +243,15 @@ class IRBuilder(Transformer):
 
     designated = designator = init_list
 
-    def type_name(self, ch: list) -> str:
+    def type_name(self, ch: list) -> tuple[str, str]:
+        # (as written, resolved): a cast keeps its spelling for messages
         text = ch[0].text
+        resolved, more = self._resolve(text)
         if len(ch) > 1:
             text += " " + "*" * (len(ch) - 1)
-        return text
+        if more or len(ch) > 1:
+            resolved += " " + "*" * (more + len(ch) - 1)
+        return text, resolved
 
     # ------------------------------------------------------------ expressions
     def binop(self, ch: list) -> ir.Binary:
@@ -248,7 +266,8 @@ class IRBuilder(Transformer):
         return ir.Ternary(cover(ch[0], ch[4]), ch[0], ch[2], ch[4])
 
     def cast(self, ch: list) -> ir.Cast:
-        return ir.Cast(cover(ch[0], ch[3]), ch[1], ch[3])
+        written, resolved = ch[1]
+        return ir.Cast(cover(ch[0], ch[3]), written, ch[3], resolved if resolved != written else "")
 
     def pre_incdec(self, ch: list) -> ir.IncDec:
         return ir.IncDec(cover(ch[0], ch[1]), str(ch[0]), True, ch[1])

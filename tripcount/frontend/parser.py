@@ -36,6 +36,7 @@ from tripcount.frontend.scanner import (
     match_brackets,
     name_before_paren,
     new_token,
+    resolve_typedef,
     skip_brackets,
     skip_parens,
     split_commas,
@@ -78,6 +79,8 @@ class UnitParser(Scanner, Recovery):
         self.WHILE, self.DO, self.SWITCH = t["while"], t["do"], t["switch"]
         self.CASE, self.DEFAULT = t["case"], t["default"]
         self.typedefs: set[str] = set()
+        # typedef name -> (the type it stands for, pointer levels it adds); shared with the IR builder
+        self.typedef_types: dict[str, tuple[str, int]] = {}
 
     # ================================================================ parsing
     def _parse(self, toks: list[Token], start: str):
@@ -217,6 +220,7 @@ class UnitParser(Scanner, Recovery):
         """Functions and global declarations of the file (or the snippet's function)."""
         toks = self.pre.tokens
         self._collect_typedefs(toks)
+        self._collect_aliases(toks)
         items = self._scan(toks, report=not snippet)
         has_function = any(kind == "func" for kind, *_ in items)
         if snippet and not has_function:
@@ -394,7 +398,10 @@ class UnitParser(Scanner, Recovery):
             elif v == "*":
                 pointer += 1
             i += 1
-        return ir.Param(span, name, " ".join(type_words), pointer, tuple(dims))
+        written = " ".join(type_words)
+        resolved, more = resolve_typedef(written, self.typedef_types)
+        return ir.Param(span, name, written, pointer + more, tuple(dims),
+                        resolved if resolved != written else "")
 
     def _snippet_function(self, toks: list[Tok]) -> ir.Function:
         lt = self.to_lark(toks)

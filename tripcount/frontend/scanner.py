@@ -201,8 +201,30 @@ def _function_head(toks: list[Tok], a: int, b: int) -> int | None:
     return s
 
 
+def resolve_typedef(text: str, table: dict[str, tuple[str, int]]) -> tuple[str, int]:
+    """A type's words with each typedef name replaced by what it stands for, and the pointer levels it adds.
+
+    Chains (`typedef float real; typedef real real2;`) are resolved when each
+    is recorded, so one look-up per word suffices.
+    """
+    words = text.split()
+    if not any(w in table for w in words):
+        return text, 0
+    out: list[str] = []
+    stars = 0
+    for w in words:
+        if w in table:
+            base, more = table[w]
+            out.extend(base.split())
+            stars += more
+        else:
+            out.append(w)
+    return " ".join(out), stars
+
+
 class Scanner:
-    """File-level scanning (a part of UnitParser: reads self.smap, self.diags, self.typedefs)."""
+    """File-level scanning (a part of UnitParser: reads self.smap, self.diags, self.typedefs,
+    self.typedef_types)."""
 
     def _collect_typedefs(self, toks: list[Tok]) -> None:
         n = len(toks)
@@ -233,6 +255,39 @@ class Scanner:
             chosen = paren_name or name
             if chosen:
                 self.typedefs.add(chosen)
+                if paren_name is None:
+                    self._record_typedef(toks[i + 1:j], chosen)
+
+    def _record_typedef(self, body: list[Tok], name: str) -> None:
+        """Remember what `typedef WORDS [*...] name;` stands for (plain types and pointers only).
+
+        Arrays, function types, structs and anything else are left unresolved:
+        their element size and kind are not a scalar type's.
+        """
+        vals = [t.value for t in body]
+        if not vals or vals[-1] != name or any(v in ("[", "(", "{", ",") for v in vals):
+            return
+        words = vals[:-1]
+        stars = sum(1 for v in words if v == "*")
+        words = [w for w in words if w != "*"]
+        if any(w in ("struct", "union", "enum") for w in words):
+            return
+        text, more = resolve_typedef(" ".join(words), self.typedef_types)
+        self.typedef_types[name] = (text, stars + more)
+
+    def _collect_aliases(self, toks: list[Tok]) -> None:
+        """C++ `using NAME = TYPE;` at any depth: a typedef by another spelling."""
+        n = len(toks)
+        for i, t in enumerate(toks):
+            if (t.kind != "id" or t.value != "using" or i + 2 >= n or toks[i + 1].kind != "id"
+                    or toks[i + 2].value != "="):
+                continue
+            j = i + 3
+            while j < n and j < i + 64 and toks[j].value != ";":
+                j += 1
+            name = toks[i + 1].value
+            self.typedefs.add(name)
+            self._record_typedef([*toks[i + 3:j], toks[i + 1]], name)
 
     def _scan(self, toks: list[Tok], report: bool) -> list[tuple[str, int, int, int]]:
         """Cut the file at depth 0 into ('func', header, open, close) and ('decl', a, b, 0)."""
