@@ -491,8 +491,12 @@ def count_per_thread(c_source: str, function: str, statements: Sequence[SpanTupl
 
 
 def evaluate_c(c_source: str, expressions: Sequence[str], param_types: Sequence[ParamType],
-               points: Sequence[Mapping[str, int]], timeout: float = DEFAULT_TIMEOUT) -> list[list[int]]:
+               points: Sequence[Mapping[str, int]], timeout: float = DEFAULT_TIMEOUT,
+               flags: Sequence[str] = ()) -> list[list[int]]:
     """Values of C expressions (as long long) per point, evaluated by gcc after `c_source`.
+
+    `flags` go to gcc after the defaults (e.g. "-O2", so that a counting loop
+    of 2^32 iterations is closed by the compiler instead of run).
 
     The expressions see the source's macros and functions, and the parameters
     in `param_types` as local variables (integers from the point, pointers into
@@ -536,7 +540,8 @@ int main(void)
     return 0;
 }}
 """
-    out = _build_and_run(program, openmp_available(), _stdin_for(param_types, [], points), timeout)
+    out = _build_and_run(program, openmp_available(), _stdin_for(param_types, [], points), timeout,
+                         flags=flags)
     rows = [line.split()[1:] for line in out.splitlines() if line.startswith("point")]
     if len(rows) != len(points):
         raise OracleError(f"expected {len(points)} result lines, got {len(rows)}")

@@ -188,3 +188,22 @@ class ExpressionTooDeep(Diagnostic):
     title = "expression-too-deep"
     template = ("the expression at {pos} is nested more than {limit} levels deep (with its statements); "
                 "the statement holding it is skipped{effect}")
+
+
+class UnsignedComparison(Diagnostic):
+    """A loop bound compared in unsigned arithmetic: a negative value wraps, modelled as C does."""
+
+    code = "TC221"
+    severity = "note"
+    title = "unsigned-comparison"
+    template = ("{loop}: '{bound}' is compared with '{var}' as {type}, so where it is negative it reads "
+                "'{shifted}' (C's conversion); counted so")
+
+
+class IntegerWrap(Diagnostic):
+    """The loop variable can leave the range of its C type; counted assuming it does not."""
+
+    code = "TC222"
+    severity = "warning"
+    title = "integer-wrap"
+    template = "{loop}: {what} when {when}; counted assuming it does not (the counts are 0 there)"

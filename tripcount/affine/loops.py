@@ -13,13 +13,16 @@ from tripcount.affine.ctext import loop_label, mangle
 from tripcount.affine.diagnostics import (
     ArrayDependentBound,
     FloatingLoop,
+    IntegerWrap,
     NonAffineBound,
     NonConstantStep,
     NonMonotoneCondition,
     UnboundedLoop,
+    UnsignedComparison,
     UnsupportedLoopForm,
     WrittenValueBound,
 )
+from tripcount.affine.inttypes import int_type, range_issues, unsigned_condition
 from tripcount.affine.lin import (
     And,
     Cond,
@@ -146,12 +149,31 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
     if step == 0:
         return b.diag(UnboundedLoop, s.step.span, loop=label, detail="its step is zero")
     lp.step = step
-    # -- condition
+    # -- condition, read with C's integer conversions (see inttypes)
     lp.cond_text = c_text(s.cond)
+
+    def lookup(name: str) -> str | None:
+        d = b.info.lookup(name, s.span)
+        return d.type_name if d is not None else None
+
+    vt = int_type(var_type)
     try:
-        cond = conv.cond(s.cond)
+        cond, wrapped = unsigned_condition(conv, s.cond, v, vt, lookup)
+        issues = (range_issues(conv, s.cond, v, vt, base_type(var_type or ""), start,
+                               c_text(init_expr) if init_expr is not None else f"{v} before the loop",
+                               step, lookup) if vt is not None else [])
     except NotAffine as err:
         return bound_diag(b, err, label, "condition", s.cond)
+    for bound, ct in wrapped:
+        b.diag(UnsignedComparison, bound.span, loop=label, bound=c_text(bound), var=v,
+               type=("unsigned" if ct.bits == 32 else f"a {ct.bits}-bit unsigned value"),
+               shifted=f"{c_text(bound, 12)} + {1 << ct.bits}")
+    extra: list[Cond] = []
+    for issue in issues:
+        if issue.assume is None:
+            return b.diag(UnboundedLoop, issue.bound.span, loop=label, detail=issue.what)
+        b.diag(IntegerWrap, issue.bound.span, loop=label, what=issue.what, when=issue.when)
+        extra.append(issue.assume)
     up = step > 0
     stride = abs(step)
     i = var(key, v)
@@ -193,7 +215,7 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
         lp.unbounded_detail = (
             unsigned_note or f"the condition '{lp.cond_text}' does not limit '{v}' in the direction it moves"
         )
-    lp.constraint = conj(parts)
+    lp.constraint = conj(parts + extra)
     return None
 
 def bound_diag(b: _NestBuilder, err: NotAffine, label: str, part: str, whole: ir.Expr) -> Diagnostic:
