@@ -28,8 +28,8 @@ atexit.register(shutil.rmtree, _SESSION_CACHE, True)
 
 
 def corpus_files() -> list[str]:
-    """Every C file of the bundled corpus."""
-    return sorted(os.path.join(CORPUS, f) for f in os.listdir(CORPUS) if f.endswith((".c", ".h")))
+    """Every C and C++ file of the bundled corpus."""
+    return sorted(os.path.join(CORPUS, f) for f in os.listdir(CORPUS) if f.endswith((".c", ".h", ".cpp")))
 
 
 @pytest.fixture

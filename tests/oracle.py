@@ -599,3 +599,61 @@ def _parse_gcov(report: str, source: str) -> dict[int, int]:
         value = 0 if count.startswith(("#", "=")) else int(count.rstrip("*"))
         counts[int(lineno)] = value
     return counts
+
+
+@lru_cache(maxsize=1)
+def gxx_available() -> bool:
+    """True when g++ and gcov can build and run a C++17 program here."""
+    if shutil.which("g++") is None or shutil.which("gcov") is None:
+        return False
+    try:
+        with tempfile.TemporaryDirectory(prefix="tripcount-gxx-") as tmp:
+            src = os.path.join(tmp, "p.cpp")
+            with open(src, "w", encoding="utf-8") as f:
+                f.write("#include <vector>\nint main() { std::vector<int> v(3); return (int)v.size() - 3; }\n")
+            subprocess.run(["g++", "-std=gnu++17", src, "-o", os.path.join(tmp, "p")], check=True,
+                           capture_output=True, timeout=60)
+            return subprocess.run([os.path.join(tmp, "p")], timeout=30).returncode == 0
+    except (OSError, subprocess.SubprocessError):
+        return False
+
+
+def gxx_line_counts(cpp_source: str, driver: str, names: Sequence[str],
+                    points: Sequence[Mapping[str, int]], timeout: float = DEFAULT_TIMEOUT
+                    ) -> list[dict[int, int]]:
+    """Execution counts per line of a C++ source (g++ --coverage, then gcov), per point.
+
+    `driver`: C++ statements run once per point; they see the point's values
+    as `long long NAME` for each of `names` and call the source's functions.
+    Lines gcov calls non-executable are absent from the result.
+    """
+    program = (f'#include <cstdio>\n#line 1 "input.cpp"\n{cpp_source}\n#line 1 "tripcount-oracle-driver.cpp"\n'
+               "int main() {\n"
+               + "".join(f'    long long {n}; if (scanf("%lld", &{n}) != 1) return 2;\n' for n in names)
+               + f"    {driver}\n    return 0;\n}}\n")
+    out: list[dict[int, int]] = []
+    with tempfile.TemporaryDirectory(prefix="tripcount-gxx-") as tmp:
+        src = os.path.join(tmp, "prog.cpp")
+        with open(src, "w", encoding="utf-8") as f:
+            f.write(program)
+        with open(os.path.join(tmp, "input.cpp"), "w", encoding="utf-8") as f:
+            f.write(cpp_source)
+        cmd = ["g++", "-O0", "-std=gnu++17", "-w", "--coverage", src, "-o", os.path.join(tmp, "prog")]
+        try:
+            built = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, cwd=tmp)
+        except (OSError, subprocess.TimeoutExpired) as exc:
+            raise OracleError(f"g++ failed to run: {exc}") from exc
+        if built.returncode != 0:
+            raise OracleError("g++ could not build the program:\n" + built.stderr[-4000:])
+        for pt in points:
+            data = os.path.join(tmp, "prog.gcda")
+            if os.path.exists(data):
+                os.remove(data)
+            _run(os.path.join(tmp, "prog"), " ".join(str(pt.get(n, 0)) for n in names) + "\n", timeout)
+            try:
+                rep = subprocess.run(["gcov", "-t", "prog.cpp"], capture_output=True, text=True,
+                                     timeout=timeout, cwd=tmp)
+            except subprocess.TimeoutExpired as exc:
+                raise OracleError("gcov did not finish") from exc
+            out.append(_parse_gcov(rep.stdout, "input.cpp"))
+    return out

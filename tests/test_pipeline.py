@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import os
 
-from conftest import INPUTS
+from conftest import CORPUS, INPUTS
 
 from tripcount import pipeline
 from tripcount.options import Options
@@ -16,6 +16,10 @@ def test_collect_paths_walks_directories():
     paths = pipeline.collect_paths([os.path.join(INPUTS, "cli")])
     assert FLUSH in paths
     assert all(p.endswith((".c", ".h")) for p in paths)
+    # C++ sources are found too (the corpus has one)
+    corpus = pipeline.collect_paths([CORPUS])
+    assert any(p.endswith("harbour_sweep.cpp") for p in corpus)
+    assert all(p.endswith((".c", ".h", ".cpp", ".cc", ".cxx", ".hpp", ".hh", ".hxx")) for p in corpus)
 
 
 def test_failure_in_one_nest_is_contained(monkeypatch):

@@ -1,5 +1,5 @@
 # Reading sources, shared by the pipeline and the paths that must stay light
-# (the cached check, the language server): which files are C sources, and
+# (the cached check, the language server): which files are C and C++ sources, and
 # decoding their bytes. Imports nothing beyond the diagnostics.
 
 from __future__ import annotations
@@ -11,7 +11,9 @@ from collections.abc import Iterable
 from tripcount.diagnostics import InvalidEncoding
 from tripcount.ir import Span
 
-SOURCE_SUFFIXES = (".c", ".h")
+# C++ sources and headers (read with the C++ subset of frontend/cxx.py).
+CXX_SUFFIXES = (".cpp", ".cc", ".cxx", ".hpp", ".hh", ".hxx")
+SOURCE_SUFFIXES = (".c", ".h", *CXX_SUFFIXES)
 
 # Sources larger than this are not read: a generated or hostile file of tens of
 # megabytes would cost gigabytes of parse tree (the largest corpus file is 4 KB;
@@ -52,7 +54,7 @@ def read_bytes(path: str, limit: int = MAX_SOURCE_BYTES) -> bytes:
 
 
 def collect_paths(paths: Iterable[str]) -> list[str]:
-    """Expand directories into the C sources under them (sorted); keep files as given."""
+    """Expand directories into the C and C++ sources under them (sorted); keep files as given."""
     out: list[str] = []
     for p in paths:
         if os.path.isdir(p):

@@ -40,6 +40,12 @@ from tripcount.ctable import base_type, is_floating_type, type_size
 from tripcount.diagnostics import Diagnostic, InternalError
 from tripcount.ir import Span, c_text
 
+# `v.size()`: a container's size, a loop-invariant parameter unless the nest resizes it.
+_SIZE_QUERY = re.compile(r"([A-Za-z_]\w*)\s*(?:\.|->)\s*(?:size|length)\s*\(\s*\)\Z"
+                         r"|(?:std::)?size\(\s*([A-Za-z_]\w*)\s*\)\Z")
+RESIZERS = ("push_back", "emplace_back", "pop_back", "resize", "clear", "insert", "erase", "assign",
+            "swap", "emplace", "push_front", "pop_front")
+
 
 class _NestBuilder:
     def __init__(self, info: FunctionInfo, node: ir.For, path: str) -> None:
@@ -122,7 +128,14 @@ class _NestBuilder:
         names |= {x.array for x in walk_exprs(node) if isinstance(x, ir.ArrayRef)}
         if isinstance(node, ir.Opaque):
             names |= set(re.findall(r"[A-Za-z_][A-Za-z0-9_]*", node.text))
+        sized = _SIZE_QUERY.match(text)
         for n in sorted(names):
+            if sized and n == (sized.group(1) or sized.group(2)):
+                # writing elements of a container leaves its size alone; a call that resizes it does not
+                if self._resized(n):
+                    raise NotAffine("written", node, f"'{text}' changes: '{n}' is resized in the nest", name=n)
+                if not self.outer_writes.writes(n):
+                    continue
             entry = res.env.get(n)
             if entry is not None and entry[0] == "loop":
                 raise NotAffine("call", node, f"'{text}' changes with the loop variable '{n}'", name=n)
@@ -135,6 +148,10 @@ class _NestBuilder:
             self.symbols_noted.add(key)
             self._pending_symbols.append((key, node.span))
         return var(key, text)
+
+    def _resized(self, name: str) -> bool:
+        pat = re.compile(rf"\b{re.escape(name)}\s*(?:\.|->)\s*(?:{'|'.join(RESIZERS)})\b")
+        return any(isinstance(x, (ir.Opaque, ir.Unparsed)) and pat.search(x.text) for x in ir.walk(self.node))
 
     # ---- the walk
 

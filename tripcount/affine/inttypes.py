@@ -125,7 +125,7 @@ def expr_type(e: ir.Expr, lookup: Callable[[str], str | None]) -> IntType:
         return expr_type(e.left, lookup)
     if isinstance(e, ir.Ternary):
         return common(expr_type(e.then, lookup), expr_type(e.other, lookup))
-    if isinstance(e, ir.Opaque) and (e.text.startswith("sizeof") or e.text.endswith(".size()")):
+    if is_size(e):
         return IntType(64, True)
     if isinstance(e, ir.Call) and e.func in ("std::min", "std::max", "min", "max") and e.args:
         t = expr_type(e.args[0], lookup)
@@ -135,6 +135,13 @@ def expr_type(e: ir.Expr, lookup: Callable[[str], str | None]) -> IntType:
     return INT
 
 
+def is_size(e: ir.Expr) -> bool:
+    """`sizeof(...)`, `v.size()` or `size(v)`: a size_t value."""
+    if isinstance(e, ir.Opaque):
+        return e.text.startswith("sizeof") or re.search(r"\.\s*size\s*\(\s*\)$", e.text) is not None
+    return isinstance(e, ir.Call) and e.func == "size" and len(e.args) == 1
+
+
 def nonnegative_names(e: ir.Expr, lookup: Callable[[str], str | None]) -> bool:
     """True when e is built from unsigned names and nonnegative constants by + and * only (never below 0)."""
     if isinstance(e, ir.IntLit):
@@ -142,8 +149,8 @@ def nonnegative_names(e: ir.Expr, lookup: Callable[[str], str | None]) -> bool:
     if isinstance(e, ir.Name):
         t = int_type(lookup(e.name))
         return t is not None and t.unsigned
-    if isinstance(e, ir.Opaque):
-        return e.text.startswith("sizeof") or e.text.endswith(".size()")
+    if is_size(e):
+        return True
     if isinstance(e, ir.Binary) and e.op in ("+", "*", "/", "%"):
         return nonnegative_names(e.left, lookup) and nonnegative_names(e.right, lookup)
     return False
@@ -277,8 +284,8 @@ def range_issues(conv: Converter, cond: ir.Expr, v: str, vt: IntType, spelled: s
                                           f"value it can take: stepping past {vt.hi} it {what}"))
                 continue
             et = expr_type(bound, lookup)
-            if et.hi <= vt.hi and not (et.hi > limit and s > 1):
-                continue  # the bound's own type keeps it within range (the type's last value aside)
+            if et.hi <= vt.hi:
+                continue  # the bound's own type keeps it within range (its last few values aside)
             out.append(RangeIssue(bound, f"{c_text(bound)} > {limit}", ge(const(limit), e),
                                   f"'{v}' is {desc}: stepping past {vt.hi} it {what}"))
         elif step < 0 and vt.unsigned and op in (">", ">="):

@@ -6,7 +6,8 @@
 # parser.py (one file: scanner.py cuts it into functions and declarations,
 # lalr.py runs the grammar of grammar/loops.lark, recovery.py rebuilds what
 # does not parse, omp.py reads OpenMP clauses, vocab.py holds the words) ->
-# build.py (callbacks that build the IR). Nothing here raises on bad input:
+# build.py (callbacks that build the IR); cxx.py first rewrites the tokens of
+# a C++ file into the C that the rest reads. Nothing here raises on bad input:
 # what cannot be read becomes a diagnostic (codes TC100..TC189, see
 # frontend/diagnostics.py) and the rest of the file is read on.
 
@@ -17,6 +18,8 @@ import gc
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic, InvalidEncoding
 from tripcount.frontend.build import Context
+from tripcount.frontend.cxx import is_cxx_path
+from tripcount.frontend.cxx import rewrite as rewrite_cxx
 from tripcount.frontend.diagnostics import (
     BadDirective,
     BadMacroCall,
@@ -51,15 +54,18 @@ __all__ = [
 
 
 def parse_text(text: str, path: str = "<input>", snippet: bool = False,
-               includes: Includes | None = None) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
-    """Read C source text into IR.
+               includes: Includes | None = None,
+               lang: str | None = None) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
+    """Read C (or C++) source text into IR.
 
     With `snippet=True` the text may also be a function body or bare
     statements; those become the body of a function named "<snippet>".
     `includes` gives -I directories and -D/-U macros (quoted headers are
-    also looked for beside `path`). Diagnostics carry `path` and positions
-    in `text`.
+    also looked for beside `path`). `lang` is "c" or "c++"; by default the
+    suffix of `path` decides (see cxx.CXX_SUFFIXES). Diagnostics carry
+    `path` and positions in `text`.
     """
+    cxx = lang == "c++" or (lang is None and is_cxx_path(path))
     if text.startswith("\ufeff"):
         text = text[1:]  # a byte-order mark is not a column anyone sees
     eng = engine()
@@ -79,6 +85,8 @@ def parse_text(text: str, path: str = "<input>", snippet: bool = False,
             # the callbacks are shared by every parse; they read this file's context
             ctx = Context(pre.source, diags)
             eng.builder.ctx = ctx
+            if cxx:
+                pre.tokens = rewrite_cxx(pre.tokens, ctx.typedefs)
             try:
                 unit = UnitParser(pre, diags)
                 unit.typedef_types = ctx.typedefs  # the scanner fills what the builder reads
@@ -117,12 +125,12 @@ def decode(data: bytes) -> tuple[str, Diagnostic | None]:
         return data.decode("utf-8", errors="replace"), diag
 
 
-def parse_file(path: str) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
-    """Read a C file into IR (OSError propagates; bad bytes are a diagnostic)."""
+def parse_file(path: str, lang: str | None = None) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
+    """Read a C or C++ file into IR (OSError propagates; bad bytes are a diagnostic)."""
     with open(path, "rb") as f:
         data = f.read()
     text, bad = decode(data)
-    tu, diags = parse_text(text, path=path)
+    tu, diags = parse_text(text, path=path, lang=lang)
     if bad is not None:
         diags.insert(0, bad.with_path(path))
     return tu, diags

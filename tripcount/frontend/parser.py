@@ -219,6 +219,7 @@ class UnitParser(Scanner, Recovery):
     def parse_unit(self, snippet: bool) -> tuple[list[ir.Function], list[ir.Decl]]:
         """Functions and global declarations of the file (or the snippet's function)."""
         toks = self.pre.tokens
+        self.typedefs.update(self.typedef_types)  # those the C++ rewrite made
         self._collect_typedefs(toks)
         self._collect_aliases(toks)
         items = self._scan(toks, report=not snippet)
