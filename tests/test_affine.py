@@ -23,10 +23,10 @@ from tripcount.ir import Span
 S = Span(1, 1, 1, 2)
 
 
-def nests_of(text: str, snippet: bool = True) -> list[af.ANest]:
+def nests_of(text: str, snippet: bool = True, file_codes: tuple[str, ...] = ()) -> list[af.ANest]:
     unit, _ = parse_text(text, path="velin.c", snippet=snippet)
     nests, file_diags = af.extract_nests(unit)
-    assert file_diags == []
+    assert [d.code for d in file_diags] == list(file_codes)
     return nests
 
 
@@ -276,8 +276,9 @@ def test_outermost_fors_inside_ifs_blocks_and_whiles():
         if (n) { for (int i = 0; i < n; i++) for (int j = 0; j < i; j++) x++; }
         while (x > 0) { for (int k = 0; k < n; k++) x--; }
     }
-    """, snippet=False)
+    """, snippet=False, file_codes=("TC223",))  # the while itself is named (not counted)
     assert [(n.span.line, len(n.loops)) for n in nests] == [(4, 2), (5, 1)]
+    assert [d.code for d in nests[1].diagnostics if d.code == "TC224"] == ["TC224"]  # per while iteration
 
 
 @pytest.mark.parametrize("text, want_codes, want_stmts", [

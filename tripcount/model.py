@@ -468,6 +468,15 @@ def _model_nest(an: af.ANest, assumption: tuple[af.Cond, list[str]] | None) -> N
             assert d is not None
             dom = d.intersect(sp.set(st.guard)).set_tuple_name(st.id)
         accesses = tuple(_access(a, st.id, sp, dom) for a in st.accesses)
+        for a, acc in zip(st.accesses, accesses, strict=True):
+            if a.flat is None or acc.map is not None or dom is None:
+                continue
+            if a.kind == "write" and any(b.kind == "read" and b.span == a.span for b in st.accesses):
+                continue  # `a[...] += x`: one note for the reference
+            diags.append(af.NonAffineSubscript(
+                    a.span, path=an.path, text=f"{a.array}[{a.texts[0]}]", pos=f"{a.span.line}:{a.span.column}",
+                    detail="a flattened subscript whose part beside the multiple of the row length is not "
+                           "provably within 0 and the row length on the domain"))
         statements.append(
             Statement(
                 id=st.id,
@@ -499,8 +508,17 @@ def _model_nest(an: af.ANest, assumption: tuple[af.Cond, list[str]] | None) -> N
 
 def _access(a: af.AAccess, sid: str, sp: _Space, dom: isl.Set | None) -> Access:
     m = None
-    if a.subscripts:
-        maps = [isl.Map.from_pw_aff(sp.pw(x)) for x in a.subscripts]
+    subs = a.subscripts
+    extents = a.extents
+    if subs is None and a.flat is not None and dom is not None:
+        # P*X + R is the element [X][R] of rows of length P when 0 <= R < P on the domain
+        x, r, p = a.flat
+        inside = sp.set(af.conj([af.ge(r, af.const(0)), af.gt(p, r)])).set_tuple_name(dom.get_tuple_name())
+        if dom.is_subset(inside):
+            subs = (x, r)
+            extents = (extents[0] if extents else None, None)
+    if subs:
+        maps = [isl.Map.from_pw_aff(sp.pw(x)) for x in subs]
         m = reduce(lambda p, q: p.flat_range_product(q), maps)
         m = m.set_tuple_name(isl.dim_type.in_, sid).set_tuple_name(isl.dim_type.out, af.mangle(a.array))
         if dom is not None:
@@ -513,7 +531,7 @@ def _access(a: af.AAccess, sid: str, sp: _Space, dom: isl.Set | None) -> Access:
         span=a.span,
         elem_type=a.elem_type,
         elem_size=a.elem_size,
-        extents=a.extents,
+        extents=extents,
     )
 
 

@@ -25,10 +25,12 @@ from tripcount.affine.diagnostics import (
     UnreadStatement,
     WhileInNest,
 )
+from tripcount.affine.flatten import split_flat
 from tripcount.affine.lin import Cond, Lin, Var, cond_vars, conj, lin_vars, negate, var
 from tripcount.affine.loops import loop_header, loop_var_guess
 from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
 from tripcount.affine.walkctx import _Body, _Ctx, _Resolver
+from tripcount.affine.whiles import rewrite_whiles, uncounted_whiles
 from tripcount.affine.writes import (
     collect_outer_writes,
     collect_writes,
@@ -382,14 +384,16 @@ class _NestBuilder:
         for ref, kind in refs:
             texts = tuple(c_text(x) for x in ref.indices)
             subs: tuple[Lin, ...] | None
+            flat = None
             try:
                 subs = tuple(conv.lin(x) for x in ref.indices)
             except NotAffine as err:
                 subs = None
-                if kind != "write" or not any(r is ref and k == "read" for r, k in refs):
+                flat = split_flat(conv, ref.indices[0]) if len(ref.indices) == 1 else None
+                if flat is None and (kind != "write" or not any(r is ref and k == "read" for r, k in refs)):
                     self.diag(NonAffineSubscript, ref.span, text=c_text(ref), pos=span_pos(ref.span), detail=err.detail)
             etype, esize, extents = self.elem_info(ref, ctx)
-            out.append(AAccess(ref.array, kind, subs, texts, ref.span, etype, esize, extents))
+            out.append(AAccess(ref.array, kind, subs, texts, ref.span, etype, esize, extents, flat))
         return out
 
     def elem_info(self, ref: ir.ArrayRef, ctx: _Ctx) -> tuple[str | None, int | None, tuple[str | None, ...]]:
@@ -415,7 +419,7 @@ class _NestBuilder:
         for st in self.stmts:
             used |= cond_vars(st.guard)
             for a in st.accesses:
-                for x in a.subscripts or ():
+                for x in a.subscripts or a.flat or ():
                     used |= lin_vars(x)
         names: dict[tuple[Any, ...], str] = {}
         symbolic: dict[str, str] = {}
@@ -495,6 +499,9 @@ def extract_nests(unit: ir.TranslationUnit, path: str | None = None) -> tuple[li
     for fn in unit.functions:
         try:
             fn, cuts = cut_deep_function(fn)
+            fn = rewrite_whiles(fn)
+            whiles, per_while = uncounted_whiles(fn, path)
+            file_diags.extend(whiles)
             info = FunctionInfo(fn, globs, cuts)
             fors = outermost_fors(fn.body)
         except Exception as exc:
@@ -503,6 +510,8 @@ def extract_nests(unit: ir.TranslationUnit, path: str | None = None) -> tuple[li
         for f in fors:
             try:
                 nests.append(_NestBuilder(info, f, path).build())
+                if id(f) in per_while:
+                    nests[-1].diagnostics.append(per_while[id(f)])
             except Exception as exc:
                 err = InternalError(f.span, path=path, what=f"{type(exc).__name__}: {exc}")
                 nests.append(ANest(path, fn.name, f.span, [], [], [err], {}, (), {}, ""))

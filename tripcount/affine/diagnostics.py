@@ -207,3 +207,23 @@ class IntegerWrap(Diagnostic):
     severity = "warning"
     title = "integer-wrap"
     template = "{loop}: {what} when {when}; counted assuming it does not (the counts are 0 there)"
+
+
+class UncountedWhile(Diagnostic):
+    """A `while`/`do` loop outside every nest whose iteration count is not known."""
+
+    code = "TC223"
+    severity = "warning"
+    title = "uncounted-while"
+    template = ("'{kind}' loop at {pos} in {function}(): {reason}; it is not counted (statements directly in it are "
+                "not counted; loop nests inside it are counted per iteration of it)")
+
+
+class PerWhileIteration(Diagnostic):
+    """A nest inside a `while`/`do` loop: its counts are per iteration of that loop."""
+
+    code = "TC224"
+    severity = "note"
+    title = "per-while-iteration"
+    template = ("this nest is counted per iteration of the '{kind}' loop at line {line}, whose number of "
+                "iterations is not known")

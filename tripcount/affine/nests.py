@@ -26,6 +26,8 @@ class AAccess:
     elem_type: str | None
     elem_size: int | None
     extents: tuple[str | None, ...] = ()
+    # a flattened subscript P*X + R (see flatten.py): (X, R, P), read as [X][R] where 0 <= R < P is proven
+    flat: tuple[Lin, Lin, Lin] | None = None
 
 
 @dataclass
