@@ -116,3 +116,14 @@ def test_corpus_cpp_counts_agree_with_gxx():
                 assert sr.count.value == lines[sr.stmt.span.line], (nr.nest.function, sr.stmt.span.line, pt)
                 checked += 1
     assert checked == 16
+
+
+def test_member_sizes_are_named_parameters_with_a_note():
+    src = "class Basin { void step(double k) { for (int i = 0; i < n_; i++) h_[i] += k; } int n_; double *h_; };"
+    fr = analyze_text(src, "basin.cpp", Options(at={"n_": 6}))
+    (nr,) = fr.nests
+    assert nr.statements[0].count.value == 6
+    (note,) = [g for g in nr.diagnostics if g.code == "TC216"]
+    assert "'n_'" in note.message
+    fp = nr.extras["footprint"].footprint.to_json()
+    assert fp["by_array"]["h_"]["elem_size"] == 8  # the member's declaration gives the element type

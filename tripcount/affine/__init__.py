@@ -19,7 +19,9 @@
 # (the affine language), ctext (C text and isl-safe names), nests (the
 # output), convert (IR expressions -> affine), depth (cutting code nested too
 # deeply), writes (scans of the IR), decls (declarations in scope), walkctx
-# and loops (the walk's state, loop headers), build (one nest; the entry).
+# and loops (the walk's state, loop headers; inttypes: C's integer types in
+# them), flatten (flattened subscripts), whiles (while loops that are counted
+# loops, and the others), build (one nest; the entry).
 
 from tripcount.affine.build import _NestBuilder, extract_nests, outermost_fors
 from tripcount.affine.convert import Converter, NotAffine

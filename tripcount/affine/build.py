@@ -42,6 +42,8 @@ from tripcount.ctable import base_type, is_floating_type, type_size
 from tripcount.diagnostics import Diagnostic, InternalError
 from tripcount.ir import Span, c_text
 
+# Names of class members by the usual conventions (`n_`, `m_rows`).
+_MEMBER = re.compile(r"[A-Za-z]\w*_\Z|m_\w+\Z")
 # `v.size()`: a container's size, a loop-invariant parameter unless the nest resizes it.
 _SIZE_QUERY = re.compile(r"([A-Za-z_]\w*)\s*(?:\.|->)\s*(?:size|length)\s*\(\s*\)\Z"
                          r"|(?:std::)?size\(\s*([A-Za-z_]\w*)\s*\)\Z")
@@ -81,6 +83,9 @@ class _NestBuilder:
             return self.outer_cache[n]
         d = self.info.lookup(n, self.node.span)
         value = var(("param", n), n)
+        if (d is None or (d.scope == "global" and not d.is_const)) and _MEMBER.match(n):
+            # a class member (`n_`, `m_rows`): invariant in the nest, so a size parameter; say so
+            self.diag(SymbolicParameter, node.span, text=n, name=n)
         if d is not None:
             if d.is_array:
                 raise NotAffine("array", node, f"array '{n}' used as a value")
