@@ -127,3 +127,16 @@ def test_member_sizes_are_named_parameters_with_a_note():
     assert "'n_'" in note.message
     fp = nr.extras["footprint"].footprint.to_json()
     assert fp["by_array"]["h_"]["elem_size"] == 8  # the member's declaration gives the element type
+
+
+@pytest.mark.parametrize("piece", ["namespace a { ", "class B { ", "template < ", "for ( auto & x : v ) ",
+                                   "std :: vector < ", "static_cast < int > ( "])
+def test_hostile_cxx_ends_quickly_with_diagnostics_only(piece):
+    import time
+
+    text = "void f(int n) {\n" + piece * 20000 + "\n}\n"
+    t0 = time.perf_counter()
+    fr = analyze_text(text, "hostile.cpp", Options(time_limit=2))
+    codes = [g.code for g in fr.all_diagnostics()]
+    assert not [c for c in codes if c.startswith("TC9") or c == "TC199"], codes
+    assert time.perf_counter() - t0 < 60  # generous: a quadratic rewrite would take hours

@@ -42,22 +42,42 @@ def _tok(at: Tok, value: str, kind: str = "punct") -> Tok:
     return t
 
 
-def _match(toks: list[Tok], i: int, open_: str, close: str) -> int:
-    """Index of the token closing toks[i] (open_), or -1."""
+# How far a template argument list `< ... >` is looked for; how deep range-fors are rewritten.
+MAX_ANGLE_TOKENS = 256
+MAX_RANGE_FOR_DEPTH = 64
+
+
+def _pairs(toks: list[Tok]) -> dict[int, int]:
+    """Index of the closing token of every bracket `(`, `[`, `{` that is closed (one pass)."""
+    out: dict[int, int] = {}
+    stack: list[tuple[str, int]] = []
+    closing = {")": "(", "]": "[", "}": "{"}
+    for k, t in enumerate(toks):
+        v = t.value
+        if t.kind != "punct":
+            continue
+        if v in ("(", "[", "{"):
+            stack.append((v, k))
+        elif v in closing:
+            while stack and stack[-1][0] != closing[v]:
+                stack.pop()  # an unclosed bracket inside: dropped, as the parser will report it
+            if stack:
+                out[stack.pop()[1]] = k
+    return out
+
+
+def _match(toks: list[Tok], i: int) -> int:
+    """Index of the `>` closing the template argument list opened at toks[i], or -1."""
     depth = 0
-    for k in range(i, len(toks)):
+    for k in range(i, min(len(toks), i + MAX_ANGLE_TOKENS)):
         v = toks[k].value
-        if v == open_:
+        if v == "<":
             depth += 1
-        elif v == close:
-            depth -= 1
-            if depth == 0:
-                return k
-        elif open_ == "<" and v == ">>":
-            depth -= 2
+        elif v in (">", ">>"):
+            depth -= 1 if v == ">" else 2
             if depth <= 0:
                 return k
-        elif open_ == "<" and v in (";", "{", "}"):
+        elif v in (";", "{", "}"):
             return -1
     return -1
 
@@ -65,6 +85,7 @@ def _match(toks: list[Tok], i: int, open_: str, close: str) -> int:
 def _strip_scopes(toks: list[Tok]) -> list[Tok]:
     """Drop `template <...>`, `a ::` qualifiers, namespace/class braces and access specifiers."""
     drop: set[int] = set()
+    pairs = _pairs(toks)
     n = len(toks)
     i = 0
     while i < n:
@@ -72,14 +93,14 @@ def _strip_scopes(toks: list[Tok]) -> list[Tok]:
         v = t.value
         nxt = toks[i + 1].value if i + 1 < n else ""
         if v == "template" and nxt == "<":
-            j = _match(toks, i + 1, "<", ">")
+            j = _match(toks, i + 1)
             if j > 0:
                 drop.update(range(i, j + 1))
                 i = j + 1
                 continue
         if v == "using" and nxt == "namespace" or (v == "using" and i + 2 < n and toks[i + 2].value == ":"):
             j = i
-            while j < n and toks[j].value != ";":
+            while j < n and j < i + MAX_ANGLE_TOKENS and toks[j].value != ";":
                 j += 1
             drop.update(range(i, j + 1))
             i = j + 1
@@ -96,10 +117,10 @@ def _strip_scopes(toks: list[Tok]) -> list[Tok]:
             continue
         if v in ("namespace", "class", "struct") and t.kind == "id":
             j = i + 1
-            while j < n and toks[j].value not in ("{", ";", "(", "="):
+            while j < n and j < i + MAX_ANGLE_TOKENS and toks[j].value not in ("{", ";", "(", "="):
                 j += 1
             if j < n and toks[j].value == "{":
-                close = _match(toks, j, "{", "}")
+                close = pairs.get(j, -1)
                 unwrap = close > 0 and (v != "struct" or (
                     close + 1 < n and toks[close + 1].value == ";"
                     and any(toks[k].value == "{" for k in range(j + 1, close))))
@@ -124,7 +145,7 @@ def _types_and_references(toks: list[Tok], typedefs: dict[str, tuple[str, int]])
         v = t.value
         nxt = toks[i + 1].value if i + 1 < n else ""
         if t.kind == "id" and v in CONTAINERS and nxt == "<":
-            j = _match(toks, i + 1, "<", ">")
+            j = _match(toks, i + 1)
             inner = toks[i + 2:j] if j > 0 else []
             if v == "array":
                 inner = inner[:next((k for k, x in enumerate(inner) if x.value == ","), len(inner))]
@@ -137,7 +158,7 @@ def _types_and_references(toks: list[Tok], typedefs: dict[str, tuple[str, int]])
                 i = j + 1
                 continue
         if t.kind == "id" and v in CASTS and nxt == "<":
-            j = _match(toks, i + 1, "<", ">")
+            j = _match(toks, i + 1)
             if j > 0 and j + 1 < n and toks[j + 1].value == "(":
                 out.append(_tok(t, "("))
                 out.extend(toks[i + 2:j])
@@ -183,8 +204,11 @@ def _declares(out: list[Tok], toks: list[Tok], i: int, typedefs: dict[str, tuple
     return False
 
 
-def _range_for(toks: list[Tok]) -> list[Tok]:
+def _range_for(toks: list[Tok], depth: int = 0) -> list[Tok]:
     """`for (DECL x : v) body` -> `for (size_t x = 0; x < size(v); x++)` with x read as v[x]."""
+    if depth > MAX_RANGE_FOR_DEPTH:
+        return toks  # left as written: the grammar reports what it cannot read
+    pairs = _pairs(toks)
     out: list[Tok] = []
     n = len(toks)
     i = 0
@@ -194,7 +218,7 @@ def _range_for(toks: list[Tok]) -> list[Tok]:
             out.append(t)
             i += 1
             continue
-        close = _match(toks, i + 1, "(", ")")
+        close = pairs.get(i + 1, -1)
         colon = next((k for k in range(i + 2, close) if toks[k].value == ":"), -1) if close > 0 else -1
         if (colon < 0 or any(toks[k].value == ";" for k in range(i + 2, close))
                 or toks[colon - 1].kind != "id" or close - colon != 2 or toks[colon + 1].kind != "id"):
@@ -210,14 +234,14 @@ def _range_for(toks: list[Tok]) -> list[Tok]:
         # the body: a braced block, or one statement up to its ';'
         b = close + 1
         if b < n and toks[b].value == "{":
-            end = _match(toks, b, "{", "}")
+            end = pairs.get(b, -1)
         else:
-            end, depth = b, 0
+            end, level = b, 0
             while end < n:
                 w = toks[end].value
-                depth += w in ("(", "[", "{")
-                depth -= w in (")", "]", "}")
-                if w == ";" and depth == 0:
+                level += w in ("(", "[", "{")
+                level -= w in (")", "]", "}")
+                if w == ";" and level == 0:
                     break
                 end += 1
         if end < 0:
@@ -229,7 +253,7 @@ def _range_for(toks: list[Tok]) -> list[Tok]:
                 body.extend([_tok(y, cont, "id"), _tok(y, "["), y, _tok(y, "]")])
             else:
                 body.append(y)
-        out.extend(_range_for(body))  # a range-for inside
+        out.extend(_range_for(body, depth + 1))  # a range-for inside
         i = end + 1
     return out
 
