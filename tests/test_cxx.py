@@ -50,9 +50,13 @@ void Gauge::flush(int m) { for (int i = 0; i < m; i++) h_[i] = 0; }
     assert ir.c_text(loop.cond) == "i < min(n, (size_t)B)"
     (scan,) = [f for f in tu.functions if f.name == "scan"]
     assert [(p.name, p.type_name) for p in scan.params] == [("k", "const double")]
-    # lang overrides the suffix
+    # lang overrides the suffix; a .h header with C++-only constructs is C++
     tu, _ = parse_text(src, "gauge.inc", lang="c++")
     assert [f.name for f in tu.functions] == ["relax", "scan", "flush"]
+    tu, _ = parse_text(src, "gauge.h")
+    assert [f.name for f in tu.functions] == ["relax", "scan", "flush"]
+    tu, _ = parse_text("void f(int n, double *a) { for (int i = 0; i < n; i++) a[i] = 0; }", "plain.h")
+    assert [f.name for f in tu.functions] == ["f"]
 
 
 def test_range_for_counts_the_container_size():

@@ -18,7 +18,7 @@ import gc
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic, InvalidEncoding
 from tripcount.frontend.build import Context
-from tripcount.frontend.cxx import is_cxx_path
+from tripcount.frontend.cxx import is_cxx_path, looks_cxx
 from tripcount.frontend.cxx import rewrite as rewrite_cxx
 from tripcount.frontend.diagnostics import (
     BadDirective,
@@ -62,8 +62,9 @@ def parse_text(text: str, path: str = "<input>", snippet: bool = False,
     statements; those become the body of a function named "<snippet>".
     `includes` gives -I directories and -D/-U macros (quoted headers are
     also looked for beside `path`). `lang` is "c" or "c++"; by default the
-    suffix of `path` decides (see cxx.CXX_SUFFIXES). Diagnostics carry
-    `path` and positions in `text`.
+    suffix of `path` decides (see sources.CXX_SUFFIXES), and a `.h` file
+    with C++-only constructs is C++. Diagnostics carry `path` and positions
+    in `text`.
     """
     cxx = lang == "c++" or (lang is None and is_cxx_path(path))
     if text.startswith("\ufeff"):
@@ -85,7 +86,7 @@ def parse_text(text: str, path: str = "<input>", snippet: bool = False,
             # the callbacks are shared by every parse; they read this file's context
             ctx = Context(pre.source, diags)
             eng.builder.ctx = ctx
-            if cxx:
+            if cxx or (lang is None and path.endswith(".h") and looks_cxx(pre.tokens)):
                 pre.tokens = rewrite_cxx(pre.tokens, ctx.typedefs)
             try:
                 unit = UnitParser(pre, diags)

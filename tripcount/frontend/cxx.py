@@ -36,6 +36,20 @@ def is_cxx_path(path: str) -> bool:
     return path.endswith(CXX_SUFFIXES)
 
 
+def looks_cxx(toks: list[Tok]) -> bool:
+    """Whether tokens hold constructs only C++ has (`namespace x {`, `template <`, `a::b`).
+
+    A `.h` header is C or C++ by its content: C++ projects name their headers `.h` too.
+    """
+    for k in range(len(toks) - 2):
+        v, w = toks[k].value, toks[k + 1].value
+        if (v == "template" and w == "<") or (v == ":" and w == ":" and toks[k + 2].kind == "id"
+                                               and toks[k].kind == "punct") or (
+                v == "namespace" and toks[k + 1].kind == "id" and toks[k + 2].value == "{"):
+            return True
+    return False
+
+
 def _tok(at: Tok, value: str, kind: str = "punct") -> Tok:
     t = at.copy_at(at.start, at.end, at.hide)
     t.kind, t.value, t.bol, t.space = kind, value, False, True
