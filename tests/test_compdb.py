@@ -157,3 +157,16 @@ def test_explicit_database_selects_the_compiled_sources(tmp_path, run_cli, priva
     status, out, _ = run_cli("analyze", str(tmp_path), "--compile-commands", str(db), "--format", "json")
     assert status == 0
     assert [os.path.basename(f["path"]) for f in json.loads(out)["files"]] == ["a.c"]
+
+
+def test_database_language_reads_a_c_named_file_as_cxx(tmp_path, run_cli, private_cache):
+    src = tmp_path / "k.c"
+    src.write_text("namespace velin {\nvoid f(int n, double *a) {\n"
+                   "  for (int i = 0; i < std::min(n, 64); i++) a[i] = 0;\n}\n}\n")
+    (tmp_path / "compile_commands.json").write_text(json.dumps(
+        [{"directory": ".", "file": "k.c", "arguments": ["g++", "-x", "c++", "-c", "k.c"]}]))
+    (tmp_path / "pyproject.toml").write_text("")
+    status, out, err = run_cli("analyze", str(src), "--format", "json", "--at", "n=100")
+    assert status == 0, err
+    (nest,) = _nests(out)
+    assert nest["statements"][0]["count"]["value"] == 64

@@ -420,8 +420,8 @@ def locate(text: str, path: str, options: Options) -> Layout:
     from tripcount.frontend import parse_text
     from tripcount.ir import Span
 
-    includes, inputs_key, problem = source_inputs(path, text, options)
-    unit, diags = parse_text(text, path=path, snippet=False, includes=includes)
+    includes, inputs_key, problem, lang = source_inputs(path, text, options)
+    unit, diags = parse_text(text, path=path, snippet=False, includes=includes, lang=lang)
     if problem is not None:
         diags = [BuildFlagsUnreadable(Span.point(1, 1), reason=problem), *diags]
     toks = tokenize(text)

@@ -23,11 +23,10 @@ from functools import lru_cache
 
 from tripcount.config import parse_define
 from tripcount.options import Includes, Options
-from tripcount.sources import read_bytes
+from tripcount.sources import CXX_SUFFIXES, read_bytes
 
 DB_NAME = "compile_commands.json"
 MAX_DB_BYTES = 64 << 20  # CMake databases of large projects run to tens of MiB
-CXX_SUFFIXES = (".cpp", ".cc", ".cxx", ".c++", ".C", ".hpp", ".hh", ".hxx")
 
 
 class CompileDbError(ValueError):
@@ -170,17 +169,23 @@ def database(path: str) -> dict[str, FileFlags]:
     return _load_cached(os.path.abspath(path), (st.st_mtime_ns, st.st_size))
 
 
-def includes_for(path: str | None, options: Options) -> Includes:
-    """The -I/-D/-U of one file: its compile command's (from --compile-commands,
-    else the database found for it, when it lists the file), then those of the
-    command line and the configuration. Raises CompileDbError."""
-    given = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
+def _entry(path: str | None, options: Options) -> FileFlags | None:
+    """The compile command of `path`: from --compile-commands, else from the
+    database found for it (None when there is none or it does not list the
+    file). Raises CompileDbError."""
     if not path or path.startswith("<"):
-        return given
+        return None
     db = options.compile_commands or find(path)
     if db is None:
-        return given
-    entry = database(db).get(os.path.normpath(os.path.abspath(path)))
+        return None
+    return database(db).get(os.path.normpath(os.path.abspath(path)))
+
+
+def includes_for(path: str | None, options: Options) -> Includes:
+    """The -I/-D/-U of one file: its compile command's, then those of the
+    command line and the configuration. Raises CompileDbError."""
+    given = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
+    entry = _entry(path, options)
     return given if entry is None else merge(entry.includes, given)
 
 
@@ -217,14 +222,20 @@ def inputs_fingerprint(text: str, path: str | None, includes: Includes) -> str:
     return h.hexdigest()[:32]
 
 
-def source_inputs(path: str | None, text: str, options: Options) -> tuple[Includes, str, str | None]:
+def source_inputs(path: str | None, text: str, options: Options
+                  ) -> tuple[Includes, str, str | None, str | None]:
     """(the file's -I/-D/-U, the fingerprint of what the front end may read
-    besides `text`, and a reason when its compilation database is unreadable).
-    Never raises: a bad database means the command line's flags only."""
+    besides `text`, a reason when its compilation database is unreadable, and
+    the language its compile command gives: "c++", or None to go by the
+    suffix). Never raises: a bad database means the command line's flags only."""
     problem = None
+    lang = None
     try:
         inc = includes_for(path, options)
+        entry = _entry(path, options)
+        if entry is not None and entry.cxx:
+            lang = "c++"
     except CompileDbError as exc:
         inc = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
         problem = str(exc)
-    return inc, inputs_fingerprint(text, path, inc), problem
+    return inc, inputs_fingerprint(text, path, inc) + (lang or ""), problem, lang

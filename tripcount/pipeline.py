@@ -314,9 +314,9 @@ def run_nests(nests: list[Nest], todo: list[int], options: Options,
 
 def analyze_text(text: str, path: str, options: Options, snippet: bool = False) -> FileResult:
     """Analyze C source text; `path` is used in diagnostics and the report."""
-    includes, _, problem = source_inputs(None if snippet else path, text, options)
+    includes, _, problem, lang = source_inputs(None if snippet else path, text, options)
     try:
-        unit, diags = parse_text(text, path=path, snippet=snippet, includes=includes)
+        unit, diags = parse_text(text, path=path, snippet=snippet, includes=includes, lang=lang)
     except Exception as exc:  # the front end promises not to raise; if it does, this file only
         return _finish(_file_failure(path, text, "front end", exc, snippet), path)
     result = FileResult(path=path, diagnostics=list(diags), source=text if snippet else None)

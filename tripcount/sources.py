@@ -12,7 +12,7 @@ from tripcount.diagnostics import InvalidEncoding
 from tripcount.ir import Span
 
 # C++ sources and headers (read with the C++ subset of frontend/cxx.py).
-CXX_SUFFIXES = (".cpp", ".cc", ".cxx", ".hpp", ".hh", ".hxx")
+CXX_SUFFIXES = (".cpp", ".cc", ".cxx", ".c++", ".C", ".hpp", ".hh", ".hxx")
 SOURCE_SUFFIXES = (".c", ".h", *CXX_SUFFIXES)
 
 # Sources larger than this are not read: a generated or hostile file of tens of
