@@ -613,12 +613,16 @@ def test_open_array_extents_give_footprints_that_do_not_need_them():
     extents (`A[][16]`) still give the linear layout."""
     N = 10
     nests, _ = _file_nests("berth_open_extents.c", {"N": N})
-    for fn in ("berth_rows", "berth_cols"):
-        fp = nests[fn].extras["footprint"].footprint
-        a = fp.by_array["A"]
-        assert a.layout == "rows aligned", fn
-        assert a.elements.value == N  # A[i][0]: one element per row
-        assert a.lines.value == len({(i, (0 * 8) // 64) for i in range(N)}), fn
+    fp = nests["berth_rows"].extras["footprint"].footprint
+    a = fp.by_array["A"]
+    assert a.layout == "rows aligned"
+    assert a.elements.value == N  # A[i][0]: one element per row
+    assert a.lines.value == len({(i, (0 * 8) // 64) for i in range(N)})
+    # `A[][N]`: the row length is known at the --at sizes, so the values use the packed layout
+    # (ISO C99 6.5.2.1: A[i][0] at byte 8*N*i)
+    a = nests["berth_cols"].extras["footprint"].footprint.by_array["A"]
+    assert a.layout == "linear" and a.elements.value == N
+    assert a.lines.value == len({(8 * N * i) // 64 for i in range(N)})
     fp = nests["berth_list"].extras["footprint"].footprint
     assert fp.by_array["A"].layout == "linear"
     assert fp.lines.value == len({(i * 8) // 64 for i in range(N)})

@@ -91,10 +91,17 @@ class FCount(Count):
     bound: bool = False
     worst_at: dict[str, int] | None = None
     lower_bound: bool = False  # references are left out: the true count is at least this
+    value_bound: str | None = None  # "upper"/"lower" when the value at the --at sizes is only a bound
+    formula_assumes: str | None = None  # an assumption of the formula that the value need not share
 
     def to_json(self) -> dict[str, Any]:
-        """Count object plus `value_is`, `bound`, `lower_bound` and `worst_at` when set."""
+        """Count object plus `value_is`, `bound`, `lower_bound`, `worst_at`, `value_bound` and
+        `formula_assumes` when set."""
         out = super().to_json()
+        if self.value_bound:
+            out["value_bound"] = self.value_bound
+        if self.formula_assumes:
+            out["formula_assumes"] = self.formula_assumes
         if self.value_is:
             out["value_is"] = self.value_is
         if self.bound:

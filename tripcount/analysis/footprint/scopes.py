@@ -14,6 +14,7 @@ from typing import Any
 import islpy as isl
 
 from tripcount.analysis.caches import hierarchy
+from tripcount.analysis.footprint.exact import ExactBudget, Max, scope_values
 from tripcount.analysis.footprint.isets import (
     _in_context,
     _name_in,
@@ -77,6 +78,7 @@ class Analyzer:
         self._maxima: dict[tuple, tuple[_Quantity, Any]] = {}
         self._zero = _zero(self.nest)
         self.probes = self._probes()
+        self.exact_budget = ExactBudget()
 
     # --- setup
     def _mixed_ranks(self) -> dict[str, tuple[Access, Access]]:
@@ -288,8 +290,61 @@ class Analyzer:
             worst_case(self, fp, stmts, fixed, outer, totals)
             if fp.lower_bound and fp.worst is not None:
                 fp.worst.lower_bound = True
+        if self.has_at:
+            self._exact_values(fp, stmts, fixed, outer, aq)
         self._cache[key] = fp
         return fp
+
+    def _exact_values(self, fp: Footprint, stmts: list[Statement], fixed: tuple[str, ...],
+                      outer: isl.Set | None, aq: _ArrayQ) -> None:
+        """Values at the --at sizes from the packed layout, exact (or a bound that says so)."""
+        n = len(fixed)
+        images: dict[str, isl.Set] = {}
+        for s in stmts:
+            if s.domain is None:
+                continue
+            for a in s.accesses:
+                if self.usable(a):
+                    img = access_image(s, a, n)
+                    images[a.array] = images[a.array].union(img) if a.array in images else img
+        o = _outer_at(outer, fixed, self.at) if n and outer is not None else None
+        if n and o is None:
+            return
+        try:
+            sv = scope_values(images, {k: self.arrays[k].elem for k in images},
+                              {k: self.arrays[k].access for k in images}, self.line, o, fixed, self.at,
+                              self.exact_budget)
+        except isl.Error:
+            return
+        over = ", ".join(fixed)
+        for name, (el, ln, layout) in sv.arrays.items():
+            a = fp.by_array.get(name)
+            if a is None:
+                continue
+            formula_layout = aq[name][2] if name in aq else layout
+            a.layout = layout
+            _set_value(a.elements, el, over)
+            if a.elem_size:
+                _set_value(a.bytes, Max(None if el.value is None else el.value * a.elem_size, el.side, el.why,
+                                        el.at), over)
+            if ln is not None:
+                _set_value(a.lines, ln, over)
+                if formula_layout != "linear" and layout == "linear" and a.lines.formula is not None:
+                    a.lines.formula_assumes = ROWS_ALIGNED
+        _set_value(fp.elements, sv.elements, over)
+        if sv.bytes is not None:
+            _set_value(fp.bytes, sv.bytes, over)
+        if sv.lines is not None:
+            _set_value(fp.lines, sv.lines, over)
+            if fp.lines.formula is not None and any(
+                    a.lines.formula_assumes for a in fp.by_array.values() if isinstance(a.lines, FCount)):
+                fp.lines.formula_assumes = ROWS_ALIGNED
+        if fp.worst is not None:
+            for key, c in (("elements", fp.elements), ("bytes", fp.bytes), ("lines", fp.lines)):
+                if c.value is not None and not c.bound and not getattr(c, "value_bound", None):
+                    fp.worst.values[key] = c.value
+                    if fp.worst.counts is not None and fp.worst.counts.get(key) is not None:
+                        fp.worst.counts[key].value = c.value  # the exact maximum is the tightest bound
 
     @staticmethod
     def _mark_lower_bound(fp: Footprint, why: str, arrays: set[str] | None = None) -> None:
@@ -377,3 +432,27 @@ class Analyzer:
         except isl.Error:
             return None
 
+
+ROWS_ALIGNED = ("every row starts on a cache-line boundary (the value at the --at sizes uses the packed "
+                "row-major layout, which can differ)")
+
+
+def _set_value(c: Any, m: Max, over: str) -> None:
+    """Put an exact value (or a bound with its side) at the --at sizes into a count object."""
+    if not isinstance(c, FCount):
+        return
+    if m.value is None:
+        if c.bound:
+            c.value, c.value_is = None, m.why
+        return
+    c.value = m.value
+    c.bound = m.side == "upper"
+    c.value_bound = m.side
+    if m.at:
+        c.worst_at = dict(m.at)
+    if m.side:
+        c.value_is = m.why
+    elif over:
+        c.value_is = "maximum over " + over + " at the --at sizes (exact)"
+    if m.side == "lower":
+        c.lower_bound = True

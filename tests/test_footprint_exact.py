@@ -1,0 +1,134 @@
+# Tests of tripcount.analysis.footprint.exact: every working-set value at the
+# --at sizes (elements, bytes, cache lines; per loop level the largest over
+# the outer loop variables, per iteration, and the whole nest) equals the
+# brute force over what gcc's compiled code touches: tests/accesstrace.py runs
+# each kernel of tests/inputs/footprint/velin_exact.c as gcc compiles it and
+# records the byte offset of every array access (reference: gcc, ISO C99
+# 6.5.2.1 packed row-major layout, arrays starting on a 64-byte boundary, the
+# model's stated assumption). Sizes are kept small where a trace would be
+# long; the values at the large sizes of the scenario are checked against
+# counts worked out by hand from the same layout rule (marked as such).
+
+from __future__ import annotations
+
+import os
+
+import islpy as isl
+import pytest
+from accesstrace import access_trace, working_sets
+from conftest import INPUTS
+from oracle import gcc_available
+
+from tripcount import pipeline
+from tripcount.analysis.footprint import exact
+from tripcount.options import Options
+
+KERNELS = os.path.join(INPUTS, "footprint", "velin_exact.c")
+SRC = open(KERNELS, encoding="utf-8").read()
+LINE = 64
+CACHES = {"L1": 32 * 1024, "L2": 1024 * 1024, "L3": 32 * 1024 * 1024}
+
+PARAMS = {
+    "harbour_blur": [("H", "int", False), ("W", "int", False), ("img", "double", True), ("out", "double", True),
+                     ("k", "double", True)],
+    "quay_blocked": [("n", "int", False), ("A", "double", True), ("B", "double", True), ("C", "double", True)],
+    "tide_rows": [("n", "int", False), ("m", "int", False), ("A", "double", True), ("x", "double", True),
+                  ("y", "double", True)],
+    "wave_steps": [("T", "int", False), ("nx", "int", False), ("ny", "int", False), ("u", "double", True),
+                   ("v", "double", True)],
+}
+
+
+def _nests(at: dict[str, int]) -> dict:
+    fr = pipeline.analyze_file(KERNELS, Options(at=at, line_size=LINE, caches=dict(CACHES)))
+    diags = fr.all_diagnostics()
+    assert not [d for d in diags if d.code.startswith("TC9")], [d.render() for d in diags]
+    return {nr.nest.function: nr for nr in fr.nests}
+
+
+def _check_against_trace(function: str, at: dict[str, int]) -> int:
+    """Every exact value of the nest equals the trace's brute force; returns how many were compared."""
+    nr = _nests(at)[function]
+    nest = nr.nest
+    stmts = [s for s in nest.statements if s.domain is not None]
+    spans = [((s.span.line, s.span.column, s.span.end_line, s.span.end_column), s.loop_vars) for s in stmts]
+    events = access_trace(SRC, function, PARAMS[function], at, spans)
+    compared = 0
+
+    def check(fp, depth: int, members: set[int], what: str) -> None:
+        nonlocal compared
+        ev = [e for e in events if e.stmt in members]
+        groups = working_sets(ev, depth, LINE)
+        want = tuple(max(v[k] for v in groups.values()) for k in range(3))
+        for k, c in enumerate((fp.elements, fp.bytes, fp.lines)):
+            assert c.value is not None, (what, k)
+            if c.bound:
+                assert c.value >= want[k], (what, k, c.value, want)
+            else:
+                assert c.value == want[k], (what, ("elements", "bytes", "lines")[k], c.value, want[k])
+                compared += 1
+
+    check(nr.extras["footprint"].footprint, 0, set(range(len(stmts))), "whole nest")
+    for lr in nr.loops:
+        ws = lr.extras.get("working_set")
+        if ws is None:
+            continue
+        members = {k for k, s in enumerate(stmts) if lr.loop.index in s.loops}
+        check(ws.whole, lr.loop.depth, members, f"loop {lr.loop.var} line {lr.loop.span.line}")
+        if ws.per_iteration is not None:
+            check(ws.per_iteration, lr.loop.depth + 1, members, f"one iteration of {lr.loop.var}")
+    return compared
+
+
+gcc = pytest.mark.skipif(not gcc_available(), reason="gcc not available")
+
+
+@pytest.mark.gcc
+@gcc
+@pytest.mark.parametrize("function, at", [
+    ("harbour_blur", {"H": 7, "W": 21}),  # rows of 168 B: not a multiple of the line
+    ("harbour_blur", {"H": 5, "W": 16}),  # rows of 128 B
+    ("quay_blocked", {"n": 37}),  # interior and boundary tiles, rows of 296 B
+    ("tide_rows", {"n": 9, "m": 13}),  # VLA rows of 104 B
+    ("wave_steps", {"T": 3, "nx": 9, "ny": 11}),
+])
+def test_every_value_at_the_sizes_equals_the_gcc_trace(function, at):
+    assert _check_against_trace(function, at) > 0
+
+
+def test_convolution_window_at_the_large_size_is_a_few_lines():
+    """H=1001, W=2000: rows of 16000 B (a multiple of 64), so the 3x3 window of img (3 rows x 3
+    doubles) touches at most 2 lines per row; k (72 B from a line boundary) 2 lines; out 1 line.
+    Counted by hand from the packed layout (line = floor(8*(W*r + c)/64)); the small-size test above
+    checks the same computation against gcc."""
+    nr = _nests({"H": 1001, "W": 2000})["harbour_blur"]
+    ws = {lr.loop.var: lr.extras["working_set"] for lr in nr.loops}
+    di = ws["di"].whole
+    assert not di.lines.bound and di.lines.value == 3 * 2 + 2 + 1
+    assert di.by_array["img"].lines.value == 6 and di.by_array["img"].bytes.value == 72
+    assert ws["di"].occupancy == 9 * LINE
+    assert ws["dj"].whole.lines.value == 2 + 1 + 1 + 1  # one row of img, k's row, out
+    assert all(ws[v].fits.get("L1") for v in ("di", "dj"))
+    assert not [d for d in nr.diagnostics if d.code == "TC401" and "'di'" in d.render()]
+
+
+def test_blocked_product_inner_loop_at_1000():
+    """n=1000, tiles of 32: with i, j fixed the k loop reads 32 doubles of a row of A (256 B: 4 or 5
+    lines, rows of 8000 B start on a line boundary, tile starts at multiples of 256 B: 4), 32 rows of B
+    (one line each) and one element of C: 37 lines (by hand from the packed layout)."""
+    nr = _nests({"n": 1000})["quay_blocked"]
+    k = {lr.loop.var: lr.extras["working_set"] for lr in nr.loops}["k"]
+    assert not k.whole.lines.bound
+    assert k.whole.lines.value == 4 + 32 + 1
+    assert k.whole.elements.value == 32 + 32 + 1
+
+
+def test_maximum_splits_by_alignment_offset():
+    """A window of 3 doubles sliding along a row: 1 line or 2 depending on the start (brute force)."""
+    rel = isl.Map("{ [j] -> [a] : j <= a <= j + 2 and 0 <= j <= 40 }")
+    lm = exact.packed_line_map(1, [], 8, 64)
+    res = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()).apply_range(exact._residue_map([1], 8, 64))
+    part = exact.Part(rel, rel.apply_range(lm), 1, res)
+    got = exact.maximum([part], isl.Set("{ [j] : 0 <= j <= 40 }"), ["j"])
+    want = max(len({(8 * a) // 64 for a in range(j, j + 3)}) for j in range(41))
+    assert got.side is None and got.value == want == 2

@@ -1,0 +1,402 @@
+# Footprint: exact values at given sizes. With every size a number, every
+# declared extent is a number too, so the byte address of A[i][j] in the
+# packed row-major layout of the declared type (double A[n][m], VLAs,
+# `double (*A)[M]`) is affine in the subscripts, and the cache lines a scope
+# touches are the image of its iteration domains under one affine map with a
+# floor: line = floor(elem*(i0*E1*...*En + ... + i_last)/line_size), the
+# array starting on a line boundary. At one value of the fixed outer loop
+# variables that is a set without parameters, counted exactly by isl.
+#
+# The maximum over the outer values: they are split into regions where what
+# each array touches is one fixed shape, shifted (isl checks this exactly);
+# there the number of elements is the same everywhere and the number of lines
+# depends only on the byte offset of the shape's start within a line, so one
+# outer value per reachable offset gives every value the count takes. A region
+# whose shape varies (a triangular loop) is evaluated at every value when it
+# has few; otherwise the value is an upper bound and says so and why.
+#
+# isl text is built here from generic names only (x0, y0, ...): user names
+# never reach isl's parser (a variable named like an isl word is fine).
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Any
+
+import islpy as isl
+
+from tripcount.formula import FormulaError, parse_expr
+from tripcount.model import Access
+
+POINT_CAP = 256  # outer values counted one by one in a region whose shape varies
+MAX_PIECES = 64  # regions of the outer values with one shape of what is touched
+MAX_CLASSES = 4096  # alignment classes looked at per region
+EXACT_BUDGET_S = 12.0  # exact values of one nest; past it, upper bounds
+
+_dt = isl.dim_type
+
+
+def _val(ctx: isl.Context, v: int | Fraction) -> isl.Val:
+    return isl.Val.read_from_str(ctx, str(Fraction(v)) if isinstance(v, Fraction) else str(int(v)))
+
+
+def _param_names(s: isl.Set | isl.Map) -> list[str]:
+    return [s.get_dim_name(_dt.param, i) for i in range(s.dim(_dt.param))]
+
+
+def fix_some(s: isl.Set, values: Mapping[str, int]) -> isl.Set:
+    """`s` with the parameters named in `values` fixed and removed (the others stay parameters)."""
+    for i, name in enumerate(_param_names(s)):
+        if name in values:
+            s = s.fix_val(_dt.param, i, _val(s.get_ctx(), values[name]))
+    for i in range(s.dim(_dt.param) - 1, -1, -1):
+        if s.get_dim_name(_dt.param, i) in values:
+            s = s.project_out(_dt.param, i, 1)
+    return s
+
+
+def inner_extents(acc: Access, sizes: Mapping[str, int]) -> list[int] | None:
+    """The declared extents of every dimension but the first, as numbers at `sizes` (None if one is open
+    or not a function of the sizes)."""
+    n = acc.map.dim(_dt.out) if acc.map is not None else 0
+    ext = list(acc.extents)
+    if n <= 1:
+        return []
+    if len(ext) != n:
+        return None
+    out = []
+    for text in ext[1:]:
+        if text is None:
+            return None
+        try:
+            v = parse_expr(text).evaluate(dict(sizes))
+        except (FormulaError, KeyError, ValueError, TypeError, ZeroDivisionError):
+            return None
+        if not isinstance(v, (int, Fraction)) or Fraction(v).denominator != 1 or v < 0:
+            return None
+        out.append(int(v))
+    return out
+
+
+def packed_line_map(n: int, extents: Sequence[int], elem: int, line: int) -> isl.Map:
+    """{ element -> cache line } of the packed row-major layout, the array starting on a line boundary."""
+    xs = [f"x{k}" for k in range(n)]
+    if n == 0:
+        return isl.Map("{ [] -> [0] }")
+    terms = []
+    for k in range(n):
+        stride = math.prod(extents[k:])
+        terms.append(f"{stride}*x{k}")
+    g = math.gcd(elem, line)
+    return isl.Map(f"{{ [{', '.join(xs)}] -> [floor(({elem // g}*({' + '.join(terms)}))/{line // g})] }}")
+
+
+def aligned_line_map(n: int, elem: int, line: int) -> isl.Map:
+    """{ element -> cache line } when every row starts on a line boundary (extents unknown)."""
+    xs = [f"x{k}" for k in range(n)]
+    if n == 0:
+        return isl.Map("{ [] -> [0] }")
+    g = math.gcd(elem, line)
+    out = xs[:-1] + [f"floor(({elem // g}*{xs[-1]})/{line // g})"]
+    return isl.Map(f"{{ [{', '.join(xs)}] -> [{', '.join(out)}] }}")
+
+
+# --------------------------------------------------------------------------
+# Maximum over the outer variables
+
+
+@dataclass
+class Max:
+    """Maximum of a count over the fixed outer variables at given sizes.
+
+    `side`: None when exact, "upper" or "lower" when only a bound was had
+    (`why` says why); `at`: a point where the maximum is reached.
+    """
+
+    value: int | None
+    side: str | None = None
+    why: str | None = None
+    at: dict[str, int] | None = None
+
+
+class _TooHard(Exception):
+    pass
+
+
+def _outer_points(o: isl.Set, names: Sequence[str], cap: int) -> list[dict[str, int]] | None:
+    out: list[dict[str, int]] = []
+
+    def visit(p: isl.Point) -> Any:
+        out.append({nm: int(p.get_coordinate_val(_dt.set, k).to_python()) for k, nm in enumerate(names)})
+        return isl.stat.error if len(out) > cap else None
+
+    try:
+        o.foreach_point(visit)
+    except isl.Error:
+        if len(out) > cap:
+            return None
+        raise
+    return out
+
+
+def _first(s: isl.Set, names: Sequence[str]) -> dict[str, int] | None:
+    if s.is_empty():
+        return None
+    p = s.sample_point()
+    return {nm: int(p.get_coordinate_val(_dt.set, k).to_python()) for k, nm in enumerate(names)}
+
+
+def _relation(s: isl.Set, fixed: Sequence[str]) -> isl.Map:
+    """{ [outer values] -> [touched elements or lines] } from a set whose parameters are the fixed variables."""
+    m = isl.Map.from_range(s)
+    names = _param_names(m)
+    for nm in fixed:
+        if nm not in names:
+            m = m.add_dims(_dt.param, 1).set_dim_name(_dt.param, m.dim(_dt.param), nm)
+            names.append(nm)
+    for k, nm in enumerate(fixed):
+        idx = _param_names(m).index(nm)
+        m = m.move_dims(_dt.in_, k, _dt.param, idx, 1)
+    return m.reset_tuple_id(_dt.in_).reset_tuple_id(_dt.out)
+
+
+def _domains(pw: isl.PwMultiAff) -> list[isl.Set]:
+    out: list[isl.Set] = []
+    pw.foreach_piece(lambda dom, _ma: out.append(dom))
+    return out
+
+
+def _shift_map(n: int) -> isl.Map:
+    xs = [f"x{k}" for k in range(n)]
+    ys = [f"y{k}" for k in range(n)]
+    diff = [f"{x} - {y}" for x, y in zip(xs, ys, strict=True)]
+    return isl.Map(f"{{ [[{', '.join(xs)}] -> [{', '.join(ys)}]] -> [{', '.join(diff)}] }}")
+
+
+def _residue_map(strides: Sequence[int], elem: int, line: int) -> isl.Map:
+    """{ element -> its byte offset within its cache line, in units of gcd(elem, line) } (packed layout)."""
+    n = len(strides)
+    g = math.gcd(elem, line)
+    xs = [f"x{k}" for k in range(n)]
+    terms = " + ".join(f"{st}*x{k}" for k, st in enumerate(strides)) or "0"
+    return isl.Map(f"{{ [{', '.join(xs)}] -> [({elem // g}*({terms})) mod {line // g}] }}")
+
+
+
+@dataclass
+class Part:
+    """What one array touches, as a relation of the outer values; `residue` maps the outer values to the byte
+    offset of the first touched element within its cache line (None for element counts)."""
+
+    elements: isl.Map  # { o -> element }
+    counted: isl.Map  # { o -> what is counted (elements or lines) }
+    weight: int
+    residue: isl.Map | None
+
+
+def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
+    """Exact maximum over the outer values of sum(weight * |counted(o)|).
+
+    The outer values are split into regions where every array's touched elements are one fixed shape
+    shifted (checked exactly by isl); there, a count of elements is the same everywhere and a count of
+    cache lines depends only on where the shape starts within a line, so one outer value per reachable
+    start offset gives every value the count takes. A region where the shape varies is evaluated at every
+    value when it has few; otherwise the maximum is not found and a bound is given instead.
+    """
+    if not fixed:
+        return Max(sum(p.weight * int(p.counted.range().count_val().to_python()) for p in parts))
+    if outer.is_empty():
+        return Max(0)
+    regions = [outer]
+    normal = []
+    for p in parts:
+        e = p.elements.intersect_domain(outer)
+        lo = e.lexmin_pw_multi_aff()
+        hi = e.lexmax_pw_multi_aff()
+        for doms in (_domains(lo), _domains(hi)):
+            regions = [r.intersect(d) for r in regions for d in doms]
+            regions = [r for r in regions if not r.is_empty()]
+            if len(regions) > MAX_PIECES:
+                raise _TooHard
+        n_out = e.dim(_dt.out)
+        normal.append(e.range_product(isl.Map.from_pw_multi_aff(lo)).apply_range(_shift_map(n_out))
+                      if n_out else e)
+    best: Max | None = None
+    for r in regions:
+        got = _region_max(parts, normal, r, fixed)
+        if best is None or got.value > best.value:  # type: ignore[operator]
+            best = got
+    return best or Max(0)
+
+
+def _value_at(parts: Sequence[Part], pt: Mapping[str, int], fixed: Sequence[str]) -> int:
+    total = 0
+    for p in parts:
+        o = isl.Set.universe(p.counted.get_space().domain())
+        for k, nm in enumerate(fixed):
+            o = o.fix_val(_dt.set, k, _val(o.get_ctx(), pt[nm]))
+        total += p.weight * int(p.counted.intersect_domain(o).range().count_val().to_python())
+    return total
+
+
+def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fixed: Sequence[str]) -> Max:
+    o_star = _first(r, fixed)
+    assert o_star is not None
+    shifted = True
+    for nm in normal:
+        nr = nm.intersect_domain(r)
+        at = r
+        for k, name in enumerate(fixed):
+            at = at.fix_val(_dt.set, k, _val(r.get_ctx(), o_star[name]))
+        shape = nr.intersect_domain(at).range()
+        if not nr.is_equal(isl.Map.from_domain_and_range(r, shape)):
+            shifted = False
+            break
+    if not shifted:
+        pts = _outer_points(r, fixed, POINT_CAP)
+        if pts is None:
+            raise _TooHard
+        best = Max(0)
+        for pt in pts:
+            v = _value_at(parts, pt, fixed)
+            if best.at is None or v > (best.value or 0):
+                best = Max(v, at=dict(pt))
+        return best
+    offsets = None
+    for p in parts:
+        if p.residue is None:
+            continue
+        rm = p.residue.intersect_domain(r)
+        offsets = rm if offsets is None else offsets.flat_range_product(rm)
+    if offsets is None:
+        return Max(_value_at(parts, o_star, fixed), at=o_star)
+    best = Max(0)
+    for m in _classes(offsets, 0, [MAX_CLASSES]):
+        pt = _first(m.domain(), fixed)
+        if pt is None:
+            continue
+        v = _value_at(parts, pt, fixed)
+        if best.at is None or v > (best.value or 0):
+            best = Max(v, at=dict(pt))
+    return best
+
+
+def _classes(m: isl.Map, k: int, left: list[int]) -> list[isl.Map]:
+    """`m` (outer values -> offsets) restricted to each reachable vector of offsets, one offset at a time
+    (the reachable vectors are few; their product is not)."""
+    if k == m.dim(_dt.out):
+        left[0] -= 1
+        if left[0] < 0:
+            raise _TooHard
+        return [m]
+    hi = m.range().project_out(_dt.set, k + 1, m.dim(_dt.out) - k - 1).project_out(_dt.set, 0, k)
+    top = hi.max_val(isl.Aff.var_on_domain(isl.LocalSpace.from_space(hi.get_space()), _dt.set, 0))
+    if not top.is_int():
+        raise _TooHard
+    out: list[isl.Map] = []
+    for v in range(int(top.to_python()) + 1):
+        sub = m.fix_val(_dt.out, k, _val(m.get_ctx(), v))
+        if not sub.is_empty():
+            out.extend(_classes(sub, k + 1, left))
+    return out
+
+
+def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
+    """Upper bound: what all values of the outer variables touch together."""
+    total = sum(p.weight * int(p.counted.intersect_domain(outer).range().count_val().to_python()) for p in parts)
+    return Max(total, side="upper", why=("the maximum over " + ", ".join(fixed) + " could not be found within "
+                                         "the limits; upper bound: what all their values touch together"))
+
+
+def params_set(outer: isl.Set, fixed: Sequence[str]) -> isl.Set:
+    """`outer` (a set over the fixed variables, no parameters) as a set of parameter values."""
+    n = outer.dim(_dt.set)
+    p = outer.move_dims(_dt.param, 0, _dt.set, 0, n).params()
+    for k in range(n):
+        p = p.set_dim_name(_dt.param, k, fixed[k])
+    return p
+
+
+# --------------------------------------------------------------------------
+# One scope at the --at sizes
+
+
+
+class ExactBudget:
+    """Wall-clock budget of the exact values of one nest."""
+
+    def __init__(self, seconds: float = EXACT_BUDGET_S) -> None:
+        self.deadline = time.monotonic() + seconds
+
+    def spent(self) -> bool:
+        """Whether the budget is used up."""
+        return time.monotonic() > self.deadline
+
+
+@dataclass
+class ScopeValues:
+    """Exact values (or bounds) of one scope at the --at sizes: per array and in total."""
+
+    arrays: dict[str, tuple[Max, Max | None, str]]  # name -> (elements, lines, layout)
+    elements: Max
+    bytes: Max | None
+    lines: Max | None
+
+
+def scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None], accesses: Mapping[str, Access],
+                 line: int, outer: isl.Set | None, fixed: Sequence[str], sizes: Mapping[str, int],
+                 budget: ExactBudget) -> ScopeValues:
+    """Exact values at `sizes` of a scope whose touched elements per array are `images` (sets with the
+    sizes and the fixed variables as parameters)."""
+    o = outer if outer is not None else isl.Set("{ [] }")
+
+    def best(parts: list[Part]) -> Max:
+        if budget.spent() and fixed:
+            return bound(parts, o, fixed)
+        try:
+            return maximum(parts, o, fixed)
+        except (_TooHard, isl.Error):
+            return bound(parts, o, fixed)
+
+    el_parts: dict[str, Part] = {}
+    ln_parts: dict[str, Part] = {}
+    arrays: dict[str, tuple[Max, Max | None, str]] = {}
+    for name, img in images.items():
+        rel = _relation(fix_some(img, sizes).coalesce(), fixed)
+        el_parts[name] = Part(rel, rel, 1, None)
+        lines, layout = None, "rows aligned"
+        elem = elems.get(name)
+        if elem:
+            acc = accesses[name]
+            n = acc.map.dim(_dt.out)
+            ext = inner_extents(acc, sizes)
+            if ext is not None:
+                layout = "linear"
+                lm = packed_line_map(n, ext, elem, line)
+                strides = [math.prod(ext[k:]) for k in range(n)]
+                lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
+                residue = lo.apply_range(_residue_map(strides, elem, line)) if lo is not None else None
+            else:
+                lm = aligned_line_map(n, elem, line)
+                # rows aligned: a row's lines depend on where its first element sits in a line
+                lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
+                residue = lo.apply_range(_residue_map([0] * (n - 1) + [1], elem, line)) if lo is not None else None
+            ln_parts[name] = Part(rel, rel.apply_range(lm), 1, residue)
+            lines = best([ln_parts[name]])
+        arrays[name] = (best([el_parts[name]]), lines, layout)
+    total_el = best(list(el_parts.values())) if len(el_parts) != 1 else next(iter(arrays.values()))[0]
+    known = all(elems.get(n) for n in images)
+    sizes_set = {elems.get(n) for n in images}
+    by = ln = None
+    if known and images:
+        if len(sizes_set) == 1:
+            k = sizes_set.pop() or 0
+            by = Max(None if total_el.value is None else total_el.value * k, total_el.side, total_el.why, total_el.at)
+        else:
+            by = best([Part(el_parts[n].elements, el_parts[n].counted, elems[n] or 0, None) for n in images])
+        ln = best(list(ln_parts.values())) if len(ln_parts) != 1 else next(iter(arrays.values()))[1]
+    return ScopeValues(arrays, total_el, by, ln)
