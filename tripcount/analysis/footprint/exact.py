@@ -327,14 +327,17 @@ def params_set(outer: isl.Set, fixed: Sequence[str]) -> isl.Set:
 
 
 class ExactBudget:
-    """Wall-clock budget of the exact values of one nest."""
+    """Time budget of the exact values of one nest (only the time spent computing them counts)."""
 
     def __init__(self, seconds: float = EXACT_BUDGET_S) -> None:
-        self.deadline = time.monotonic() + seconds
+        self.seconds = seconds
+        self.used = 0.0
+        self.started: float | None = None
 
     def spent(self) -> bool:
         """Whether the budget is used up."""
-        return time.monotonic() > self.deadline
+        running = time.monotonic() - self.started if self.started is not None else 0.0
+        return self.used + running > self.seconds
 
 
 @dataclass
@@ -352,6 +355,17 @@ def scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None],
                  budget: ExactBudget) -> ScopeValues:
     """Exact values at `sizes` of a scope whose touched elements per array are `images` (sets with the
     sizes and the fixed variables as parameters)."""
+    budget.started = time.monotonic()
+    try:
+        return _scope_values(images, elems, accesses, line, outer, fixed, sizes, budget)
+    finally:
+        budget.used += time.monotonic() - budget.started
+        budget.started = None
+
+
+def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None], accesses: Mapping[str, Access],
+                  line: int, outer: isl.Set | None, fixed: Sequence[str], sizes: Mapping[str, int],
+                  budget: ExactBudget) -> ScopeValues:
     o = outer if outer is not None else isl.Set("{ [] }")
 
     def best(parts: list[Part]) -> Max:
