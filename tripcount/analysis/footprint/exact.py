@@ -352,12 +352,13 @@ class ScopeValues:
 
 def scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None], accesses: Mapping[str, Access],
                  line: int, outer: isl.Set | None, fixed: Sequence[str], sizes: Mapping[str, int],
-                 budget: ExactBudget) -> ScopeValues:
+                 budget: ExactBudget, bounds: bool = True) -> ScopeValues:
     """Exact values at `sizes` of a scope whose touched elements per array are `images` (sets with the
-    sizes and the fixed variables as parameters)."""
+    sizes and the fixed variables as parameters); where the maximum is not found, an upper bound
+    (or, without `bounds`, no value)."""
     budget.started = time.monotonic()
     try:
-        return _scope_values(images, elems, accesses, line, outer, fixed, sizes, budget)
+        return _scope_values(images, elems, accesses, line, outer, fixed, sizes, budget, bounds)
     finally:
         budget.used += time.monotonic() - budget.started
         budget.started = None
@@ -365,16 +366,18 @@ def scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None],
 
 def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None], accesses: Mapping[str, Access],
                   line: int, outer: isl.Set | None, fixed: Sequence[str], sizes: Mapping[str, int],
-                  budget: ExactBudget) -> ScopeValues:
+                  budget: ExactBudget, bounds: bool) -> ScopeValues:
     o = outer if outer is not None else isl.Set("{ [] }")
 
     def best(parts: list[Part]) -> Max:
-        if budget.spent() and fixed:
+        if not (budget.spent() and fixed):
+            try:
+                return maximum(parts, o, fixed)
+            except (_TooHard, isl.Error):
+                pass
+        if bounds and fixed:
             return bound(parts, o, fixed)
-        try:
-            return maximum(parts, o, fixed)
-        except (_TooHard, isl.Error):
-            return bound(parts, o, fixed)
+        return Max(None, why="the maximum over " + ", ".join(fixed) + " could not be found within the limits")
 
     el_parts: dict[str, Part] = {}
     ln_parts: dict[str, Part] = {}

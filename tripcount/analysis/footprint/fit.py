@@ -60,8 +60,12 @@ def cache_fit(an: Analyzer, ws: WorkingSet) -> None:
         return  # an upper bound of a footprint that misses references bounds nothing
     if value is not None:
         ws.occupancy = int(value) * an.line
+        upper = bool(getattr(fp.lines, "bound", False))
         for lv in an.caches.levels:
-            if not fp.lower_bound:
+            if upper:  # an upper bound proves only that a cache holds it
+                if ws.occupancy <= lv.size:
+                    ws.fits[lv.name] = True
+            elif not fp.lower_bound:
                 ws.fits[lv.name] = ws.occupancy <= lv.size
             elif ws.occupancy > lv.size:  # a lower bound proves only that a cache is exceeded
                 ws.fits[lv.name] = False
@@ -78,7 +82,25 @@ def cache_fit(an: Analyzer, ws: WorkingSet) -> None:
         t = _threshold(an, lines_at, param, others, lv.size // an.line)
         if t is not None:
             t.safe = safe
-            ws.thresholds[lv.name] = t
+            if t.largest is not None and t.largest >= 1 and not t.unbounded:
+                t = _checked(an, ws, t, lv.size // an.line)
+            if t is not None:
+                ws.thresholds[lv.name] = t
+
+
+def _checked(an: Analyzer, ws: WorkingSet, t: Threshold, capacity_lines: int) -> Threshold | None:
+    """The threshold checked with the exact count (packed layout) at it and one past it; None when the
+    exact count disagrees (the formula's layout assumption moved it) or cannot be had."""
+    if ws.exact_lines is None or t.largest is None:
+        return t
+    here = ws.exact_lines({**t.fixed, t.param: t.largest})
+    past = ws.exact_lines({**t.fixed, t.param: t.largest + 1})
+    if here is None or past is None:
+        return None
+    if here <= capacity_lines < past:
+        t.checked = True
+        return t
+    return None
 
 def _solve_param(an: Analyzer, f: Callable[[Mapping[str, int]], int | Fraction | None]) -> str | None:
     """--solve-for, the only parameter, or the one the working set grows fastest in at the --at sizes."""

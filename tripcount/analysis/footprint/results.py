@@ -218,6 +218,7 @@ class Threshold:
     unbounded: bool = False  # fits at every size searched
     safe: bool = False  # computed from an upper bound: fits at least up to `largest`
     fixed: dict[str, int] = field(default_factory=dict)
+    checked: bool = False  # the exact count (packed layout) fits at `largest` and not one past it
 
     def text(self) -> str:
         """'N <= 2047', 'any N', 'no N >= 1'."""
@@ -230,7 +231,7 @@ class Threshold:
     def to_json(self) -> dict[str, Any]:
         """param, largest, unbounded, safe, the other sizes held fixed."""
         return {"param": self.param, "largest": self.largest, "unbounded": self.unbounded,
-                "safe": self.safe, "others": dict(self.fixed)}
+                "safe": self.safe, "others": dict(self.fixed), "checked": self.checked}
 
 
 @dataclass
@@ -247,6 +248,8 @@ class WorkingSet:
     assumptions: str = ""
     outer_var: str | None = None  # variable of the enclosing loop
     lines_at: Callable[[Mapping[str, int]], int | Fraction | None] | None = field(default=None, repr=False)
+    # exact worst-case lines at other sizes (packed layout; None when not exact)
+    exact_lines: Callable[[Mapping[str, int]], int | None] | None = field(default=None, repr=False)
 
     def occupancy_at(self, sizes: Mapping[str, int]) -> int | None:
         """Worst-case working set in bytes of whole lines at other sizes (for plots), None if unknown."""

@@ -6,7 +6,7 @@
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
@@ -14,7 +14,7 @@ from typing import Any
 import islpy as isl
 
 from tripcount.analysis.caches import hierarchy
-from tripcount.analysis.footprint.exact import ExactBudget, Max, scope_values
+from tripcount.analysis.footprint.exact import ExactBudget, Max, ScopeValues, scope_values
 from tripcount.analysis.footprint.isets import (
     _in_context,
     _name_in,
@@ -295,9 +295,8 @@ class Analyzer:
         self._cache[key] = fp
         return fp
 
-    def _exact_values(self, fp: Footprint, stmts: list[Statement], fixed: tuple[str, ...],
-                      outer: isl.Set | None, aq: _ArrayQ) -> None:
-        """Values at the --at sizes from the packed layout, exact (or a bound that says so)."""
+    def _scope_values(self, stmts: list[Statement], fixed: tuple[str, ...], outer: isl.Set | None,
+                      sizes: Mapping[str, int], bounds: bool = True) -> ScopeValues | None:
         n = len(fixed)
         images: dict[str, isl.Set] = {}
         for s in stmts:
@@ -307,35 +306,58 @@ class Analyzer:
                 if self.usable(a):
                     img = access_image(s, a, n)
                     images[a.array] = images[a.array].union(img) if a.array in images else img
-        o = _outer_at(outer, fixed, self.at) if n and outer is not None else None
+        o = _outer_at(outer, fixed, sizes) if n and outer is not None else None
         if n and o is None:
-            return
+            return None
         try:
-            sv = scope_values(images, {k: self.arrays[k].elem for k in images},
-                              {k: self.arrays[k].access for k in images}, self.line, o, fixed, self.at,
-                              self.exact_budget)
+            return scope_values(images, {k: self.arrays[k].elem for k in images},
+                                {k: self.arrays[k].access for k in images}, self.line, o, fixed, sizes,
+                                self.exact_budget, bounds)
         except isl.Error:
+            return None
+
+    def exact_lines(self, stmts: list[Statement], fixed: tuple[str, ...],
+                    outer: isl.Set | None) -> Callable[[Mapping[str, int]], int | None]:
+        """Exact worst-case cache lines of a scope at other sizes (None when only a bound is had)."""
+        def at(sizes: Mapping[str, int]) -> int | None:
+            if any(p not in sizes for p in self.nest.params) or self.exact_budget.spent():
+                return None
+            if any(abs(v) > EXACT_SIZE_CAP for v in sizes.values()):
+                return None  # counting at one outer value takes time linear in the sizes
+            sv = self._scope_values(stmts, fixed, outer, sizes, bounds=False)
+            if sv is None or sv.lines is None or sv.lines.side is not None:
+                return None
+            return sv.lines.value
+        return at
+
+    def _exact_values(self, fp: Footprint, stmts: list[Statement], fixed: tuple[str, ...],
+                      outer: isl.Set | None, aq: _ArrayQ) -> None:
+        """Values at the --at sizes from the packed layout, exact (or a bound that says so)."""
+        sv = self._scope_values(stmts, fixed, outer, self.at)
+        if sv is None:
             return
         over = ", ".join(fixed)
+        same = True  # the values found before used the same layout for every array
         for name, (el, ln, layout) in sv.arrays.items():
             a = fp.by_array.get(name)
             if a is None:
                 continue
             formula_layout = aq[name][2] if name in aq else layout
+            same = same and formula_layout == layout
             a.layout = layout
             _set_value(a.elements, el, over)
             if a.elem_size:
                 _set_value(a.bytes, Max(None if el.value is None else el.value * a.elem_size, el.side, el.why,
                                         el.at), over)
             if ln is not None:
-                _set_value(a.lines, ln, over)
+                _set_value(a.lines, ln, over, formula_layout == layout)
                 if formula_layout != "linear" and layout == "linear" and a.lines.formula is not None:
                     a.lines.formula_assumes = ROWS_ALIGNED
         _set_value(fp.elements, sv.elements, over)
         if sv.bytes is not None:
             _set_value(fp.bytes, sv.bytes, over)
         if sv.lines is not None:
-            _set_value(fp.lines, sv.lines, over)
+            _set_value(fp.lines, sv.lines, over, same)
             if fp.lines.formula is not None and any(
                     a.lines.formula_assumes for a in fp.by_array.values() if isinstance(a.lines, FCount)):
                 fp.lines.formula_assumes = ROWS_ALIGNED
@@ -433,17 +455,20 @@ class Analyzer:
             return None
 
 
+EXACT_SIZE_CAP = 1 << 20  # largest size at which a threshold is checked with the exact count
+
 ROWS_ALIGNED = ("every row starts on a cache-line boundary (the value at the --at sizes uses the packed "
                 "row-major layout, which can differ)")
 
 
-def _set_value(c: Any, m: Max, over: str) -> None:
-    """Put an exact value (or a bound with its side) at the --at sizes into a count object."""
+def _set_value(c: Any, m: Max, over: str, same_layout: bool = True) -> None:
+    """Put an exact value (or a bound with its side) at the --at sizes into a count object. Without one,
+    the value found before stays only when it is exact and of the same layout."""
     if not isinstance(c, FCount):
         return
     if m.value is None:
-        if c.bound:
-            c.value, c.value_is = None, m.why
+        if c.bound or not same_layout:
+            c.value, c.bound, c.value_is = None, False, m.why
         return
     c.value = m.value
     c.bound = m.side == "upper"

@@ -99,7 +99,10 @@ def text_table(nf: NestFootprint) -> list[str]:
             fits = ""
             if ws.fits:
                 fitting = [k for k, ok in ws.fits.items() if ok]
-                fits = fitting[0] if fitting else "none"
+                if getattr(fp.lines, "bound", False):  # an upper bound: a smaller cache may hold it too
+                    fits = f"{fitting[0]} or smaller" if fitting else "may not fit"
+                else:
+                    fits = fitting[0] if fitting else "none"
                 thr = [(f"{k} while {t.text()}" if t.largest is not None and t.largest >= 1 else
                         f"{k}: {t.text()}") for k, t in ws.thresholds.items()
                        if not ws.fits.get(k, True) and not t.unbounded]
@@ -115,12 +118,16 @@ def text_table(nf: NestFootprint) -> list[str]:
                 in_lines = ">= " + in_lines
             rows.append((f"{ws.loop.var} (line {ws.loop.span.line})", expr, value, in_lines, fits, reuse))
         widths = [min(max(len(r[k]) for r in rows), 60) for k in range(6)]
+        shown = [k for k in range(6) if head[k]]  # a column is kept or dropped whole, never cell by cell
         for r in rows:
-            cells = [r[k].ljust(widths[k]) for k in range(6)]
-            out.append("  " + "  ".join(c for c in cells if c.strip() or c == cells[0]).rstrip())
+            out.append("  " + "  ".join(r[k].ljust(widths[k]) for k in shown).rstrip())
         if nf.at:
-            out.append("  (values: the largest over the outer loop variables; 'in lines': the whole cache lines "
+            out.append("  (values: the largest over the outer loop variables, exact at these sizes in the packed "
+                       "row-major layout, arrays starting on a line boundary; 'in lines': the whole cache lines "
                        "they occupy; 'fits': the smallest cache holding them)")
+            out.append("  (legend: '<=' an upper bound, '>=' a lower bound, '~' the leading term of a long formula; "
+                       "'reused by': 'nothing' = the enclosing loop does not touch these lines again, "
+                       "'-' = no enclosing loop)")
         partial = [ws for ws in nf.levels if ws.whole.lower_bound]
         if partial:
             out.append("  (>=: a lower bound, the loop's references that are not modelled are left out: "
