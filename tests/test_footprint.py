@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import islpy as isl
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from tripcount.analysis import footprint
@@ -783,3 +783,40 @@ def test_no_cache_fit_size_where_the_loop_does_not_run():
     notes = [d.message for d in nr.diagnostics if d.code == "TC401" and "'z'" in d.message]
     assert notes and "would fit L2 while D <= 33" in notes[0]  # 16*(D - 1)*(M - 2) bytes
     assert "while D <= 2" not in notes[0]  # L1: only where z runs no iteration
+
+
+# --------------------------------------------------------------------------
+# Names that are words of the integer-set library's input language (issue 14):
+# loop variables and sizes spelled `q`, `exists`, `mod`, ... reach the engine
+# only under neutral names. Reference: brute force over the listed indices.
+
+_ISL_WORDS = ["q", "exists", "and", "or", "not", "mod", "floor", "ceil", "min", "max", "infty", "NaN",
+              "rat", "true", "false", "cst", "domain", "range", "div", "e0", "i0", "fp0_", "fp1_"]
+_LETTERS = [chr(c) for c in range(ord("a"), ord("z") + 1)] + [chr(c) for c in range(ord("A"), ord("Z") + 1)]
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(var=st.sampled_from(_ISL_WORDS + _LETTERS), size=st.sampled_from(_ISL_WORDS + _LETTERS))
+@example(var="q", size="n")
+@example(var="i", size="q")
+def test_identifier_names_never_break_the_footprint(var, size):
+    from tripcount.pipeline import analyze_text
+
+    if var == size or "A" in (var, size) or "B" in (var, size) or "j" in (var, size):
+        return
+    text = (f"void velin_names(int {size}, double A[{size}][{size}], double B[{size}]) {{\n"
+            f"  for (int {var} = 0; {var} < {size}; {var}++)\n"
+            f"    for (int j = 0; j <= {var}; j++)\n"
+            f"      A[{var}][j] += B[j];\n}}\n")
+    n = 9
+    fr = analyze_text(text, "velin_names.c", Options(at={"*": n}, line_size=64))  # the size may be renamed
+    diags = fr.all_diagnostics()
+    assert not [d for d in diags if d.code.startswith("TC9")], [d.render() for d in diags]
+    nr = fr.nests[0]
+    j = [lr.extras["working_set"] for lr in nr.loops if lr.loop.depth == 1][0]
+    # row i of A (i + 1 elements) and B[0..i]: largest at i = n - 1
+    assert j.whole.elements.value == 2 * n
+    fp = nr.extras["footprint"].footprint
+    assert fp.elements.value == n * (n + 1) // 2 + n
+    assert fp.lines.value == len({(8 * (n * i + jj)) // 64 for i in range(n) for jj in range(i + 1)}) + \
+        len({(8 * jj) // 64 for jj in range(n)})

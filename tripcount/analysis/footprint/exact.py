@@ -21,6 +21,7 @@
 from __future__ import annotations
 
 import math
+import re
 import time
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -29,6 +30,7 @@ from typing import Any
 
 import islpy as isl
 
+from tripcount.affine import mangle
 from tripcount.formula import FormulaError, parse_expr
 from tripcount.model import Access
 
@@ -72,6 +74,8 @@ def inner_extents(acc: Access, sizes: Mapping[str, int]) -> list[int] | None:
     for text in ext[1:]:
         if text is None:
             return None
+        # the sizes carry the model's names (a C name that is a word of the set library is renamed)
+        text = re.sub(r"[A-Za-z_][A-Za-z0-9_]*", lambda m: mangle(m.group(0)), text)
         try:
             v = parse_expr(text).evaluate(dict(sizes))
         except (FormulaError, KeyError, ValueError, TypeError, ZeroDivisionError):

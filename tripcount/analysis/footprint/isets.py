@@ -5,12 +5,15 @@
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Mapping, Sequence
 from typing import Any
 
 import islpy as isl
 
+from tripcount import engine
 from tripcount.engine.islconv import exceeds
+from tripcount.engine.piecewise import Piece, Piecewise
 from tripcount.model import Access, Statement
 
 
@@ -261,3 +264,58 @@ def _sample(context: isl.Set, params: list[str], lo: int, hi: int) -> dict[str, 
         return None
     names = _params(s)
     return {n: int(pt.get_coordinate_val(isl.dim_type.param, i).to_python()) for i, n in enumerate(names)}
+
+
+# --------------------------------------------------------------------------
+# Counting under neutral parameter names
+
+_NEUTRAL = re.compile(r"\bfp(\d+)_(?![A-Za-z0-9_])")
+
+
+def _renamed(s: isl.Set, mapping: Mapping[str, str]) -> isl.Set:
+    for i in range(s.dim(isl.dim_type.param)):
+        name = s.get_dim_name(isl.dim_type.param, i)
+        if name in mapping:
+            s = s.set_dim_name(isl.dim_type.param, i, mapping[name])
+    return s
+
+
+def _formula_renamed(f: Any, mapping: Mapping[str, str]) -> Any:
+    """A piecewise formula with its parameters renamed (domains, polynomials and condition texts)."""
+    def when(text: str) -> str:
+        return re.sub(r"[A-Za-z_][A-Za-z0-9_]*", lambda m: mapping.get(m.group(0), m.group(0)), text)
+
+    pieces = [Piece(_renamed(p.domain, mapping), p.poly.rename(mapping), when(p.when)) for p in f.pieces]
+    return Piecewise(pieces, tuple(mapping.get(x, x) for x in f.params),
+                     None if f.context is None else _renamed(f.context, mapping))
+
+
+def _neutral_names(names: Sequence[str]) -> tuple[dict[str, str], dict[str, str]]:
+    there = {n: f"fp{k}_" for k, n in enumerate(names)}
+    return there, {v: k for k, v in there.items()}
+
+
+def neutral_count(s: isl.Set, context: isl.Set | None, limits: Any = None) -> Any:
+    """engine.count with every parameter renamed to a neutral name (fp0_, fp1_, ...) and the formula
+    renamed back: a size or loop variable spelled like a word of the integer-set library's input
+    language (`q`, `exists`, ...) then never meets the engine's own names."""
+    names: list[str] = []
+    for t in (s, context):
+        if t is not None:
+            names += [n for n in _params(t) if n not in names]
+    there, back = _neutral_names(names)
+    f = engine.count(_renamed(s, there), None if context is None else _renamed(context, there), limits)
+    return _formula_renamed(f, back)
+
+
+def neutral_add_all(formulas: Sequence[Any]) -> Any:
+    """engine.add_all under neutral parameter names (see neutral_count)."""
+    names: list[str] = []
+    for f in formulas:
+        names += [n for n in f.params if n not in names]
+        if f.context is not None:
+            names += [n for n in _params(f.context) if n not in names]
+        for p in f.pieces:
+            names += [n for n in _params(p.domain) if n not in names]
+    there, back = _neutral_names(names)
+    return _formula_renamed(engine.add_all([_formula_renamed(f, there) for f in formulas]), back)

@@ -20,6 +20,8 @@ from tripcount.analysis.footprint.isets import (
     _outer_at,
     _outer_part,
     enum_count,
+    neutral_add_all,
+    neutral_count,
     points,
 )
 from tripcount.analysis.footprint.results import FCount
@@ -54,7 +56,7 @@ def _formula(s: isl.Set, context: isl.Set | None, options: Options, budget: _Bud
     allowed = min(options.time_limit, left, cap)
     limits = engine.Limits(time_s=allowed, max_pieces=options.max_pieces)
     try:
-        return engine.count(s, context, limits), None
+        return neutral_count(s, context, limits), None
     except engine.EngineLimit as exc:
         if budget.left() <= 0:
             return None, spent
@@ -111,7 +113,7 @@ def _sum(qs: list[_Quantity], zero: Any) -> _Quantity:
         return _Quantity(sets, None, reasons[0] if reasons else "formula not available")
     if not qs:
         return _Quantity([], zero, None if zero is not None else "counting engine not available")
-    return _Quantity(sets, engine.add_all([q.formula for q in qs]))
+    return _Quantity(sets, neutral_add_all([q.formula for q in qs]))
 
 
 
@@ -191,6 +193,6 @@ def _scaled_count(c: FCount, k: int) -> FCount:
 def _zero(nest: Nest) -> Any:
     """A zero formula (no array is touched)."""
     try:
-        return engine.count(isl.Set.empty(nest.context.get_space()), nest.context)
+        return neutral_count(isl.Set.empty(nest.context.get_space()), nest.context)
     except Exception:  # a zero count is a convenience, never a reason to fail
         return None
