@@ -18,11 +18,13 @@ from tripcount.analysis.results import Count
 from tripcount.diagnostics import Diagnostic
 from tripcount.model import Loop
 
-LAYOUT_NOTE = ("row-major C layout, arrays do not overlap; a cache line holds consecutive elements "
-               "of the innermost dimension and every row starts on a line boundary "
-               "(line = (i0, ..., floor(i_last*elem/line))), or the exact linear layout "
-               "(line = floor((i0*E1*...*En + ... + i_last)*elem/line), array start aligned to a line) "
-               "when all inner extents are constants")
+LAYOUT_NOTE = ("row-major C layout of the declared types, arrays do not overlap and each starts on a cache-line "
+               "boundary; values at the --at sizes: the packed layout (line = floor((i0*E1*...*En + ... + i_last)"
+               "*elem/line)) whenever the inner extents are known there, exact, the largest over the outer loop "
+               "variables (a value that is only a bound says so and which side); formulas in the sizes: the same "
+               "packed layout when all inner extents are constants, else every row assumed to start on a line "
+               "boundary (line = (i0, ..., floor(i_last*elem/line))), marked `formula_assumes` where the value "
+               "at the --at sizes does not share that assumption")
 CACHE_ASSUMPTIONS = ("model estimate: fully associative caches, capacity only (no replacement policy, "
                      "no conflict misses), no other data or threads competing, row-major layout, "
                      "the working set counted in whole cache lines")
