@@ -34,10 +34,11 @@ from tripcount.affine import mangle
 from tripcount.formula import FormulaError, parse_expr
 from tripcount.model import Access
 
-POINT_CAP = 256  # outer values counted one by one in a region whose shape varies
+POINT_CAP = 1024  # outer values counted one by one in a region whose shape varies
 MAX_PIECES = 64  # regions of the outer values with one shape of what is touched
 MAX_CLASSES = 4096  # alignment classes looked at per region
-EXACT_BUDGET_S = 12.0  # exact values of one nest; past it, upper bounds
+EXACT_BUDGET_S = 1.5  # exact values of one nest; past it, upper bounds
+CHECK_BUDGET_S = 0.5  # exact checks of the cache-fit thresholds of one nest
 
 _dt = isl.dim_type
 
@@ -202,7 +203,8 @@ class Part:
     residue: isl.Map | None
 
 
-def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
+def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
+            budget: ExactBudget | None = None) -> Max:
     """Exact maximum over the outer values of sum(weight * |counted(o)|).
 
     The outer values are split into regions where every array's touched elements are one fixed shape
@@ -231,7 +233,7 @@ def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
                       if n_out else e)
     best: Max | None = None
     for r in regions:
-        got = _region_max(parts, normal, r, fixed)
+        got = _region_max(parts, normal, r, fixed, budget)
         if best is None or got.value > best.value:  # type: ignore[operator]
             best = got
     return best or Max(0)
@@ -247,7 +249,8 @@ def _value_at(parts: Sequence[Part], pt: Mapping[str, int], fixed: Sequence[str]
     return total
 
 
-def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fixed: Sequence[str]) -> Max:
+def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fixed: Sequence[str],
+                budget: ExactBudget | None) -> Max:
     o_star = _first(r, fixed)
     assert o_star is not None
     shifted = True
@@ -266,6 +269,8 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
             raise _TooHard
         best = Max(0)
         for pt in pts:
+            if budget is not None and budget.spent():
+                raise _TooHard
             v = _value_at(parts, pt, fixed)
             if best.at is None or v > (best.value or 0):
                 best = Max(v, at=dict(pt))
@@ -356,13 +361,14 @@ class ScopeValues:
 
 def scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None], accesses: Mapping[str, Access],
                  line: int, outer: isl.Set | None, fixed: Sequence[str], sizes: Mapping[str, int],
-                 budget: ExactBudget, bounds: bool = True) -> ScopeValues:
+                 budget: ExactBudget, bounds: bool = True,
+                 known: Mapping[tuple[str, str], int] | None = None) -> ScopeValues:
     """Exact values at `sizes` of a scope whose touched elements per array are `images` (sets with the
     sizes and the fixed variables as parameters); where the maximum is not found, an upper bound
-    (or, without `bounds`, no value)."""
+    (or, without `bounds`, no value). `known`: exact values already had, by (array or "", kind)."""
     budget.started = time.monotonic()
     try:
-        return _scope_values(images, elems, accesses, line, outer, fixed, sizes, budget, bounds)
+        return _scope_values(images, elems, accesses, line, outer, fixed, sizes, budget, bounds, known or {})
     finally:
         budget.used += time.monotonic() - budget.started
         budget.started = None
@@ -370,13 +376,15 @@ def scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None],
 
 def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None], accesses: Mapping[str, Access],
                   line: int, outer: isl.Set | None, fixed: Sequence[str], sizes: Mapping[str, int],
-                  budget: ExactBudget, bounds: bool) -> ScopeValues:
+                  budget: ExactBudget, bounds: bool, known: Mapping[tuple[str, str], int]) -> ScopeValues:
     o = outer if outer is not None else isl.Set("{ [] }")
 
-    def best(parts: list[Part]) -> Max:
+    def best(parts: list[Part], key: tuple[str, str] | None = None) -> Max:
+        if key in known:
+            return Max(known[key])  # type: ignore[index]
         if not (budget.spent() and fixed):
             try:
-                return maximum(parts, o, fixed)
+                return maximum(parts, o, fixed, budget)
             except (_TooHard, isl.Error):
                 pass
         if bounds and fixed:
@@ -407,17 +415,20 @@ def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None]
                 lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
                 residue = lo.apply_range(_residue_map([0] * (n - 1) + [1], elem, line)) if lo is not None else None
             ln_parts[name] = Part(rel, rel.apply_range(lm), 1, residue)
-            lines = best([ln_parts[name]])
-        arrays[name] = (best([el_parts[name]]), lines, layout)
-    total_el = best(list(el_parts.values())) if len(el_parts) != 1 else next(iter(arrays.values()))[0]
-    known = all(elems.get(n) for n in images)
+            lines = best([ln_parts[name]], (name, "lines"))
+        arrays[name] = (best([el_parts[name]], (name, "elements")), lines, layout)
+    total_el = (best(list(el_parts.values()), ("", "elements")) if len(el_parts) != 1
+                else next(iter(arrays.values()))[0])
+    all_sized = all(elems.get(n) for n in images)
     sizes_set = {elems.get(n) for n in images}
     by = ln = None
-    if known and images:
+    if all_sized and images:
         if len(sizes_set) == 1:
             k = sizes_set.pop() or 0
             by = Max(None if total_el.value is None else total_el.value * k, total_el.side, total_el.why, total_el.at)
         else:
-            by = best([Part(el_parts[n].elements, el_parts[n].counted, elems[n] or 0, None) for n in images])
-        ln = best(list(ln_parts.values())) if len(ln_parts) != 1 else next(iter(arrays.values()))[1]
+            by = best([Part(el_parts[n].elements, el_parts[n].counted, elems[n] or 0, None) for n in images],
+                      ("", "bytes"))
+        ln = (best(list(ln_parts.values()), ("", "lines")) if len(ln_parts) != 1
+              else next(iter(arrays.values()))[1])
     return ScopeValues(arrays, total_el, by, ln)

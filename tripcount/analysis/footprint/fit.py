@@ -90,13 +90,15 @@ def cache_fit(an: Analyzer, ws: WorkingSet) -> None:
 
 def _checked(an: Analyzer, ws: WorkingSet, t: Threshold, capacity_lines: int) -> Threshold | None:
     """The threshold checked with the exact count (packed layout) at it and one past it; None when the
-    exact count disagrees (the formula's layout assumption moved it) or cannot be had."""
+    exact count disagrees (the formula's layout assumption moved it); marked as resting on the formula's
+    layout assumption when the exact count cannot be had within the limits."""
     if ws.exact_lines is None or t.largest is None:
         return t
     here = ws.exact_lines({**t.fixed, t.param: t.largest})
-    past = ws.exact_lines({**t.fixed, t.param: t.largest + 1})
-    if here is None or past is None:
-        return None
+    past = ws.exact_lines({**t.fixed, t.param: t.largest + 1}) if here is not None else None
+    if here is None or past is None:  # not checked within the limits: it holds for the formula's layout
+        t.assumes = "rows aligned"
+        return t
     if here <= capacity_lines < past:
         t.checked = True
         return t
@@ -203,7 +205,8 @@ def flag(ws: WorkingSet, an: Analyzer, diags: list[Diagnostic]) -> None:
         if t.largest is None or t.largest < 1:
             parts.append(f"it cannot fit {lv.name} for any {t.param} >= 1")
         else:
-            parts.append(f"it would fit {lv.name} {'at least ' if t.safe else ''}while {t.text()}")
+            parts.append(f"it would fit {lv.name} {'at least ' if t.safe else ''}while {t.text()}"
+                         + (" (if every row started on a cache-line boundary)" if t.assumes else ""))
     threshold = ("; " + "; ".join(parts) + (f" ({_fmt_at(others)} fixed)" if others else "")) if parts else ""
     fp = ws.whole
     at = _fmt_at(an.at)

@@ -221,6 +221,7 @@ class Threshold:
     safe: bool = False  # computed from an upper bound: fits at least up to `largest`
     fixed: dict[str, int] = field(default_factory=dict)
     checked: bool = False  # the exact count (packed layout) fits at `largest` and not one past it
+    assumes: str | None = None  # "rows aligned": from the formula's layout, not checked with the exact count
 
     def text(self) -> str:
         """'N <= 2047', 'any N', 'no N >= 1'."""
@@ -228,12 +229,13 @@ class Threshold:
             return f"any {self.param}"
         if self.largest is None or self.largest < 1:  # fitting only an empty loop is no answer
             return f"no {self.param} >= 1"
-        return f"{self.param} <= {self.largest}"
+        return f"{self.param} <= {self.largest}" + (f" ({self.assumes})" if self.assumes else "")
 
     def to_json(self) -> dict[str, Any]:
         """param, largest, unbounded, safe, the other sizes held fixed."""
         return {"param": self.param, "largest": self.largest, "unbounded": self.unbounded,
-                "safe": self.safe, "others": dict(self.fixed), "checked": self.checked}
+                "safe": self.safe, "others": dict(self.fixed), "checked": self.checked,
+                **({"assumes": self.assumes} if self.assumes else {})}
 
 
 @dataclass

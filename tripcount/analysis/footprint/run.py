@@ -69,7 +69,7 @@ def analyze(result: NestResult, options: Options) -> None:
         reuse = an.reuse(stmts, an.statements_in(parent), parent.depth) if parent is not None else None
         ws = WorkingSet(loop, whole, per_it, reuse, assumptions=assumptions,
                         outer_var=parent.var if parent is not None else None)
-        if an.has_at and not whole.lower_bound:
+        if an.has_at and not whole.lower_bound and getattr(whole.lines, "formula_assumes", None):  # formula, value differ
             ws.exact_lines = an.exact_lines(stmts, fixed, parent.domain if parent else None)
         cache_fit(an, ws)
         if loop.index in by_index:

@@ -14,7 +14,14 @@ from typing import Any
 import islpy as isl
 
 from tripcount.analysis.caches import hierarchy
-from tripcount.analysis.footprint.exact import ExactBudget, Max, ScopeValues, scope_values
+from tripcount.analysis.footprint.exact import (
+    CHECK_BUDGET_S,
+    ExactBudget,
+    Max,
+    ScopeValues,
+    inner_extents,
+    scope_values,
+)
 from tripcount.analysis.footprint.isets import (
     _in_context,
     _name_in,
@@ -79,6 +86,7 @@ class Analyzer:
         self._zero = _zero(self.nest)
         self.probes = self._probes()
         self.exact_budget = ExactBudget()
+        self.check_budget = ExactBudget(CHECK_BUDGET_S)
 
     # --- setup
     def _mixed_ranks(self) -> dict[str, tuple[Access, Access]]:
@@ -296,7 +304,9 @@ class Analyzer:
         return fp
 
     def _scope_values(self, stmts: list[Statement], fixed: tuple[str, ...], outer: isl.Set | None,
-                      sizes: Mapping[str, int], bounds: bool = True) -> ScopeValues | None:
+                      sizes: Mapping[str, int], bounds: bool = True,
+                      known: Mapping[tuple[str, str], int] | None = None,
+                      budget: ExactBudget | None = None) -> ScopeValues | None:
         n = len(fixed)
         images: dict[str, isl.Set] = {}
         for s in stmts:
@@ -312,7 +322,7 @@ class Analyzer:
         try:
             return scope_values(images, {k: self.arrays[k].elem for k in images},
                                 {k: self.arrays[k].access for k in images}, self.line, o, fixed, sizes,
-                                self.exact_budget, bounds)
+                                budget or self.exact_budget, bounds, known)
         except isl.Error:
             return None
 
@@ -320,11 +330,11 @@ class Analyzer:
                     outer: isl.Set | None) -> Callable[[Mapping[str, int]], int | None]:
         """Exact worst-case cache lines of a scope at other sizes (None when only a bound is had)."""
         def at(sizes: Mapping[str, int]) -> int | None:
-            if any(p not in sizes for p in self.nest.params) or self.exact_budget.spent():
+            if any(p not in sizes for p in self.nest.params) or self.check_budget.spent():
                 return None
             if any(abs(v) > EXACT_SIZE_CAP for v in sizes.values()):
                 return None  # counting at one outer value takes time linear in the sizes
-            sv = self._scope_values(stmts, fixed, outer, sizes, bounds=False)
+            sv = self._scope_values(stmts, fixed, outer, sizes, bounds=False, budget=self.check_budget)
             if sv is None or sv.lines is None or sv.lines.side is not None:
                 return None
             return sv.lines.value
@@ -333,7 +343,25 @@ class Analyzer:
     def _exact_values(self, fp: Footprint, stmts: list[Statement], fixed: tuple[str, ...],
                       outer: isl.Set | None, aq: _ArrayQ) -> None:
         """Values at the --at sizes from the packed layout, exact (or a bound that says so)."""
-        sv = self._scope_values(stmts, fixed, outer, self.at)
+        # exact values found before (by the formulas) stand where the layout is the same
+        known: dict[tuple[str, str], int] = {}
+        same_all = True
+        for name, a in fp.by_array.items():
+            same = name in aq and self._same_layout(name, aq[name][2])
+            same_all = same_all and same
+            for kind, c in (("elements", a.elements), ("lines", a.lines)):
+                if (kind == "elements" or same) and _exact_int(c) is not None:
+                    known[(name, kind)] = _exact_int(c)  # type: ignore[assignment]
+        for kind, c in (("elements", fp.elements), ("bytes", fp.bytes), ("lines", fp.lines)):
+            if (kind != "lines" or same_all) and _exact_int(c) is not None:
+                known[("", kind)] = _exact_int(c)  # type: ignore[assignment]
+        # without the exact maximum, lines get a cheap upper bound from the values found before
+        upper = {name: _lines_upper(a.elements, a.lines, self.arrays[name].elem, self.line)
+                 for name, a in fp.by_array.items()}
+        upper[""] = _lines_upper(fp.elements, fp.lines,
+                                 min((self.arrays[n].elem or 0) for n in fp.by_array) if fp.by_array else None,
+                                 self.line)
+        sv = self._scope_values(stmts, fixed, outer, self.at, known=known, bounds=False)
         if sv is None:
             return
         over = ", ".join(fixed)
@@ -350,14 +378,14 @@ class Analyzer:
                 _set_value(a.bytes, Max(None if el.value is None else el.value * a.elem_size, el.side, el.why,
                                         el.at), over)
             if ln is not None:
-                _set_value(a.lines, ln, over, formula_layout == layout)
+                _set_value(a.lines, _or_upper(ln, upper.get(name)), over, formula_layout == layout)
                 if formula_layout != "linear" and layout == "linear" and a.lines.formula is not None:
                     a.lines.formula_assumes = ROWS_ALIGNED
         _set_value(fp.elements, sv.elements, over)
         if sv.bytes is not None:
             _set_value(fp.bytes, sv.bytes, over)
         if sv.lines is not None:
-            _set_value(fp.lines, sv.lines, over, same)
+            _set_value(fp.lines, _or_upper(sv.lines, upper.get("")), over, same)
             if fp.lines.formula is not None and any(
                     a.lines.formula_assumes for a in fp.by_array.values() if isinstance(a.lines, FCount)):
                 fp.lines.formula_assumes = ROWS_ALIGNED
@@ -367,6 +395,14 @@ class Analyzer:
                     fp.worst.values[key] = c.value
                     if fp.worst.counts is not None and fp.worst.counts.get(key) is not None:
                         fp.worst.counts[key].value = c.value  # the exact maximum is the tightest bound
+
+    def _same_layout(self, name: str, formula_layout: str) -> bool:
+        """Whether an array's formula layout is the layout of its values at the --at sizes."""
+        info = self.arrays.get(name)
+        if info is None or info.access.map is None:
+            return False
+        packed = inner_extents(info.access, self.at) is not None
+        return packed == (formula_layout == "linear")
 
     @staticmethod
     def _mark_lower_bound(fp: Footprint, why: str, arrays: set[str] | None = None) -> None:
@@ -461,12 +497,44 @@ ROWS_ALIGNED = ("every row starts on a cache-line boundary (the value at the --a
                 "row-major layout, which can differ)")
 
 
+def _lines_upper(elements: Any, lines: Any, elem: int | None, line: int) -> int | None:
+    """An upper bound of the packed layout's lines from exact values with every row aligned: a line of
+    the aligned layout is at most `line` contiguous bytes, so it meets at most two packed lines; and an
+    element (its size dividing the line) lies in one line."""
+    bounds = []
+    al = _exact_int(lines)
+    if al is not None:
+        bounds.append(2 * al)
+    el = _exact_int(elements)
+    if el is not None and elem and line % elem == 0:
+        bounds.append(el)
+    return min(bounds) if bounds else None
+
+
+def _or_upper(m: Max, upper: int | None) -> Max:
+    if m.value is not None or upper is None:
+        return m
+    return Max(upper, side="upper", why=(m.why or "no exact maximum") + "; upper bound: at most two lines for each line with every "
+               "row starting on a line boundary, and at most one line per element")
+
+
+def _exact_int(c: Any) -> int | None:
+    """The value of a count object when it is exact (an integer, not a bound)."""
+    if not isinstance(c, FCount) or c.bound or c.value is None:
+        return None
+    v = c.value
+    if isinstance(v, Fraction):
+        return int(v) if v.denominator == 1 else None
+    return int(v) if isinstance(v, int) else None
+
+
 def _set_value(c: Any, m: Max, over: str, same_layout: bool = True) -> None:
     """Put an exact value (or a bound with its side) at the --at sizes into a count object. Without one,
     the value found before stays only when it is exact and of the same layout."""
     if not isinstance(c, FCount):
         return
-    if m.value is None:
+    if m.value is None or (m.side == "upper" and same_layout and c.value is not None and not c.bound):
+        # keep a value found before only when it is exact and of the same layout
         if c.bound or not same_layout:
             c.value, c.bound, c.value_is = None, False, m.why
         return
