@@ -14,13 +14,18 @@
 # references. Cache lines are the image of those elements under a line map
 # (row-major C layout; see LAYOUT_NOTE).
 #
-# The value at the --at sizes of a per-level quantity is its maximum over the
-# values of the fixed loop variables, found by evaluating the formula at every
-# value when that is cheap. The worst case as a function of the sizes is the
-# per-level formula at the extreme values of the outer variables (substituted
-# symbolically, e.g. i = N - 1) when evaluation at the --at sizes and at a
-# small probe size shows the maximum is there; otherwise a safe upper bound
-# (the footprint with the outer variables free), marked `bound`.
+# Values at the --at sizes are exact (exact.py): every extent is then a
+# number, so lines follow the packed layout of the declared type (arrays
+# starting on a line boundary), and the largest value over the fixed loop
+# variables is found by splitting their values into regions of one shifted
+# shape and alignment classes; a value that is only a bound says which side
+# and why. Formulas in the sizes assume aligned rows unless the inner extents
+# are constants, and say so where the value does not share that assumption.
+# The worst case as a function of the sizes is the per-level formula at the
+# extreme values of the outer variables (substituted symbolically, e.g.
+# i = N - 1) when evaluation at the --at sizes and at a small probe size shows
+# the maximum is there; otherwise a safe upper bound (the footprint with the
+# outer variables free), marked `bound`.
 #
 # The cache-fit model compares each loop's worst-case working set (in cache
 # lines times the line size) with the host's data caches and solves for the
@@ -33,7 +38,8 @@
 # them by the compulsory footprint in bytes.
 #
 # Modules: results (result objects, diagnostics, assumptions), isets (integer
-# set helpers, layout model), quantities (counts with the engine, maxima over
+# set helpers, layout model, counting under neutral names), exact (exact
+# values at the --at sizes), quantities (counts with the engine, maxima over
 # outer variables), scopes (footprints of statement sets), worst (worst case
 # over outer variables), fit (cache fit), intensity, table (text), run (entry).
 

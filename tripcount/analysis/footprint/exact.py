@@ -321,18 +321,8 @@ def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
                                          "the limits; upper bound: what all their values touch together"))
 
 
-def params_set(outer: isl.Set, fixed: Sequence[str]) -> isl.Set:
-    """`outer` (a set over the fixed variables, no parameters) as a set of parameter values."""
-    n = outer.dim(_dt.set)
-    p = outer.move_dims(_dt.param, 0, _dt.set, 0, n).params()
-    for k in range(n):
-        p = p.set_dim_name(_dt.param, k, fixed[k])
-    return p
-
-
 # --------------------------------------------------------------------------
 # One scope at the --at sizes
-
 
 
 class ExactBudget:
