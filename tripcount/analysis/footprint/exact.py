@@ -32,6 +32,7 @@ import islpy as isl
 
 from tripcount.affine import mangle
 from tripcount.formula import FormulaError, parse_expr
+from tripcount.guard import count_points
 from tripcount.model import Access
 
 POINT_CAP = 1024  # outer values counted one by one in a region whose shape varies
@@ -214,7 +215,7 @@ def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
     value when it has few; otherwise the maximum is not found and a bound is given instead.
     """
     if not fixed:
-        return Max(sum(p.weight * int(p.counted.range().count_val().to_python()) for p in parts))
+        return Max(sum(p.weight * count_points(p.counted.range()) for p in parts))
     if outer.is_empty():
         return Max(0)
     regions = [outer]
@@ -245,7 +246,7 @@ def _value_at(parts: Sequence[Part], pt: Mapping[str, int], fixed: Sequence[str]
         o = isl.Set.universe(p.counted.get_space().domain())
         for k, nm in enumerate(fixed):
             o = o.fix_val(_dt.set, k, _val(o.get_ctx(), pt[nm]))
-        total += p.weight * int(p.counted.intersect_domain(o).range().count_val().to_python())
+        total += p.weight * count_points(p.counted.intersect_domain(o).range())
     return total
 
 
@@ -316,7 +317,7 @@ def _classes(m: isl.Map, k: int, left: list[int]) -> list[isl.Map]:
 
 def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
     """Upper bound: what all values of the outer variables touch together."""
-    total = sum(p.weight * int(p.counted.intersect_domain(outer).range().count_val().to_python()) for p in parts)
+    total = sum(p.weight * count_points(p.counted.intersect_domain(outer).range()) for p in parts)
     return Max(total, side="upper", why=("the maximum over " + ", ".join(fixed) + " could not be found within "
                                          "the limits; upper bound: what all their values touch together"))
 
