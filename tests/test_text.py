@@ -47,3 +47,11 @@ def test_dominant_statement_is_the_largest_not_the_first_of_the_highest_degree(r
     assert "dominant S2 ~ 100*n, the largest count for large equal sizes" in out
     status, out, _ = run_cli("analyze", "--code", code, "--at", "n=3")
     assert "dominant S2 ~ 100*n, the largest count at the --at sizes" in out
+
+
+def test_flops_by_kind_without_sizes_are_exact_formulas(run_cli):
+    # strict lower triangle: n*(n - 1)/2 runs (OEIS A000217 shifted), one add and one mul each
+    code = "for (i = 0; i < n; i++) for (j = 0; j < i; j++) s += a[i][j] * 2.0;"
+    status, out, _ = run_cli("analyze", "--code", code)
+    assert status == 0
+    assert "flops n*(n - 1) (add n*(n - 1)/2, mul n*(n - 1)/2)" in out

@@ -168,11 +168,11 @@ def _flops_lines(nf: NestFootprint, at: str) -> list[str]:
     for k in ("add", "mul", "div"):
         c = f.kinds[k].count
         if c.value or (c.formula is not None and not c.formula.is_zero()):
-            kinds.append(f"{k} {_value_text(c) if nf.at and c.value is not None else c.formula.leading()}")
+            kinds.append(f"{k} {_value_text(c) if nf.at and c.value is not None else _piece_expr(c)}")
     for name, wc in sorted(f.calls.items()):
         c = wc.count
         if c.value or (c.formula is not None and not c.formula.is_zero()):
-            kinds.append(f"{name} {_value_text(c) if nf.at and c.value is not None else c.formula.leading()}")
+            kinds.append(f"{name} {_value_text(c) if nf.at and c.value is not None else _piece_expr(c)}")
     if kinds:
         line += f" ({', '.join(kinds)})"
     out = [line]
