@@ -6,6 +6,7 @@
 from __future__ import annotations
 
 import glob
+import json
 import os
 import re
 
@@ -67,3 +68,57 @@ def test_same_recovery_as_the_public_parser(text, monkeypatch):
     assert fast[0] == public[0]
     assert [dg.render() for dg in fast[1]] == [dg.render() for dg in public[1]]
     assert fast[1], "the broken input is reported"
+
+
+class _Payload:
+    # unpickling this object creates the file named in it: the marker of code run
+    def __init__(self, marker: str) -> None:
+        self.marker = marker
+
+    def __reduce__(self):
+        return (open, (self.marker, "w"))
+
+
+def test_the_grammar_cache_never_runs_code(tmp_path, monkeypatch):
+    # whoever can write the cache directory must not run code in later
+    # commands: a pickle under the name of the compiled grammar (the old lark
+    # format, or the JSON name) is ignored or a miss, never unpickled
+    import hashlib
+    import pickle
+    import sys
+
+    from lark import __version__ as lark_version
+
+    from tripcount.frontend.build import IRBuilder
+
+    cache = tmp_path / "c"
+    cache.mkdir()
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(cache))
+    marker = tmp_path / "ran"
+    key = hashlib.sha256(f"{lalr._grammar_text()}\0{lark_version}\0{sys.version_info[:2]}".encode()).hexdigest()[:20]
+    # lark's own cache format: a header line lark checks, then pickles; the
+    # header is that of a genuine file, so only the pickle is hostile
+    from lark import Lark
+
+    genuine = tmp_path / "genuine.lark"
+    Lark(lalr._grammar_text(), transformer=IRBuilder(), cache=str(genuine), **lalr._LARK_OPTIONS)
+    header = genuine.read_bytes().split(b"\n", 1)[0] + b"\n"
+    payload = header + pickle.dumps(_Payload(str(marker)))
+    for name in (f"grammar-{key}.lark", f"grammar-{key}.json"):
+        (cache / name).write_bytes(payload)
+    lark = lalr._compile(IRBuilder())
+    assert lark.terminals and not marker.exists()
+    # the miss rewrote the JSON file: data, and it loads
+    assert json.loads((cache / f"grammar-{key}.json").read_text("utf-8"))["key"] == key
+    assert lalr._load_tables(str(cache / f"grammar-{key}.json"), key, IRBuilder()) is not None
+    assert not marker.exists()
+
+
+@pytest.mark.parametrize("text", ['{"key": "K"}', '{"key": "K", "data": {"m": [[[1], 2]]}, "memo": {}}',
+                                  "[" * 100000, '{"key": "K", "data": {"t": 5}, "memo": {"m": [[1]]}}'])
+def test_damaged_grammar_tables_are_a_miss(tmp_path, text):
+    from tripcount.frontend.build import IRBuilder
+
+    path = tmp_path / "g.json"
+    path.write_text(text)
+    assert lalr._load_tables(str(path), "K", IRBuilder()) is None

@@ -476,7 +476,7 @@ def test_compiled_grammar_is_kept_in_the_cache_directory(tmp_path, monkeypatch):
     # unwritable directory only no cache
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "c"))
     first = lalr._compile(IRBuilder())
-    files = list((tmp_path / "c").glob("grammar-*.lark"))
+    files = list((tmp_path / "c").glob("grammar-*.json"))
     assert len(files) == 1
     written = files[0].stat().st_mtime_ns
     time.sleep(0.01)

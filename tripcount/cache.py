@@ -237,7 +237,7 @@ class Store:
         except OSError:
             names = []
         for name in names:
-            if name.startswith("grammar-") and (name.endswith(".lark") or name.endswith(".tmp")):
+            if name.startswith("grammar-") and name.endswith((".json", ".lark", ".tmp")):
                 with contextlib.suppress(OSError):
                     os.remove(os.path.join(parent, name))
         return n

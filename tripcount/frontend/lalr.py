@@ -13,7 +13,9 @@
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
+import json
 import os
 import sys
 import threading
@@ -146,24 +148,105 @@ _LARK_OPTIONS = dict(parser="lalr", lexer=_ListLexer, keep_all_tokens=True, mayb
                      start=["body_start", "item_start", "expr_start", "decl_start"])
 
 
+# Options of the compiled grammar that are code (classes, objects), never
+# stored: the loader puts back the ones the parser needs.
+_CODE_OPTIONS = ("lexer", "transformer", "postlex", "tree_class", "lexer_callbacks", "edit_terminals", "_plugins")
+_MAX_TABLE_BYTES = 32 << 20
+_MAX_DEPTH = 64
+
+
+def _encode(x: object, depth: int = 0) -> object:
+    """lark's serialized parser (dicts with int keys, tuples, lists, scalars) as
+    plain JSON: a dict becomes {"m": [[key, value], ...]}, a tuple {"t": [...]}."""
+    if depth > _MAX_DEPTH:
+        raise ValueError("too deep")
+    if x is None or isinstance(x, (bool, int, str)):
+        return x
+    if isinstance(x, list):
+        return [_encode(v, depth + 1) for v in x]
+    if isinstance(x, tuple):
+        return {"t": [_encode(v, depth + 1) for v in x]}
+    if isinstance(x, dict):
+        return {"m": [[_encode(k, depth + 1), _encode(v, depth + 1)] for k, v in x.items()]}
+    raise TypeError(f"not data: {type(x).__name__}")
+
+
+def _decode_object(obj: dict) -> object:
+    """json's object hook, the inverse of _encode: {"t": [...]} is a tuple, {"m":
+    [[key, value], ...]} a dict (a pair that is not two items, or an unhashable
+    key, raises; the caller treats that as a damaged file)."""
+    if len(obj) == 1:
+        if isinstance(obj.get("t"), list):
+            return tuple(obj["t"])
+        if isinstance(obj.get("m"), list):
+            return dict(obj["m"])
+    return obj
+
+
+def _save_tables(lark: Lark, path: str, key: str) -> None:
+    """Write the parser tables as JSON under `path` (atomically: a private name, then rename)."""
+    from lark.grammar import Rule
+    from lark.lexer import TerminalDef
+
+    data, memo = lark.memo_serialize([TerminalDef, Rule])
+    data = dict(data)
+    data["options"] = {k: v for k, v in data["options"].items() if k not in _CODE_OPTIONS}
+    data["parser"] = dict(data["parser"])
+    data["parser"]["lexer_conf"] = {k: v for k, v in data["parser"]["lexer_conf"].items() if k != "lexer_type"}
+    text = json.dumps({"key": key, "data": _encode(data), "memo": _encode(memo)}, separators=(",", ":"))
+    tmp = f"{path}.{os.getpid()}.tmp"
+    with open(tmp, "w", encoding="utf-8") as f:
+        f.write(text)
+    os.replace(tmp, path)
+
+
+def _load_tables(path: str, key: str, builder: IRBuilder) -> Lark | None:
+    """The parser from tables written by _save_tables, or None (missing, damaged,
+    another key). Only data is read: JSON, decoded to dicts, lists and scalars,
+    which lark rebuilds into its own classes by name from a fixed list (never a pickle, so a file placed
+    in the cache directory cannot run code)."""
+    try:
+        if os.path.getsize(path) > _MAX_TABLE_BYTES:
+            return None
+        with open(path, encoding="utf-8") as f:
+            doc = json.load(f, object_hook=_decode_object)
+        if not isinstance(doc, dict) or doc.get("key") != key:
+            return None
+        data, memo = doc["data"], doc["memo"]
+        if not isinstance(data, dict) or not isinstance(memo, dict) or not isinstance(data.get("options"), dict):
+            return None
+        data["options"] = {k: v for k, v in data["options"].items() if k not in _CODE_OPTIONS}
+        data["options"]["lexer"] = _ListLexer
+        data["parser"]["lexer_conf"]["lexer_type"] = _ListLexer
+        lark = Lark._load_from_dict(data, memo, transformer=builder)
+        if lark.options.parser != "lalr" or not lark.terminals:
+            return None
+        return lark
+    except Exception:  # noqa: BLE001 - anything wrong with the file: compile afresh
+        return None
+
+
 def _compile(builder: IRBuilder) -> Lark:
     """The LALR parser of the grammar; its tables are kept in the cache directory
-    (about 0.2 s to compute, a few ms to load).
+    as JSON (about 0.2 s to compute, a few ms to load).
 
-    lark's own cache is used with the final file name: lark keys the file by its
-    options, the file name included, so a table written under a private name and
-    renamed would never be loaded. lark checks the key and the file when it
-    loads and recompiles (and rewrites) on any mismatch or damage, so a file
-    half written by a concurrent process is only a miss; an unwritable
-    directory means no grammar cache."""
+    The file is data only: lark's own cache format is a pickle, and whoever
+    can write the cache directory (a restored CI cache, a shared directory)
+    would run code in every later command. The key (grammar text, lark and
+    Python versions) is stored in the file and checked when it is loaded; a
+    missing, damaged or stale file is only a miss (recompiled, rewritten), an
+    unwritable directory means no grammar cache."""
     text = _grammar_text()
     key = hashlib.sha256(f"{text}\0{lark_version}\0{sys.version_info[:2]}".encode()).hexdigest()[:20]
-    final = os.path.join(cache_dir(), f"grammar-{key}.lark")
-    try:
+    final = os.path.join(cache_dir(), f"grammar-{key}.json")
+    loaded = _load_tables(final, key, builder)
+    if loaded is not None:
+        return loaded
+    lark = Lark(text, transformer=builder, **_LARK_OPTIONS)
+    with contextlib.suppress(Exception):
         os.makedirs(os.path.dirname(final), exist_ok=True)
-        return Lark(text, transformer=builder, cache=final, **_LARK_OPTIONS)
-    except Exception:  # noqa: BLE001 - no usable cache: compile without one
-        return Lark(text, transformer=builder, **_LARK_OPTIONS)
+        _save_tables(lark, final, key)
+    return lark
 
 
 class _Engine:
