@@ -48,9 +48,10 @@ def run_cli(capsys):
 
 
 @pytest.fixture
-def private_cache(tmp_path, monkeypatch):
-    """A result cache of this test alone (tmp_path/cache), outside any pre-commit run."""
-    path = tmp_path / "cache"
+def private_cache(tmp_path_factory, monkeypatch):
+    """A result cache of this test alone, outside any pre-commit run (and outside
+    tmp_path, which tests analyse as a tree: a cache inside it is refused)."""
+    path = tmp_path_factory.mktemp("private") / "cache"
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(path))
     monkeypatch.delenv("PRE_COMMIT", raising=False)
     monkeypatch.delenv("PRE_COMMIT_FROM_REF", raising=False)

@@ -169,12 +169,13 @@ def test_baseline_flags_regressions_against_head(stub):
     codes = re.findall(r"\[(TC6\d\d)\]", out)
     assert codes == ["TC611", "TC610"], out
     assert "wave.c:3:5:" in out and "wave.c:5:5:" in out
-    # staged files default to HEAD as baseline; unstaged ones to none
+    # a file given on the command line has no baseline unless asked for (git
+    # is not run), staged or not
     assert run(["check", "wave.c"], cwd=stub)[0] == 0
     git(stub, "add", "wave.c")
-    assert run(["check", "wave.c"], cwd=stub)[0] == 1
+    assert run(["check", "wave.c"], cwd=stub)[0] == 0
     assert run(["check", "--baseline", "none", "wave.c"], cwd=stub)[0] == 0
-    # with no files, the staged C files are checked
+    # with no files, the staged C files are checked against HEAD
     assert run(["check"], cwd=stub)[0] == 1
 
 
@@ -289,3 +290,40 @@ def test_the_window_working_set_is_exact_and_within_budget(tmp_path, private_cac
     assert [f["code"] for f in a.findings] == []
     ws = next(lp.working_set for lp in a.nests[0].loops if lp.var == "dx")
     assert ws.estimate == "exact" and ws.occupancy == worst * 64
+
+
+@needs_git
+def test_git_runs_only_for_a_baseline_and_never_runs_repository_hooks(stub, monkeypatch, tmp_path):
+    # a repository can name programs for git to run (core.fsmonitor here); the
+    # gate runs git only when a baseline is asked for, and then with them off
+    write_project(stub, "", {"wave.c": WAVE_V1})
+    git_repo(stub)
+    git(stub, "add", ".")
+    git(stub, "commit", "-qm", "wave model")
+    marker = tmp_path / "hook-ran"
+    hook = tmp_path / "monitor.sh"
+    hook.write_text(f"#!/bin/sh\necho ran >> '{marker}'\nexit 1\n")
+    hook.chmod(0o755)
+    git(stub, "config", "core.fsmonitor", str(hook))
+    git(stub, "add", "wave.c")
+    git(stub, "status", "--short")
+    if not marker.exists():
+        pytest.skip("this git does not run core.fsmonitor")
+    marker.unlink()
+    calls: list[list[str]] = []
+    real_run = subprocess.run
+
+    def spy(cmd, *args, **kwargs):
+        calls.append(list(cmd))
+        return real_run(cmd, *args, **kwargs)
+
+    monkeypatch.setattr(subprocess, "run", spy)
+    monkeypatch.delenv("PRE_COMMIT", raising=False)
+    assert run(["check", "wave.c"], cwd=stub)[0] == 0
+    assert calls == []  # no baseline asked for: no git at all
+    assert run(["check", "--baseline", "HEAD", "wave.c"], cwd=stub)[0] == 0
+    assert calls and all(c[0] == "git" and "core.fsmonitor=false" in c for c in calls)
+    monkeypatch.setenv("PRE_COMMIT", "1")
+    assert run(["check", "wave.c"], cwd=stub)[0] == 0
+    assert run(["check"], cwd=stub)[0] == 0
+    assert not marker.exists()

@@ -26,7 +26,7 @@ from tripcount.config import (
 from tripcount.diagnostics import Diagnostic
 from tripcount.ir import Span
 from tripcount.options import Options
-from tripcount.sources import collect_paths, output_clash
+from tripcount.sources import collect_paths, refusal
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 
@@ -82,7 +82,7 @@ def build_parser() -> argparse.ArgumentParser:
     add_common(a)
     c = sub.add_parser("check", help="pre-commit gate: budgets and baseline regressions")
     c.add_argument("paths", nargs="*", metavar="FILE")
-    c.add_argument("--baseline", metavar="REV", help="git revision to compare with (default HEAD for staged files)")
+    c.add_argument("--baseline", metavar="REV", help="git revision to compare with (default: HEAD under pre-commit and for `check` without files; else none)")
     add_common(c)
     sub.add_parser("schema", help="print the JSON Schema of the JSON report")
     s = sub.add_parser("serve", help="run the language server on stdio")
@@ -156,9 +156,9 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     if missing:
         stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
         return EXIT_USAGE
-    clash = output_clash(args.output, files) if args.output else None
-    if clash is not None:
-        stderr.write(f"tripcount: error: -o {args.output} is the input {clash}; the report would replace it\n")
+    refused = refusal(args.output, files)
+    if refused:
+        stderr.write(f"tripcount: error: {refused}\n")
         return EXIT_USAGE
     config = load_config(files[0] if files else os.getcwd())
     options = options_from(args, config)

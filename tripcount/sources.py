@@ -10,6 +10,7 @@ from collections.abc import Iterable
 
 from tripcount.diagnostics import InvalidEncoding
 from tripcount.ir import Span
+from tripcount.paths import cache_dir, is_inside
 
 # C++ sources and headers (read with the C++ subset of frontend/cxx.py).
 CXX_SUFFIXES = (".cpp", ".cc", ".cxx", ".c++", ".C", ".hpp", ".hh", ".hxx")
@@ -82,6 +83,34 @@ def output_clash(output: str, inputs: Iterable[str]) -> str | None:
             continue
         if (st.st_dev, st.st_ino) == (out.st_dev, out.st_ino):
             return p
+    return None
+
+
+def cache_in_tree(inputs: Iterable[str]) -> str | None:
+    """The analysed directory that holds the cache directory, or None.
+
+    The analysed trees are the directories given and those of the files
+    given; one that holds the home directory is not a source tree (the
+    default cache lives under it)."""
+    home = os.path.expanduser("~")
+    roots = {p if os.path.isdir(p) else os.path.dirname(os.path.abspath(p)) for p in inputs}
+    for root in sorted(roots):
+        if not is_inside(home, [root]) and is_inside(cache_dir(), [root]):
+            return root
+    return None
+
+
+def refusal(output: str | None, inputs: Iterable[str]) -> str | None:
+    """Why a command must not run on `inputs` (writing `output`), or None: the
+    output would replace an input, or the cache directory lies in the analysed tree."""
+    inputs = [p for p in inputs if p != "-"]
+    clash = output_clash(output, inputs) if output else None
+    if clash is not None:
+        return f"-o {output} is the input {clash}; the report would replace it"
+    root = cache_in_tree(inputs)
+    if root is not None:
+        return (f"the cache directory {cache_dir()} is inside the analysed tree {root}; tripcount never "
+                "writes into the source tree: set TRIPCOUNT_CACHE_DIR to a directory outside it")
     return None
 
 

@@ -59,3 +59,27 @@ def test_output_that_is_an_input_is_refused(tmp_path, run_cli):
     # a new file is fine
     status, _, _ = run_cli("analyze", str(src), "-o", str(tmp_path / "report.txt"))
     assert status == 0 and src.read_bytes() == before
+    # the gate refuses the same way (it used to empty the file)
+    for target in (src, link, hard):
+        status, _, err = run_cli("check", str(src), "-o", str(target))
+        assert status == 2 and "would replace it" in err
+        assert src.read_bytes() == before
+    status, _, _ = run_cli("check", str(src), "-o", str(tmp_path / "gate.txt"))
+    assert status == 0 and src.read_bytes() == before
+
+
+@pytest.mark.parametrize("command", ["analyze", "check"])
+def test_cache_directory_inside_the_analysed_tree_is_refused(tmp_path, monkeypatch, run_cli, command):
+    tree = tmp_path / "harbour"
+    tree.mkdir()
+    src = tree / "k.c"
+    src.write_bytes(open(FLUSH, "rb").read())
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tree / ".tc"))
+    for target in (str(src), str(tree)):
+        status, _, err = run_cli(command, "--format", "json", target)
+        assert status == 2 and "inside the analysed tree" in err
+    assert sorted(os.listdir(tree)) == ["k.c"]  # nothing written into the tree
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "elsewhere"))
+    status, _, err = run_cli(command, "--format", "json", str(src))
+    assert status == 0, err
+    assert sorted(os.listdir(tree)) == ["k.c"]

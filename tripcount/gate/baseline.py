@@ -72,10 +72,22 @@ class GitError(Exception):
     """git is missing or failed in a way that is not 'file absent at that revision'."""
 
 
+# Repository settings that make git run programs of the repository's choosing
+# (a cloned or downloaded repository can set them in .git/config): the gate
+# reads the index and old blobs only, so it switches them all off.
+_SAFE_GIT = ("--no-pager", "-c", "core.fsmonitor=false", "-c", "core.hooksPath=/dev/null",
+             "-c", "diff.external=", "-c", "core.untrackedCache=false", "-c", "core.sshCommand=",
+             "-c", "credential.helper=", "-c", "protocol.allow=never")
+
+
 def git_run(args: list[str], cwd: str) -> subprocess.CompletedProcess[bytes]:
+    """Run git with the repository's hooks and helper programs disabled (GitError
+    when git is missing or hangs)."""
+    env = {k: v for k, v in os.environ.items() if k not in ("GIT_EXTERNAL_DIFF", "GIT_PAGER", "PAGER")}
+    env["GIT_OPTIONAL_LOCKS"] = "0"
     try:
-        return subprocess.run(["git", *args], cwd=cwd, capture_output=True, timeout=60,
-                              env={**os.environ, "GIT_OPTIONAL_LOCKS": "0"})
+        return subprocess.run(["git", *_SAFE_GIT, *args], cwd=cwd, capture_output=True, timeout=60,
+                              stdin=subprocess.DEVNULL, env=env)
     except FileNotFoundError as exc:
         raise GitError("git is not installed") from exc
     except subprocess.TimeoutExpired as exc:
@@ -88,7 +100,6 @@ class Git:
 
     _tops: dict[str, str | None] = field(default_factory=dict)
     _revs: dict[tuple[str, str], str | None] = field(default_factory=dict)
-    _staged: dict[str, set[str]] = field(default_factory=dict)
 
     def toplevel(self, directory: str) -> str | None:
         """The work tree containing `directory`, or None outside git."""
@@ -108,18 +119,11 @@ class Git:
             self._revs[(top, rev)] = r.stdout.decode().strip() if r.returncode == 0 else None
         return self._revs[(top, rev)]
 
-    def staged(self, top: str) -> set[str]:
-        """Real paths of the files staged in the index."""
-        if top not in self._staged:
-            r = git_run(["diff", "--cached", "--name-only", "-z"], top)
-            names = r.stdout.decode("utf-8", "replace").split("\0") if r.returncode == 0 else []
-            self._staged[top] = {os.path.realpath(os.path.join(top, n)) for n in names if n}
-        return self._staged[top]
-
     def show(self, top: str, commit: str, path: str) -> str | None:
         """The file's text at `commit`, or None when it did not exist there."""
         rel = os.path.relpath(os.path.realpath(path), top).replace(os.sep, "/")
-        r = git_run(["show", f"{commit}:{rel}"], top)
+        # cat-file, not show: show may run the repository's textconv filters
+        r = git_run(["cat-file", "blob", f"{commit}:{rel}"], top)
         if r.returncode != 0:
             return None
         return r.stdout.decode("utf-8", errors="replace")
@@ -137,12 +141,13 @@ def staged_sources(git: Git) -> list[str]:
     return [os.path.relpath(os.path.join(top, n)) for n in names]
 
 
-def baseline_rev(given: str | None, budgets: Budgets, path: str, git: Git) -> tuple[str | None, str]:
-    """The revision to compare `path` with, and where it came from: 'cli', 'config' or 'default'.
+def baseline_rev(given: str | None, budgets: Budgets, staged: bool = False) -> tuple[str | None, str]:
+    """The revision to compare a file with, and where it came from: 'cli', 'config' or 'default'.
 
     The command line wins, then `baseline` in [tool.tripcount], then the
-    defaults: under pre-push the remote's revision, under pre-commit (or for
-    a file staged in git) HEAD; otherwise no baseline.
+    defaults: under pre-push the remote's revision, under pre-commit or when
+    checking the staged files (`staged`: `check` without files) HEAD;
+    otherwise no baseline, and git is not run at all.
     """
     if given:
         rev = given
@@ -151,10 +156,7 @@ def baseline_rev(given: str | None, budgets: Budgets, path: str, git: Git) -> tu
         return (None, "config") if budgets.baseline.lower() == "none" else (budgets.baseline, "config")
     if os.environ.get("PRE_COMMIT_FROM_REF"):  # pre-push: compare with what the remote has
         return os.environ["PRE_COMMIT_FROM_REF"], "default"
-    if os.environ.get("PRE_COMMIT"):  # pre-commit checks staged files
-        return "HEAD", "default"
-    top = git.toplevel(os.path.dirname(os.path.abspath(path)))
-    if top is not None and os.path.realpath(path) in git.staged(top):
+    if os.environ.get("PRE_COMMIT") or staged:  # pre-commit checks staged files
         return "HEAD", "default"
     return None, "default"
 

@@ -39,7 +39,7 @@ from tripcount.gate.diagnostics import BaselineUnavailable
 from tripcount.gate.findings import findings_for
 from tripcount.gate.readings import summaries_of
 from tripcount.ir import Span
-from tripcount.sources import collect_paths
+from tripcount.sources import collect_paths, refusal
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 
@@ -55,8 +55,10 @@ class FileCheck:
     at: dict[str, int] = field(default_factory=dict)
 
 
-def check_file(path: str, given: CommandLine, git: Git, use_cache: bool, baseline: str | None = None) -> FileCheck:
-    """Analyze one file, hold it against its budgets and its baseline (`baseline`: --baseline)."""
+def check_file(path: str, given: CommandLine, git: Git, use_cache: bool, baseline: str | None = None,
+               staged: bool = False) -> FileCheck:
+    """Analyze one file, hold it against its budgets and its baseline (`baseline`: --baseline;
+    `staged`: the file was found staged in git, so HEAD is the default baseline)."""
     from tripcount.cache import analyze_file_cached, read_source
 
     config = load_config(path)
@@ -71,7 +73,7 @@ def check_file(path: str, given: CommandLine, git: Git, use_cache: bool, baselin
     nests = summaries_of(result)
     findings: list[Diagnostic] = []
     pairs: list[tuple[NestSummary, NestSummary]] = []
-    rev, origin = baseline_rev(baseline, budgets, path, git)
+    rev, origin = baseline_rev(baseline, budgets, staged)
     if rev is not None:
         old_nests, problem = baseline_nests(path, rev, origin, git, options, use_cache)
         if problem:
@@ -90,7 +92,8 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
     given = CommandLine.of(vars(args))
     git = Git()
     paths = list(getattr(args, "paths", []) or [])
-    if not paths:
+    staged = not paths
+    if staged:
         paths = staged_sources(git)
         if not paths:
             stderr.write("tripcount check: nothing to check (give C files, or stage some in git)\n")
@@ -100,11 +103,15 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
         stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
         return EXIT_USAGE
     files = collect_paths(paths)
+    refused = refusal(getattr(args, "output", None), paths)
+    if refused:
+        stderr.write(f"tripcount: error: {refused}\n")
+        return EXIT_USAGE
     checks: list[FileCheck] = []
     status = EXIT_OK
     for path in files:
         try:
-            checks.append(check_file(path, given, git, use_cache, getattr(args, "baseline", None)))
+            checks.append(check_file(path, given, git, use_cache, getattr(args, "baseline", None), staged))
         except OSError as exc:
             stderr.write(f"tripcount: error: cannot read {path}: {exc.strerror or exc}\n")
             status = EXIT_USAGE
