@@ -46,8 +46,9 @@ def test_cache_directory_precedence(monkeypatch, tmp_path):
 def test_store_round_trip_corruption_and_clear(cache_dir):
     st = cache.Store()
     assert st.get("nest", "ab" * 20) is None
-    st.put("nest", "ab" * 20, {"nest": {"x": 1}})
-    assert st.get("nest", "ab" * 20)["nest"] == {"x": 1}
+    entry = {"nest": None, "diagnostics": [], "anchors": [], "wide": False}
+    st.put("nest", "ab" * 20, entry)
+    assert st.get("nest", "ab" * 20) == {**entry, "key": "ab" * 20}
     path = cache_dir / "v1" / "nest" / "ab" / ("ab" * 20 + ".json")
     assert path.is_file()
     assert not [p for p in path.parent.iterdir() if p.name.startswith(".tmp-")]  # no temporary left
@@ -59,7 +60,8 @@ def test_store_round_trip_corruption_and_clear(cache_dir):
     out = io.StringIO()
     assert cache.run_cache_command("info", out) == 0
     assert "file" in out.getvalue() and str(cache_dir) in out.getvalue()
-    (cache_dir / "grammar-0123.lark").write_bytes(b"tables")  # the compiled grammar goes too
+    (cache_dir / "grammar-0123.json").write_bytes(b"tables")  # the compiled grammar goes too
+    (cache_dir / "grammar-0123.lark").write_bytes(b"tables")  # and that of older versions
     (cache_dir / "mine.txt").write_text("not ours")
     out = io.StringIO()
     assert cache.run_cache_command("clear", out) == 0
@@ -80,7 +82,7 @@ def test_prune_removes_least_recently_used(cache_dir):
     st = cache.Store()
     for k in range(10):
         key = f"{k:02d}" * 20
-        st.put("nest", key, {"payload": "x" * 10_000})
+        st.put("nest", key, {"nest": None, "diagnostics": [], "anchors": [], "wide": False, "pad": "x" * 10_000})
         p = cache_dir / "v1" / "nest" / key[:2] / (key + ".json")
         os.utime(p, (1_000_000 + k, 1_000_000 + k))  # entry k used at time k
     assert st.prune(max_bytes=10**9) == 0
@@ -97,7 +99,7 @@ def test_prune_removes_least_recently_used(cache_dir):
 def _writer(args):
     root, n = args
     st = cache.Store(root=root)
-    big = {"payload": "x" * 200_000}
+    big = {"nest": None, "diagnostics": [], "anchors": [], "wide": False, "payload": "x" * 200_000}
     for k in range(n):
         st.put("nest", "77" * 20, {**big, "k": k})
         got = st.get("nest", "77" * 20)
@@ -308,3 +310,55 @@ def test_an_entry_without_its_summary_is_a_miss(tmp_path):
                 json.dump(e, f)
     shutil.rmtree(os.path.join(st.root, "file"), ignore_errors=True)
     assert cache.analyze_file_cached("t.c", TIDE, o, store=st) == first
+
+
+# --------------------------------------------------------------------------
+# Damaged entries that still parse as JSON
+
+
+ROBUST = Path(__file__).parent / "inputs" / "robustness"
+
+DAMAGE = {
+    "deep": lambda e: "[" * 100_000,  # json.load: RecursionError
+    "key only": lambda e: json.dumps({"key": e["key"]}),  # used to make every nest vanish
+    "nest of the wrong type": lambda e: json.dumps({**e, "nest": [1, 2]}),
+    "summary of the wrong type": lambda e: json.dumps({**e, "summary": "x"}),
+    "summary with bad fields": lambda e: json.dumps({**e, "summary": {**e["summary"], "loops": [{"index": "x"}]}}),
+    "anchors not numbers": lambda e: json.dumps({**e, "anchors": ["a", None]}),
+    "anchors too many": lambda e: json.dumps({**e, "anchors": e["anchors"] + [1, 1]}),
+    "diagnostics not a list": lambda e: json.dumps({**e, "diagnostics": {"line": 1}}),
+    "diagnostic without a position": lambda e: json.dumps({**e, "diagnostics": [{"code": "TC301"}]}),
+    "no nest but a summary": lambda e: json.dumps({**e, "nest": None}),
+}
+
+
+@pytest.mark.parametrize("damage", sorted(DAMAGE))
+def test_damaged_nest_entries_are_misses(cache_dir, run_cli, damage):
+    src = str(ROBUST / "tide_gauge_cache.c")
+    status, clean, _ = run_cli("check", "--format", "json", "--no-cache", src)
+    assert status == 0 and len(json.loads(clean)["files"][0]["nests"]) == 2
+    assert run_cli("check", "--format", "json", src)[1] == clean  # fills the cache
+    entries = sorted((cache_dir / "v1" / "nest").rglob("*.json"))
+    assert len(entries) == 2
+    for p in entries:
+        p.write_text(DAMAGE[damage](json.loads(p.read_text())))
+    for p in (cache_dir / "v1" / "file").rglob("*.json"):
+        p.unlink()  # the whole-file entry would answer before the nest entries are read
+    status, out, err = run_cli("check", "--format", "json", src)
+    assert status == 0, err
+    assert "TC9" not in out and "internal error" not in err
+    assert out == clean  # both nests, as computed afresh
+    status, _, err = run_cli("check", src)
+    assert status == 0 and "2 nest(s)" in err
+
+
+def test_damaged_file_entries_are_misses(cache_dir, run_cli):
+    src = str(ROBUST / "tide_gauge_cache.c")
+    clean = run_cli("check", "--format", "json", src)[1]
+    (entry,) = sorted((cache_dir / "v1" / "file").rglob("*.json"))
+    e = json.loads(entry.read_text())
+    for bad in ({"key": e["key"]}, {**e, "file": {**e["file"], "nests": []}},
+                {**e, "file": {**e["file"], "summaries": [{"loops": 5}] * 2}}, "[" * 100_000):
+        entry.write_text(bad if isinstance(bad, str) else json.dumps(bad))
+        status, out, _ = run_cli("check", "--format", "json", src)
+        assert status == 0 and out == clean and "TC9" not in out

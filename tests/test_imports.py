@@ -36,7 +36,7 @@ STAGES: list[set[str]] = [
     {"analysis"},
     {"report"},
     {"pipeline", "compdb"},
-    {"cache"},
+    {"cache", "cacheentry"},
     {"gate", "cli", "lsp", "__main__"},
 ]
 

@@ -41,6 +41,7 @@ from dataclasses import dataclass, field
 from typing import Any, TextIO
 
 from tripcount import __version__
+from tripcount.cacheentry import SLICE, valid_entry
 from tripcount.compdb import source_inputs
 from tripcount.options import Options
 from tripcount.paths import cache_dir
@@ -130,10 +131,10 @@ class Store:
         try:
             with open(self._path(kind, key), encoding="utf-8") as f:
                 data = json.load(f)
-        except (OSError, ValueError):
+        except (OSError, ValueError, RecursionError):  # RecursionError: hostile nesting depth
             self.misses += 1
             return None
-        if not isinstance(data, dict) or data.get("key") != key:
+        if not isinstance(data, dict) or data.get("key") != key or not valid_entry(kind, data):
             self.misses += 1
             return None
         self.hits += 1
@@ -554,9 +555,6 @@ def _remap_json(data: Any, remap: _Remap) -> Any:
     return out
 
 
-SLICE = "__source_slice__"
-
-
 def _slices_out(nest: dict[str, Any], toks: Tokens) -> dict[str, Any]:
     """The nest JSON with statement texts replaced by the source range they were cut from.
 
@@ -625,9 +623,14 @@ def _entry_anchors(toks: Tokens, region: list[int], outside: list[int], lo: int,
     return {"anchors": _anchor_positions(toks, anchors), "wide": wide}
 
 
-def _entry_remap(entry: dict[str, Any], toks: Tokens, region: list[int], outside: list[int]) -> _Remap:
+def _entry_remap(entry: dict[str, Any], toks: Tokens, region: list[int], outside: list[int]) -> _Remap | None:
+    """The position map of an entry, or None when its anchors do not fit the
+    tokens it is keyed by (a damaged entry: a miss)."""
     anchors = region + outside if entry.get("wide") else region
-    return _Remap(entry.get("anchors", []), toks, anchors)
+    old = entry.get("anchors", [])
+    if old and len(old) != 2 * len(anchors):
+        return None
+    return _Remap(old, toks, anchors)
 
 
 def _span_of(d: dict[str, Any], toks: Tokens) -> tuple[int, int]:
@@ -757,21 +760,22 @@ def _assemble(layout: Layout, store: Store) -> tuple[list, list, list, bool] | N
     out_entry = store.get("out", layout.outside_key)
     if out_entry is None:
         return None
+    remaps = [_entry_remap(e, toks, s.anchors, layout.outside) for s, e in entries]
+    fn_remaps = [_entry_remap(e, toks, list(range(*toks.range(a, b))), layout.outside) for a, b, e in fn_entries]
+    out_remap = _entry_remap(out_entry, toks, layout.outside, [])
+    if out_remap is None or None in remaps or None in fn_remaps:
+        return None
     nests: list[dict[str, Any]] = []
     summaries: list[dict[str, Any]] = []
     diags: list[dict[str, Any]] = list(layout.parse_diagnostics)
-    for s, e in entries:
-        remap = _entry_remap(e, toks, s.anchors, layout.outside)
+    for (_s, e), remap in zip(entries, remaps, strict=True):
         if e.get("nest") is not None:
             nests.append(_slices_in(_remap_json(e["nest"], remap), toks))
             summaries.append(_slices_in(_remap_json(e["summary"], remap), toks))
         diags.extend(_remap_json(e.get("diagnostics", []), remap))
-    for a, b, e in fn_entries:
-        i, j = toks.range(a, b)
-        remap = _entry_remap(e, toks, list(range(i, j)), layout.outside)
+    for (_a, _b, e), remap in zip(fn_entries, fn_remaps, strict=True):
         diags.extend(_remap_json(e.get("diagnostics", []), remap))
-    remap = _Remap(out_entry.get("anchors", []), toks, layout.outside)
-    diags.extend(_remap_json(out_entry.get("diagnostics", []), remap))
+    diags.extend(_remap_json(out_entry.get("diagnostics", []), out_remap))
     return nests, summaries, diags, True
 
 
@@ -815,11 +819,11 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
     for k, nest in enumerate(nests):
         site = by_pos.get((nest.span.line, nest.span.column))
         cached = store.get("nest", site.key) if site is not None else None
-        if not _usable_nest_entry(cached):
+        remap = _entry_remap(cached, toks, site.anchors, layout.outside) if _usable_nest_entry(cached) else None
+        if remap is None:
             found.append(None)
             todo.append(k)
             continue
-        remap = _entry_remap(cached, toks, site.anchors, layout.outside)
         nj = sj = None
         if cached.get("nest") is not None:
             nj = _slices_in(_remap_json(cached["nest"], remap), toks)
