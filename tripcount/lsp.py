@@ -442,6 +442,64 @@ def make_server() -> Any:
                 except Exception:  # refresh is a courtesy
                     pass
 
+        def start_io(self, stdin: Any = None, stdout: Any = None) -> None:
+            """Serve LSP frames from `stdin` (lspframes: malformed frames are skipped
+            with a warning on stderr, never a crash or a silent stall) until `exit`
+            or end of input."""
+            import sys
+            import threading
+
+            from pygls.io_ import StdoutWriter
+
+            self._stop_event = threading.Event()
+            self.protocol.set_writer(StdoutWriter(stdout or sys.stdout.buffer))
+            try:
+                asyncio.run(self._serve_frames(stdin or sys.stdin.buffer))
+            except BrokenPipeError:
+                log.error("the client closed the connection")
+            except (KeyboardInterrupt, SystemExit):
+                pass
+            finally:
+                self.shutdown()
+
+        async def _serve_frames(self, stdin: Any) -> None:
+            import json
+            import threading
+
+            from tripcount.lspframes import frames
+
+            loop = asyncio.get_running_loop()
+            inbox: asyncio.Queue[bytes | None] = asyncio.Queue()
+
+            try:  # a private reader: interpreter shutdown must not wait on the lock of sys.stdin
+                stream = open(os.dup(stdin.fileno()), "rb")  # noqa: SIM115 - lives as long as the process
+            except (AttributeError, OSError, ValueError):
+                stream = stdin
+
+            def pump() -> None:  # a blocking reader on its own thread; the loop stays free
+                try:
+                    for body in frames(stream, log.warning):
+                        loop.call_soon_threadsafe(inbox.put_nowait, body)
+                except Exception:  # noqa: BLE001 - a read error ends the input, never the process silently
+                    log.exception("reading the client's messages failed")
+                finally:
+                    loop.call_soon_threadsafe(inbox.put_nowait, None)
+
+            threading.Thread(target=pump, name="tripcount-lsp-input", daemon=True).start()
+            while not self._stop_event.is_set():
+                body = await inbox.get()
+                if body is None:
+                    log.warning("end of input: the server stops")
+                    break
+                try:
+                    self.protocol.handle_message(json.loads(body, object_hook=self.protocol.structure_message))
+                except (ValueError, RecursionError) as exc:
+                    log.warning("message skipped: %s", exc)
+                    self.report_server_error(exc, JsonRpcException)
+                except Exception as exc:  # noqa: BLE001 - one bad message must not stop the server
+                    log.exception("unable to handle a message")
+                    self.report_server_error(exc, JsonRpcException)
+
         async def current(self, uri: str) -> Analysis | None:
             """The latest analysis; before the first one, waits (boundedly) for it."""
             if uri not in self.analyses:

@@ -141,3 +141,32 @@ def test_server_survives_malformed_messages_then_answers_a_hover(tmp_path):
     finally:
         status = client.close()
     assert status is not None, "the server did not exit after shutdown/exit"
+
+
+BAD_FRAMES = {
+    "length 10^20": b"Content-Length: 100000000000000000000\r\n\r\n{}",
+    "length 2^63-1": b"Content-Length: 9223372036854775807\r\n\r\n{}",
+    "length 3,000,000,000": b"Content-Length: 3000000000\r\n\r\n{}",
+    "length not a number": b"Content-Length: abc\r\n\r\n{}",
+    "extra body bytes": frame(b"{}") + b"xyz",
+    "lower-case header": b"content-length: 2\r\n\r\n{}",
+    "LF-only line ends": b"Content-Length: 2\n\n{}",
+}
+
+
+def test_server_answers_after_each_malformed_frame(tmp_path):
+    # each used to kill the server (OverflowError) or leave it alive but deaf
+    client = _client(str(tmp_path))
+    try:
+        assert "result" in client.request("initialize", {"processId": None, "rootUri": None, "capabilities": {}},
+                                          rid=1, timeout=60)
+        for k, (name, data) in enumerate(sorted(BAD_FRAMES.items())):
+            client.send(data)
+            reply = client.request("tripcount/unknown", {}, rid=100 + k, timeout=30)
+            assert "error" in reply, name  # answered: method not found
+            assert client.proc.poll() is None, name
+    finally:
+        status = client.close()
+    assert status == 0
+    log = (tmp_path / "server.log").read_text(errors="replace")
+    assert "frame skipped" in log and "Traceback" not in log
