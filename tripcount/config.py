@@ -7,7 +7,9 @@
 
 from __future__ import annotations
 
+import math
 import os
+import re
 import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field, fields
@@ -61,10 +63,102 @@ def load_config(start: str) -> Config:
             data = tomllib.load(f)
     except (OSError, tomllib.TOMLDecodeError) as exc:
         raise ConfigError(f"{path}: cannot read configuration: {exc}") from exc
-    table = data.get("tool", {}).get("tripcount", {})
+    tool = data.get("tool", {})
+    table = tool.get("tripcount", {}) if isinstance(tool, dict) else {}
     if not isinstance(table, dict):
         raise ConfigError(f"{path}: [tool.tripcount] must be a table")
+    check_table(table, path)
     return Config(path=path, table=table)
+
+
+# --------------------------------------------------------------------------
+# The schema of [tool.tripcount]: every known key with its type and range,
+# checked when the file is loaded, so that a bad value is a clear error (file,
+# key, what was expected; exit status 2) and never an internal error later.
+# Keys not listed here are left alone (they may belong to a newer version).
+
+
+def _is_int(v: Any) -> bool:
+    return isinstance(v, int) and not isinstance(v, bool)
+
+
+def _is_number(v: Any) -> bool:
+    return (_is_int(v) or isinstance(v, float)) and math.isfinite(v)
+
+
+def _int_in(lo: int, hi: int) -> tuple[Any, str]:
+    return (lambda v: _is_int(v) and lo <= v <= hi), f"an integer from {lo} to {hi}"
+
+
+def _size_ok(v: Any) -> bool:
+    try:
+        return parse_bytes(v) > 0
+    except (ValueError, TypeError):
+        return False
+
+
+def _sizes_ok(v: Any) -> bool:
+    if isinstance(v, str):
+        try:
+            parse_sizes(v)
+        except ValueError:
+            return False
+        return True
+    return isinstance(v, dict) and all(isinstance(k, str) and (k.isidentifier() or k == "*") and _is_int(x)
+                                       for k, x in v.items())
+
+
+def _strings_ok(v: Any) -> bool:
+    return isinstance(v, str) or (isinstance(v, list) and all(isinstance(x, str) for x in v))
+
+
+_AT_LEAST_ONE = (lambda v: _is_number(v) and v >= 1, "a number >= 1")
+_POSITIVE = (lambda v: _is_number(v) and v > 0, "a number > 0")
+SCHEMA: dict[str, tuple[Any, str]] = {
+    "at": (_sizes_ok, 'a table of sizes ({ N = 1024 }) or a text ("N=1024, M=768")'),
+    "assume": (_strings_ok, "a text or a list of texts ('N >= 16, M >= N')"),
+    "caches": (lambda v: isinstance(v, dict) and all(isinstance(k, str) and re.fullmatch(r"[Ll][1-9]", k)
+                                                      and _size_ok(x) for k, x in v.items()),
+               'a table of cache levels L1..L9 to positive sizes ({ L1 = "48KiB", L2 = 2097152 })'),
+    "line_size": _int_in(1, 1 << 20),
+    "threads": _int_in(1, 1 << 16),
+    "imbalance_threshold": _AT_LEAST_ONE,
+    "time_limit": (lambda v: _is_number(v) and 0 < v <= 86400, "a number of seconds > 0 (at most 86400)"),
+    "max_pieces": _int_in(1, 1 << 20),
+    "elem_size": _int_in(1, 1 << 16),
+    "solve_for": (lambda v: isinstance(v, str) and v.isidentifier(), "a parameter name"),
+    "work": (lambda v: v in ("statements", "flops"), '"statements" or "flops"'),
+    "parallel": (lambda v: isinstance(v, list) and all(_is_int(x) and x >= 1 for x in v), "a list of line numbers"),
+    "peak_gflops": _POSITIVE,
+    "bandwidth_gbs": _POSITIVE,
+    "max_degree": _int_in(0, 1 << 10),
+    "max_working_set": (lambda v: (isinstance(v, str) and (re.fullmatch(r"\s*[Ll][1-9]\s*", v) is not None
+                                                           or _size_ok(v))) or (_is_int(v) and v > 0),
+                        'a cache level name ("L2") or a size ("256KiB")'),
+    "max_imbalance": _AT_LEAST_ONE,
+    "max_leading_growth": _AT_LEAST_ONE,
+    "baseline": (lambda v: isinstance(v, str), "a git revision"),
+}
+
+
+def check_table(table: Mapping[str, Any], path: str | None) -> None:
+    """Raise ConfigError for the first known key of `table` (and of its
+    [[tool.tripcount.override]] tables) whose value has the wrong type or range."""
+    def one(t: Mapping[str, Any], where: str) -> None:
+        for key, (ok, want) in SCHEMA.items():
+            if key in t and not ok(t[key]):
+                raise ConfigError(f"{path}: {where}{key} must be {want}, got {_shown(t[key])}")
+
+    one(table, "[tool.tripcount] ")
+    overrides = table.get("override", [])
+    for k, ov in enumerate(overrides if isinstance(overrides, list) else [overrides]):
+        if isinstance(ov, dict):
+            one(ov, f"[[tool.tripcount.override]] #{k + 1}: ")
+
+
+def _shown(v: Any) -> str:
+    text = repr(v)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def parse_sizes(text: str) -> dict[str, int]:
@@ -92,14 +186,22 @@ UNITS = {"": 1, "b": 1, "k": 1024, "kb": 1024, "kib": 1024, "m": 1024**2, "mb": 
 
 def parse_bytes(text: str | int) -> int:
     """Parse a size such as 48KiB, 2 MiB, 32768."""
-    if isinstance(text, int):
-        return text
-    s = str(text).strip().lower().replace(" ", "")
+    if _is_int(text):
+        if text <= 0:  # type: ignore[operator]
+            raise ValueError(f"a size must be positive, got {text}")
+        return text  # type: ignore[return-value]
+    if not isinstance(text, str):
+        raise ValueError(f"cannot read size {text!r} (use e.g. 48KiB, 2MiB, 32768)")
+    s = text.strip().lower().replace(" ", "")
     num = s.rstrip("abcdefghijklmnopqrstuvwxyz")
     unit = s[len(num):]
-    if unit not in UNITS or not num:
+    try:
+        value = float(num) * UNITS[unit] if num else math.nan
+    except (KeyError, ValueError):
+        value = math.nan
+    if not (math.isfinite(value) and 1 <= value <= 1 << 60):
         raise ValueError(f"cannot read size '{text}' (use e.g. 48KiB, 2MiB, 32768)")
-    return int(float(num) * UNITS[unit])
+    return int(value)
 
 
 @dataclass(frozen=True)
@@ -222,4 +324,8 @@ def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), 
     )
     if not (0 < o.time_limit < float("inf")) or o.max_pieces <= 0:
         raise UsageError("--time-limit and --max-pieces must be positive")
+    for flag, value in (("--threads", given.threads), ("--line-size", given.line_size),
+                        ("--elem-size", given.elem_size)):
+        if value is not None and value <= 0:
+            raise UsageError(f"{flag} must be positive, got {value}")
     return o
