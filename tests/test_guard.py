@@ -3,11 +3,13 @@
 
 from __future__ import annotations
 
+import os
 import threading
 import time
 
 import islpy as isl
 import pytest
+from conftest import INPUTS
 
 from tripcount import guard, pipeline
 from tripcount.options import Options
@@ -260,3 +262,29 @@ def test_count_points_counts_under_the_budget_and_without():
     assert guard.count_points(tri) == 55
     with guard.nest_budget(Options(time_limit=5)):
         assert guard.count_points(tri) == 55
+
+
+def test_a_count_that_cannot_finish_is_refused_at_once(monkeypatch):
+    # 10^30 outer points: even at the fastest scan rate no time limit is enough, so
+    # no child is forked to run until the hard deadline (31 s at the default limit)
+    s = _fixed(CUBE, 10**30)
+    assert guard.scan_estimate(s) > 10**59
+
+    def no_fork() -> int:
+        raise AssertionError("a child was forked for a count that cannot finish")
+
+    monkeypatch.setattr(guard.os, "fork", no_fork)
+    with guard.nest_budget(Options(time_limit=20)) as b:
+        with pytest.raises(guard.EnumerationLimit, match="cannot finish"):
+            s.count_val()
+        assert b.enumerations_refused == 1
+
+
+def test_a_nest_with_bounds_of_10_30_is_not_stopped_by_the_hard_limit(run_cli):
+    # it used to spend the whole hard allowance in the footprint and end in TC310
+    path = os.path.join(INPUTS, "robustness", "huge_constant_bounds.c")
+    status, out, _ = run_cli("analyze", "--no-cache", "--time-limit", "2", path)
+    assert status == 0
+    assert "TC310" not in out and "TC9" not in out
+    assert "runs 1000000000000000000000000000000000000000000000000000000000000" in out
+    assert "footprint of the nest: 2 arrays" in out

@@ -60,6 +60,11 @@ FILE_TIME_FACTOR = 30  # seconds of one file's nests, in units of time_limit
 # once: 0.3 .. 25 us per outer point (measured). Up to this many outer points
 # the count runs in-process (< 0.5 s); beyond, in a child killed at the deadline.
 INLINE_SCAN_POINTS = 20_000
+# The fastest scan measured (0.3 us per outer point), rounded up: a count whose
+# scan needs longer than the time left even at this rate is refused at once,
+# instead of running in a child until the hard deadline (a nest with bounds of
+# 10^30 spent its whole hard allowance, 31 s at the default limit, there).
+MAX_SCAN_POINTS_PER_SECOND = 4_000_000
 
 QUOTA_MESSAGE = "maximal number of operations exceeded"
 DEFAULT_TIME_LIMIT = Options().time_limit  # 20 s per nest
@@ -426,6 +431,9 @@ def bounded_count_val(s: isl.Set | isl.BasicSet, original: Callable[..., Any] | 
     rows = scan_estimate(s)
     if rows is None or (0 <= rows <= INLINE_SCAN_POINTS):
         return original(s)
+    if rows > MAX_SCAN_POINTS_PER_SECOND * max(0.0, b.hard_deadline - time.monotonic()):
+        b.enumerations_refused += 1
+        raise EnumerationLimit(f"enumeration of about {rows:.3g} rows cannot finish within the time left")
     return _count_in_child(s, original, b)
 
 

@@ -86,15 +86,30 @@ def output_clash(output: str, inputs: Iterable[str]) -> str | None:
     return None
 
 
-def cache_in_tree(inputs: Iterable[str]) -> str | None:
-    """The analysed directory that holds the cache directory, or None.
+def project_root(path: str) -> str | None:
+    """The nearest directory at or above `path` holding pyproject.toml or .git
+    (found without running git), or None."""
+    here = os.path.abspath(path)
+    if not os.path.isdir(here):
+        here = os.path.dirname(here)
+    while True:
+        if os.path.exists(os.path.join(here, "pyproject.toml")) or os.path.exists(os.path.join(here, ".git")):
+            return here
+        parent = os.path.dirname(here)
+        if parent == here:
+            return None
+        here = parent
 
-    The analysed trees are the directories given and those of the files
-    given; one that holds the home directory is not a source tree (the
-    default cache lives under it)."""
+
+def cache_in_tree(inputs: Iterable[str]) -> str | None:
+    """The analysed tree that holds the cache directory, or None.
+
+    The analysed trees are the directories given and the projects (pyproject.toml
+    or .git) of the files given; one that holds the home directory is not a
+    source tree (the default cache lives under it)."""
     home = os.path.expanduser("~")
-    roots = {p if os.path.isdir(p) else os.path.dirname(os.path.abspath(p)) for p in inputs}
-    for root in sorted(roots):
+    roots = {p if os.path.isdir(p) else project_root(p) for p in inputs}
+    for root in sorted(r for r in roots if r is not None):
         if not is_inside(home, [root]) and is_inside(cache_dir(), [root]):
             return root
     return None

@@ -72,14 +72,21 @@ def test_output_that_is_an_input_is_refused(tmp_path, run_cli):
 def test_cache_directory_inside_the_analysed_tree_is_refused(tmp_path, monkeypatch, run_cli, command):
     tree = tmp_path / "harbour"
     tree.mkdir()
+    (tree / ".git").mkdir()  # a checkout (its root found without running git)
     src = tree / "k.c"
     src.write_bytes(open(FLUSH, "rb").read())
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tree / ".tc"))
     for target in (str(src), str(tree)):
         status, _, err = run_cli(command, "--format", "json", target)
         assert status == 2 and "inside the analysed tree" in err
-    assert sorted(os.listdir(tree)) == ["k.c"]  # nothing written into the tree
+    assert sorted(os.listdir(tree)) == [".git", "k.c"]  # nothing written into the tree
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "elsewhere"))
     status, _, err = run_cli(command, "--format", "json", str(src))
     assert status == 0, err
-    assert sorted(os.listdir(tree)) == ["k.c"]
+    assert sorted(os.listdir(tree)) == [".git", "k.c"]
+    # a lone file outside any project: its directory is no tree (a cache beside it is fine)
+    lone = tmp_path / "lone"
+    lone.mkdir()
+    (lone / "k.c").write_bytes(src.read_bytes())
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(lone / "cache"))
+    assert run_cli(command, "--format", "json", str(lone / "k.c"))[0] == 0
