@@ -431,10 +431,18 @@ def bounded_count_val(s: isl.Set | isl.BasicSet, original: Callable[..., Any] | 
     rows = scan_estimate(s)
     if rows is None or (0 <= rows <= INLINE_SCAN_POINTS):
         return original(s)
-    if rows > MAX_SCAN_POINTS_PER_SECOND * max(0.0, b.hard_deadline - time.monotonic()):
+    if rows > MAX_SCAN_POINTS_PER_SECOND * max(0.0, b.hard_deadline - time.monotonic()) and _box_is_tight(s):
         b.enumerations_refused += 1
         raise EnumerationLimit(f"enumeration of about {rows:.3g} rows cannot finish within the time left")
     return _count_in_child(s, original, b)
+
+
+def _box_is_tight(s: isl.Set | isl.BasicSet) -> bool:
+    """True when the scan estimate (a bounding box) can be trusted as the scan's
+    size: no existentially quantified variables (strides, modulo guards), which
+    isl's scan skips over but the box counts (by the product of the strides)."""
+    parts = s.get_basic_sets() if isinstance(s, isl.Set) else [s]
+    return all(bs.dim(isl.dim_type.div) == 0 for bs in parts)
 
 
 def count_points(s: isl.Set | isl.BasicSet) -> int:

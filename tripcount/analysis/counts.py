@@ -17,7 +17,7 @@ from typing import Any
 
 import islpy as isl
 
-from tripcount import engine
+from tripcount import engine, guard
 from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
 from tripcount.diagnostics import Diagnostic
 from tripcount.formula import piecewise_value
@@ -70,9 +70,21 @@ def context_for(s: isl.Set, context: isl.Set | None) -> isl.Set | None:
     return ctx.align_params(s.get_space().params())
 
 
+# Below this many seconds left in the nest's budget a formula is not attempted:
+# the value at the --at sizes comes from enumeration (bounded by the hard stop).
+MIN_FORMULA_S = 0.05
+
+
 def limits_of(options: Options) -> engine.Limits:
-    """Engine limits from the options."""
-    return engine.Limits(time_s=options.time_limit, max_pieces=options.max_pieces)
+    """Engine limits of one count: the nest's, and never past the time left in
+    its budget (each count used to get the whole limit, so the counts of the
+    loops could spend the nest's time and leave the statements to the hard stop,
+    with no value at all)."""
+    time_s = options.time_limit
+    b = guard.current()
+    if b is not None:
+        time_s = min(time_s, round(b.remaining(), 2))
+    return engine.Limits(time_s=time_s, max_pieces=options.max_pieces)
 
 
 def params_of(s: isl.Set) -> list[str]:
@@ -100,7 +112,10 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
               diags: list[Diagnostic]) -> Count:
     """Count a set: formula plus value, with a diagnostic and fallback on limits."""
     try:
-        formula = engine.count(s, context_for(s, nest.context), limits_of(options))
+        limits = limits_of(options)
+        if limits.time_s < MIN_FORMULA_S:
+            raise engine.EngineLimit(f"time limit of {options.time_limit:g} s per nest spent before this count")
+        formula = engine.count(s, context_for(s, nest.context), limits)
     except engine.EngineLimit as exc:
         v = None
         fallback = "values below are exact enumerations at the given sizes"
@@ -159,6 +174,13 @@ def analyze(result: NestResult, options: Options) -> None:
     """Fill in statement counts and loop trip counts of one nest."""
     nest = result.nest
     diags = result.diagnostics
+    # statements first: their counts are the main result, and they get the time first
+    for stmt in nest.statements:
+        if stmt.domain is None:
+            result.statements.append(StatementResult(stmt, Count(note="count unknown (refused)")))
+            continue
+        c = count_set(stmt.domain, nest, options, f"statement {stmt.id}", stmt.span, diags)
+        result.statements.append(StatementResult(stmt, c))
     for loop in nest.loops:
         if loop.domain is None:
             result.loops.append(LoopResult(loop, Count(note="trip count unknown (refused)")))
@@ -172,7 +194,10 @@ def analyze(result: NestResult, options: Options) -> None:
             ctx = context_for(local, nest.context)
             reach = reach if ctx is None else reach.intersect(ctx)
             try:
-                pw = engine.count(local, reach.coalesce(), limits_of(options))
+                limits = limits_of(options)
+                if limits.time_s < MIN_FORMULA_S:
+                    raise engine.EngineLimit("no time left")
+                pw = engine.count(local, reach.coalesce(), limits)
                 per_entry = Count(value=None, formula=pw)
                 per_entry.locate(middle_point(reach, loop.depth, options))
             except engine.EngineLimit:
@@ -180,12 +205,6 @@ def analyze(result: NestResult, options: Options) -> None:
         else:
             per_entry = Count(value=trips.value, formula=trips.formula)
         result.loops.append(LoopResult(loop, trips, per_entry))
-    for stmt in nest.statements:
-        if stmt.domain is None:
-            result.statements.append(StatementResult(stmt, Count(note="count unknown (refused)")))
-            continue
-        c = count_set(stmt.domain, nest, options, f"statement {stmt.id}", stmt.span, diags)
-        result.statements.append(StatementResult(stmt, c))
     if options.verify:
         verify(result, options)
 
