@@ -37,7 +37,7 @@ STAGES: list[set[str]] = [
     {"report"},
     {"pipeline", "compdb"},
     {"cache", "cacheentry"},
-    {"gate", "cli", "lsp", "lspframes", "__main__"},
+    {"gate", "cli", "lsp", "lspframes", "lspworker", "__main__"},
 ]
 
 

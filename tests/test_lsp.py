@@ -332,3 +332,51 @@ def test_the_editor_reports_unknown_suppression_kinds_like_the_gate(tmp_path, pr
     (tmp_path / "f.c").write_text(text)
     a = lsp.analyze_document(str(tmp_path / "f.c"), text)
     assert [(f["code"], f["line"]) for f in a.findings] == [("TC620", 2)]
+
+
+HARD5 = Path(__file__).parent / "inputs" / "robustness" / "hard5_strides.c"
+
+
+def _wire_open(s: WireClient, uri: str, text: str, version: int = 1) -> None:
+    s.send(message({"jsonrpc": "2.0", "method": "textDocument/didOpen",
+                    "params": {"textDocument": {"uri": uri, "languageId": "c", "version": version, "text": text}}}))
+
+
+@needs_pipeline
+def test_a_superseded_analysis_is_stopped_and_exit_is_prompt(tmp_path):
+    # analyses run in a child process the server can kill: a hard nest under a
+    # long limit used to run to its end on a thread, with every other document and
+    # `exit` waiting behind it
+    (tmp_path / "pyproject.toml").write_text("[tool.tripcount]\ntime_limit = 600\nat = {N = 300, M = 200, P = 250}\n")
+    cache = tmp_path / "cache"
+    s = WireClient({**ENV, "TRIPCOUNT_CACHE_DIR": str(cache)}, cwd=str(tmp_path))
+    try:
+        assert "result" in s.request("initialize", {"processId": None, "rootUri": None, "capabilities": {}},
+                                     timeout=60)
+        s.notify("initialized", {})
+        uri = (tmp_path / "buoy.c").as_uri()
+        _wire_open(s, uri, HARD5.read_text())
+        time.sleep(3)  # the hard analysis is under way
+        easy = "void f(int N, double *a) {\n  for (int i = 0; i < N; i++)\n    a[i] = 0;\n}\n"
+        s.notify("textDocument/didChange", {"textDocument": {"uri": uri, "version": 2},
+                                            "contentChanges": [{"text": easy}]})
+        published = s.wait(lambda m: m.get("method") == "textDocument/publishDiagnostics"
+                           and m["params"].get("version") == 2, timeout=60)
+        assert published["params"]["uri"] == uri
+        hover = s.request("textDocument/hover", {"textDocument": {"uri": uri},
+                                                 "position": {"line": 1, "character": 4}}, timeout=30)
+        assert "loop `i`" in hover["result"]["contents"]["value"]
+        # a hard analysis again, then exit at once: the child is killed, not awaited
+        s.notify("textDocument/didChange", {"textDocument": {"uri": uri, "version": 3},
+                                            "contentChanges": [{"text": HARD5.read_text()}]})
+        time.sleep(2)
+        start = time.monotonic()
+        s.send(message({"jsonrpc": "2.0", "id": "bye", "method": "shutdown"}))
+        s.reply("bye", timeout=30)
+        s.send(message({"jsonrpc": "2.0", "method": "exit"}))
+        assert s.proc.wait(timeout=30) == 0
+        assert time.monotonic() - start < 30
+    finally:
+        if s.proc.poll() is None:
+            s.proc.kill()
+            s.proc.wait()

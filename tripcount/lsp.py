@@ -6,9 +6,10 @@
 # formula, its value at the configured sizes, the working set and the
 # thread balance; an inlay hint after each loop header gives its trip count.
 #
-# Analyses go through the result cache and run on one worker thread, so the
-# event loop keeps answering (hover reads the last finished analysis) and
-# islpy is never entered from two threads. Positions: ours are 1-based with
+# Analyses go through the result cache and run in one child process
+# (lspworker: stopped when a newer version supersedes it, at exit, and by the
+# per-nest hard stop, which works there), so the event loop keeps answering
+# (hover reads the last finished analysis). Positions: ours are 1-based with
 # an exclusive end, in code points; LSP's are 0-based, in the code units of
 # the negotiated position encoding (UTF-16 unless the client offers more).
 #
@@ -34,11 +35,13 @@ from tripcount.analysis.summary import (
     StatementSummary,
     WorkingSetSummary,
 )
+from tripcount.lspworker import Worker
 
 log = logging.getLogger("tripcount.lsp")
 
 DEBOUNCE_S = 0.3
 MAX_LIVE_CHARS = 2 * 1024 * 1024  # larger documents are not analyzed while typing
+MAX_DOCUMENTS = 256  # analyses kept for hover; past it the least recently analysed are dropped
 SEVERITY = {"error": 1, "warning": 2, "note": 3}  # lsprotocol DiagnosticSeverity values
 
 
@@ -371,7 +374,10 @@ def make_server() -> Any:
             self.analyses: dict[str, Analysis] = {}
             self.timers: dict[str, asyncio.Task[Any]] = {}
             self.active: dict[str, asyncio.Task[Any]] = {}  # the latest scheduled analysis of each document
+            # one thread waits on the analysis child (lspworker) while the loop keeps answering
             self.pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="tripcount-analysis")
+            self.worker = Worker(_safe_analyze)
+            self.running: str | None = None  # the document being analysed
 
         def encoding(self) -> str:
             try:
@@ -401,7 +407,9 @@ def make_server() -> Any:
             """Analyze `uri` after `delay` seconds unless another change comes first (the debounce)."""
             old = self.timers.pop(uri, None)
             if old is not None:
-                old.cancel()  # only waiting timers are in `timers`; a started analysis runs to its end
+                old.cancel()  # only waiting timers are in `timers`
+            if self.running == uri:
+                self.worker.cancel()  # the running analysis of an older version is superseded
             task = asyncio.ensure_future(self._later(uri, delay, force))
             self.timers[uri] = self.active[uri] = task
 
@@ -428,11 +436,14 @@ def make_server() -> Any:
                 self.publish(uri, lsp_diagnostics(prev, self.encoding()), version)
                 return
             loop = asyncio.get_running_loop()
-            a = await loop.run_in_executor(self.pool, _safe_analyze, _path_of(uri), text)
+            a = await loop.run_in_executor(self.pool, self._analyze, uri, text)
             now = self.text_of(uri)
-            if now is None:  # closed meanwhile
+            if a is None or now is None:  # superseded, stopped, or closed meanwhile
                 return
+            self.analyses.pop(uri, None)
             self.analyses[uri] = a  # kept for hover even when the text moved on
+            while len(self.analyses) > MAX_DOCUMENTS:  # the least recently analysed go first
+                self.analyses.pop(next(iter(self.analyses)))
             if now[0] == text:  # still the current text: its diagnostics hold
                 self.publish(uri, lsp_diagnostics(a, self.encoding()), version)
                 try:
@@ -441,6 +452,20 @@ def make_server() -> Any:
                         self.workspace_inlay_hint_refresh(None)
                 except Exception:  # refresh is a courtesy
                     pass
+
+        def _analyze(self, uri: str, text: str) -> Analysis | None:
+            self.running = uri
+            try:
+                return self.worker.run(_path_of(uri), text)
+            finally:
+                self.running = None
+
+        def shutdown(self) -> None:
+            """Stop the analysis child at once (exit must not wait for an analysis), then pygls'."""
+            self.worker.cancel()
+            self.pool.shutdown(wait=False, cancel_futures=True)
+            super().shutdown()
+            self.worker.stop()
 
         def start_io(self, stdin: Any = None, stdout: Any = None) -> None:
             """Serve LSP frames from `stdin` (lspframes: malformed frames are skipped
