@@ -28,7 +28,7 @@ KNOWN_CYCLES: list[frozenset[str]] = []
 # module may import modules of its own rank or lower. Rank 0 holds what every
 # stage may use.
 STAGES: list[set[str]] = [
-    {"", "ir", "diagnostics", "ctable", "paths", "options", "config", "sources", "formula"},
+    {"", "ir", "diagnostics", "ctable", "paths", "options", "config", "sources", "formula", "names"},
     {"frontend"},
     {"affine"},
     {"model"},

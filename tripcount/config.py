@@ -15,6 +15,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field, fields
 from typing import Any
 
+from tripcount.names import mangle
 from tripcount.options import Options
 
 
@@ -162,7 +163,8 @@ def _shown(v: Any) -> str:
 
 
 def parse_sizes(text: str) -> dict[str, int]:
-    """Parse `N=64,M=32` (also spaces or ';' as separators)."""
+    """Parse `N=64,M=32` (also spaces or ';' as separators); names as the model
+    knows them (names.mangle: `ñ` is the parameter the model made of ñ)."""
     out: dict[str, int] = {}
     for part in text.replace(";", ",").replace(" ", ",").split(","):
         part = part.strip()
@@ -174,7 +176,7 @@ def parse_sizes(text: str) -> dict[str, int]:
         if not (name.isidentifier() or name == "*"):
             raise ValueError(f"'{name}' is not a parameter name")
         try:
-            out[name] = int(value, 0)
+            out[name if name == "*" else mangle(name)] = int(value, 0)
         except ValueError:
             raise ValueError(f"value of {name} must be an integer, got '{value}'") from None
     return out
@@ -285,7 +287,7 @@ def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), 
         if isinstance(cfg_at, str):
             at.update(parse_sizes(cfg_at))
         elif isinstance(cfg_at, dict):
-            at.update({str(k): int(v) for k, v in cfg_at.items()})
+            at.update({str(k) if k == "*" else mangle(str(k)): int(v) for k, v in cfg_at.items()})
         for text in given.at:
             at.update(parse_sizes(text))
     except (ValueError, TypeError) as exc:

@@ -6,6 +6,7 @@ import re
 
 from tripcount import ir
 from tripcount.ir import Span, c_text
+from tripcount.names import mangle
 
 # --------------------------------------------------------------------------
 # C text of IR expressions and statements (messages, display, hashing)
@@ -73,27 +74,7 @@ def loop_label(var: str, header: Span) -> str:
 # notation; C allows more (universal character names, `$`). Mangling is
 # deterministic so that the same source always gives the same names.
 
-_RESERVED = {
-    "and", "or", "not", "implies", "exists", "mod", "floor", "ceil", "floord", "ceild", "min", "max",
-    "infty", "nan", "rat", "true", "false", "div",
-}  # fmt: skip - isl reads these words in any letter case (MAX, Floor, ...)
-_IDENT = re.compile(r"[A-Za-z_][A-Za-z0-9_]*\Z")
-
-
-def mangle(name: str) -> str:
-    """A valid, unreserved ASCII identifier for a C name (identity for ordinary names)."""
-    out = []
-    for ch in name:
-        if ch.isascii() and (ch.isalnum() or ch == "_"):
-            out.append(ch)
-        else:
-            out.append(f"_u{ord(ch):x}_")
-    s = "".join(out) or "_"
-    if s[0].isdigit():
-        s = "_" + s
-    if s.lower() in _RESERVED:
-        s += "_"
-    return s
+# (tripcount.names.mangle: shared with the --at names, which must name the same parameters)
 
 
 def symbol_base(text: str) -> str:
