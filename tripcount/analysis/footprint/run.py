@@ -94,8 +94,12 @@ def analyze(result: NestResult, options: Options) -> None:
                 limit_notes.append(note)
     if limit_notes:
         missing = [p for p in nest.params if p not in an.at]
-        fallback = ("the values at the --at sizes are exact enumerations" if an.has_at and nest.params
-                    else f"give --at sizes (for {', '.join(missing)}) for exact values")
+        if not nest.params:  # every extent is a number: the values are the counts themselves
+            fallback = "the values are exact enumerations (the nest has no size parameters)"
+        elif an.has_at:
+            fallback = "the values at the --at sizes are exact enumerations"
+        else:
+            fallback = f"give --at sizes (for {', '.join(missing)}) for exact values"
         reason = limit_notes[0][len("formula not available ("):].rsplit("):", 1)[0]
         diags.append(FootprintLimit(nest.span, what="some working sets of this nest", reason=reason,
                                     fallback=fallback))
