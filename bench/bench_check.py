@@ -94,7 +94,11 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--no-uncached", action="store_true", help="skip the --no-cache run (as slow as a cold one)")
     args = p.parse_args(argv)
     with tempfile.TemporaryDirectory(prefix="tripcount-bench-") as tmp:
-        work = Path(tmp)
+        # the project in one directory, its caches beside it: a cache inside the
+        # analysed project is refused (exit status 2)
+        work = Path(tmp) / "project"
+        work.mkdir()
+        caches = Path(tmp)
         text = generate(40, 2000)
         (work / "kernels.c").write_text(text)
         (work / "pyproject.toml").write_text(PYPROJECT)
@@ -103,13 +107,13 @@ def main(argv: list[str] | None = None) -> int:
         figures: dict[str, float | int | str] = {"lines": text.count("\n"), "nests": 40}
         colds = []
         for k in range(args.cold_repeat):
-            env = {**base_env, "TRIPCOUNT_CACHE_DIR": str(work / f"cache-cold-{k}")}
+            env = {**base_env, "TRIPCOUNT_CACHE_DIR": str(caches / f"cache-cold-{k}")}
             t, status, out = run_check(work, env)
             colds.append(t)
             say(f"cold {t:.2f} s (exit status {status})")
         figures["cold_s"] = median(colds)
         figures["status"] = status
-        env = {**base_env, "TRIPCOUNT_CACHE_DIR": str(work / "cache-cold-0")}
+        env = {**base_env, "TRIPCOUNT_CACHE_DIR": str(caches / "cache-cold-0")}
         figures["warm_s"] = median([run_check(work, env)[0] for _ in range(args.repeat)])
         say(f"warm {figures['warm_s']:.2f} s")
         # a comment edit: every nest from the cache, but the file must be parsed to find them

@@ -71,6 +71,8 @@ def cache_fit(an: Analyzer, ws: WorkingSet) -> None:
                 ws.fits[lv.name] = False
     if not has_formula or fp.lower_bound:  # a search by enumeration would count ever larger sets;
         return  # a threshold of a lower bound is no threshold of the working set
+    if an.options.gate:  # the gate holds occupancies against budgets; thresholds are for reading
+        return
     ws.lines_at, ws.line_size = lines_at, an.line
     param = _solve_param(an, lines_at)
     if param is None:
