@@ -37,6 +37,19 @@ def new_token(cls: type, ty: str, value: str, start: int, line: int, column: int
     return tok
 
 
+def _skip_group(toks: list, k: int, opening: str, closing: str, end: int) -> int:
+    depth = 0
+    for j in range(k, end):
+        v = toks[j].value
+        if v == opening:
+            depth += 1
+        elif v == closing:
+            depth -= 1
+            if depth == 0:
+                return j + 1
+    return end
+
+
 def skip_parens(toks: list, k: int, limit: int | None = None) -> int:
     """Index past the parenthesised group opening at `k` (or `k` if it is not '(').
 
@@ -46,29 +59,12 @@ def skip_parens(toks: list, k: int, limit: int | None = None) -> int:
     end = len(toks) if limit is None else min(limit, len(toks))
     if k >= end or toks[k].value != "(":
         return k
-    depth = 0
-    for j in range(k, end):
-        v = toks[j].value
-        if v == "(":
-            depth += 1
-        elif v == ")":
-            depth -= 1
-            if depth == 0:
-                return j + 1
-    return end
+    return _skip_group(toks, k, "(", ")", end)
 
 
 def skip_brackets(toks: list[Tok], k: int) -> int:
-    depth = 0
-    for j in range(k, len(toks)):
-        v = toks[j].value
-        if v == "[":
-            depth += 1
-        elif v == "]":
-            depth -= 1
-            if depth == 0:
-                return j + 1
-    return len(toks)
+    """Index past the bracketed group that starts at or after `k` (the end when unclosed)."""
+    return _skip_group(toks, k, "[", "]", len(toks))
 
 
 def split_commas(toks: list[Tok]) -> list[list[Tok]]:

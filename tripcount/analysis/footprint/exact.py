@@ -26,11 +26,11 @@ import time
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
-from typing import Any
 
 import islpy as isl
 
 from tripcount.affine import mangle
+from tripcount.analysis.footprint.isets import points
 from tripcount.formula import FormulaError, parse_expr
 from tripcount.guard import count_points
 from tripcount.model import Access
@@ -131,22 +131,6 @@ class Max:
 
 class _TooHard(Exception):
     pass
-
-
-def _outer_points(o: isl.Set, names: Sequence[str], cap: int) -> list[dict[str, int]] | None:
-    out: list[dict[str, int]] = []
-
-    def visit(p: isl.Point) -> Any:
-        out.append({nm: int(p.get_coordinate_val(_dt.set, k).to_python()) for k, nm in enumerate(names)})
-        return isl.stat.error if len(out) > cap else None
-
-    try:
-        o.foreach_point(visit)
-    except isl.Error:
-        if len(out) > cap:
-            return None
-        raise
-    return out
 
 
 def _first(s: isl.Set, names: Sequence[str]) -> dict[str, int] | None:
@@ -265,7 +249,7 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
             shifted = False
             break
     if not shifted:
-        pts = _outer_points(r, fixed, POINT_CAP)
+        pts = points(r, fixed, POINT_CAP)
         if pts is None:
             raise _TooHard
         best = Max(0)
