@@ -411,17 +411,19 @@ def _outermost_fors(node: Any) -> Iterator[Any]:
         stack.extend(reversed(kids))
 
 
-def locate(text: str, path: str, options: Options) -> Layout:
+def locate(text: str, path: str, options: Options,
+           inputs: tuple[Any, str, str | None, str | None] | None = None) -> Layout:
     """Parse `text` with the front end and compute the cache keys of its nests.
 
     The keys include the build flags and the bytes of every header the file
-    may read (compdb.source_inputs), so a changed header is a miss.
+    may read (compdb.source_inputs, passed as `inputs` when already computed),
+    so a changed header is a miss.
     """
     from tripcount.diagnostics import BuildFlagsUnreadable
     from tripcount.frontend import parse_text
     from tripcount.ir import Span
 
-    includes, inputs_key, problem, lang = source_inputs(path, text, options)
+    includes, inputs_key, problem, lang = inputs or source_inputs(path, text, options)
     unit, diags = parse_text(text, path=path, snippet=False, includes=includes, lang=lang)
     if problem is not None:
         diags = [BuildFlagsUnreadable(Span.point(1, 1), reason=problem), *diags]
@@ -646,8 +648,8 @@ def _sort_diags(diags: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return sorted(diags, key=lambda d: (d.get("line", 0), d.get("column", 0), d.get("code", "")))
 
 
-def _file_key(path: str, text: str, options: Options) -> str:
-    return _digest(["file", code_fingerprint(), options.cache_key(), source_inputs(path, text, options)[1], text])
+def _file_key(text: str, options: Options, inputs_key: str) -> str:
+    return _digest(["file", code_fingerprint(), options.cache_key(), inputs_key, text])
 
 
 def analyze_file_uncached(path: str, text: str, options: Options) -> dict[str, Any]:
@@ -706,11 +708,12 @@ def analyze_file_cached(path: str, text: str, options: Options, use_cache: bool 
     store = store or Store()
     if not store.enabled:
         return analyze_file_uncached(path, text, options)
-    fkey = _file_key(path, text, options)
+    inputs = source_inputs(path, text, options)  # flags and header bytes: read once per file
+    fkey = _file_key(text, options, inputs[1])
     hit = store.get("file", fkey)
     if hit is not None and isinstance(hit.get("file"), dict):
         return {"path": path, **{k: v for k, v in hit["file"].items() if k != "path"}}
-    layout = locate(text, path, options)
+    layout = locate(text, path, options, inputs)
     result = _assemble(layout, store)
     if result is None:
         result = _compute(layout, path, text, options, store)

@@ -181,14 +181,6 @@ def _entry(path: str | None, options: Options) -> FileFlags | None:
     return database(db).get(os.path.normpath(os.path.abspath(path)))
 
 
-def includes_for(path: str | None, options: Options) -> Includes:
-    """The -I/-D/-U of one file: its compile command's, then those of the
-    command line and the configuration. Raises CompileDbError."""
-    given = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
-    entry = _entry(path, options)
-    return given if entry is None else merge(entry.includes, given)
-
-
 _INCLUDE_RE = re.compile(rb'^[ \t]*#[ \t]*include[ \t]*([<"])([^">\n]+)[">]', re.M)
 MAX_FINGERPRINT_HEADERS = 256
 
@@ -222,20 +214,24 @@ def inputs_fingerprint(text: str, path: str | None, includes: Includes) -> str:
     return h.hexdigest()[:32]
 
 
+def source_flags(path: str | None, options: Options) -> tuple[Includes, str | None, str | None]:
+    """(the file's -I/-D/-U, a reason when its compilation database is
+    unreadable, and the language its compile command gives: "c++", or None to
+    go by the suffix). Never raises: a bad database means the command line's
+    flags only."""
+    given = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
+    try:
+        entry = _entry(path, options)
+    except CompileDbError as exc:
+        return given, str(exc), None
+    if entry is None:
+        return given, None, None
+    return merge(entry.includes, given), None, "c++" if entry.cxx else None
+
+
 def source_inputs(path: str | None, text: str, options: Options
                   ) -> tuple[Includes, str, str | None, str | None]:
-    """(the file's -I/-D/-U, the fingerprint of what the front end may read
-    besides `text`, a reason when its compilation database is unreadable, and
-    the language its compile command gives: "c++", or None to go by the
-    suffix). Never raises: a bad database means the command line's flags only."""
-    problem = None
-    lang = None
-    try:
-        inc = includes_for(path, options)
-        entry = _entry(path, options)
-        if entry is not None and entry.cxx:
-            lang = "c++"
-    except CompileDbError as exc:
-        inc = Includes(tuple(options.include_dirs), tuple(options.defines), tuple(options.undefines))
-        problem = str(exc)
+    """source_flags plus, second, the fingerprint of what the front end may
+    read besides `text` (the result cache's key part)."""
+    inc, problem, lang = source_flags(path, options)
     return inc, inputs_fingerprint(text, path, inc) + (lang or ""), problem, lang

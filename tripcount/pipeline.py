@@ -28,7 +28,7 @@ from typing import Any
 from tripcount import guard
 from tripcount.analysis import counts
 from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, StatementResult
-from tripcount.compdb import source_inputs
+from tripcount.compdb import source_flags
 from tripcount.diagnostics import BuildFlagsUnreadable, InternalError, UnreadableFile
 from tripcount.frontend import parse_text
 from tripcount.ir import Span
@@ -314,7 +314,7 @@ def run_nests(nests: list[Nest], todo: list[int], options: Options,
 
 def analyze_text(text: str, path: str, options: Options, snippet: bool = False) -> FileResult:
     """Analyze C source text; `path` is used in diagnostics and the report."""
-    includes, _, problem, lang = source_inputs(None if snippet else path, text, options)
+    includes, problem, lang = source_flags(None if snippet else path, options)
     try:
         unit, diags = parse_text(text, path=path, snippet=snippet, includes=includes, lang=lang)
     except Exception as exc:  # the front end promises not to raise; if it does, this file only
