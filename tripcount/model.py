@@ -506,6 +506,18 @@ def _model_nest(an: af.ANest, assumption: tuple[af.Cond, list[str]] | None) -> N
     )
 
 
+def _size_text(x: af.Lin) -> str | None:
+    """C text of an affine size expression of parameters and constants (None with anything else)."""
+    parts = []
+    for atom, coef in x.terms:
+        if not isinstance(atom, af.Var):
+            return None
+        parts.append(f"{coef}*({atom.display})")
+    if x.const or not parts:
+        parts.append(str(x.const))
+    return " + ".join(parts)
+
+
 def _access(a: af.AAccess, sid: str, sp: _Space, dom: isl.Set | None) -> Access:
     m = None
     subs = a.subscripts
@@ -516,7 +528,8 @@ def _access(a: af.AAccess, sid: str, sp: _Space, dom: isl.Set | None) -> Access:
         inside = sp.set(af.conj([af.ge(r, af.const(0)), af.gt(p, r)])).set_tuple_name(dom.get_tuple_name())
         if dom.is_subset(inside):
             subs = (x, r)
-            extents = (extents[0] if extents else None, None)
+            # the block is packed: rows of P elements, one after the other
+            extents = (extents[0] if extents else None, _size_text(p))
     if subs:
         maps = [isl.Map.from_pw_aff(sp.pw(x)) for x in subs]
         m = reduce(lambda p, q: p.flat_range_product(q), maps)

@@ -73,8 +73,10 @@ class TextReporter(Reporter):
             self.write_file(fr, at)
         n_diag = sum(len(f.all_diagnostics()) for f in report.files)
         at = at.replace("*=", "every other size=") if "*=" in at and at.count("=") > 1 else at.replace("*=", "every size=")
-        any_params = any(nr.nest.params for fr in report.files for nr in fr.nests)
-        hint = f"; values at {at}" if at else ("; give --at N=... for values" if any_params else "")
+        params = sorted({p for fr in report.files for nr in fr.nests for p in nr.nest.params})
+        example = ",".join(f"{p}=..." for p in params[:3]) + (",..." if len(params) > 3 else "")
+        hint = f"; values at {at}" if at else (
+            f"; give --at {example} (or --at '*=1000') for values" if params else "")
         self.stream.write(f"{len(report.files)} file(s), {n_nests} nest(s), {n_diag} diagnostic(s){hint}\n")
 
     def write_file(self, fr: FileResult, at: str) -> None:
@@ -203,5 +205,18 @@ class TextReporter(Reporter):
             sr = max(counted, key=size)
             rule = "the largest count for large equal sizes"
         f = sr.count.formula
-        self.stream.write(f"  work: degree {degree} in the sizes (dominant {sr.stmt.id} ~ {f.leading()}, "
-                          f"{rule}); doubling all sizes multiplies it by about {2 ** degree}\n")
+        leading = f.leading()
+        tail = ""
+        if rule.endswith("--at sizes"):
+            # the piece that holds at the --at sizes can differ from the generic one (a count capped at
+            # 4096 is linear below the cap): describe the work where the user asked, and say both
+            local = [x.count.formula.pieces[x.count.at_piece].poly for x in counted if x.count.at_piece is not None]
+            if len(local) == len(counted):
+                here = max(p.degree() for p in local)
+                leading = sr.count.formula.pieces[sr.count.at_piece].poly.leading()
+                if here != degree:
+                    tail = f" (degree {degree} for large sizes)"
+                degree = here
+        self.stream.write(f"  work: degree {degree} in the sizes{' at the --at sizes' if tail else ''} "
+                          f"(dominant {sr.stmt.id} ~ {leading}, {rule}); doubling all sizes multiplies it by about "
+                          f"{2 ** degree}{tail}\n")

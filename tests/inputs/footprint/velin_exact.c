@@ -43,3 +43,13 @@ void wave_steps(int T, int nx, int ny, double u[nx][ny], double v[nx][ny])
                 u[i][j] = v[i][j];
     }
 }
+
+/* the harbour blur on flattened buffers, as C code usually indexes a matrix */
+void harbour_blur_flat(int H, int W, const double *img, double *out, const double *k)
+{
+    for (int i = 1; i < H - 1; i++)
+        for (int j = 1; j < W - 1; j++)
+            for (int di = 0; di < 3; di++)
+                for (int dj = 0; dj < 3; dj++)
+                    out[i * W + j] += k[3 * di + dj] * img[(i + di - 1) * W + (j + dj - 1)];
+}

@@ -95,6 +95,9 @@ class FCount(Count):
     lower_bound: bool = False  # references are left out: the true count is at least this
     value_bound: str | None = None  # "upper"/"lower" when the value at the --at sizes is only a bound
     formula_assumes: str | None = None  # an assumption of the formula that the value need not share
+    # a value at the extreme outer values, shown largest only at probe sizes: not yet the maximum at the
+    # --at sizes (the exact maximum replaces it, or it is dropped)
+    unchecked: bool = False
 
     def to_json(self) -> dict[str, Any]:
         """Count object plus `value_is`, `bound`, `lower_bound`, `worst_at`, `value_bound` and
@@ -317,6 +320,7 @@ class NestFootprint:
     at: dict[str, int]
     flops: flops_mod.Flops | None = None
     intensity: Intensity | None = None
+    sized: bool = False  # values exist: --at sizes every parameter, or the nest has none
 
     def to_json(self) -> dict[str, Any]:
         """The whole-nest footprint (same shape as a loop's working set) and the cache model used."""

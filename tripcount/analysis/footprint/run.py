@@ -92,18 +92,17 @@ def analyze(result: NestResult, options: Options) -> None:
         for note in fp.notes:
             if note.startswith("formula not available") and note not in limit_notes:
                 limit_notes.append(note)
-    if limit_notes:
+    if limit_notes and nest.params:  # without size parameters the values are the counts themselves
         missing = [p for p in nest.params if p not in an.at]
-        if not nest.params:  # every extent is a number: the values are the counts themselves
-            fallback = "the values are exact enumerations (the nest has no size parameters)"
-        elif an.has_at:
+        if an.has_at:
             fallback = "the values at the --at sizes are exact enumerations"
         else:
             fallback = f"give --at sizes (for {', '.join(missing)}) for exact values"
         reason = limit_notes[0][len("formula not available ("):].rsplit("):", 1)[0]
         diags.append(FootprintLimit(nest.span, what="some working sets of this nest", reason=reason,
                                     fallback=fallback))
-    nf = NestFootprint(nest_fp, levels, an.caches, dict(an.at) if an.has_at else {}, total_flops)
+    nf = NestFootprint(nest_fp, levels, an.caches, dict(an.at) if an.has_at else {}, total_flops,
+                       sized=an.has_at or not nest.params)
     nf.intensity = intensity(total_flops, nest_fp, nest, options)
     result.extras["footprint"] = nf
     result.extras["intensity"] = nf.intensity

@@ -520,7 +520,7 @@ def _or_upper(m: Max, upper: int | None) -> Max:
 
 def _exact_int(c: Any) -> int | None:
     """The value of a count object when it is exact (an integer, not a bound)."""
-    if not isinstance(c, FCount) or c.bound or c.value is None:
+    if not isinstance(c, FCount) or c.bound or c.unchecked or c.value is None:
         return None
     v = c.value
     if isinstance(v, Fraction):
@@ -535,9 +535,11 @@ def _set_value(c: Any, m: Max, over: str, same_layout: bool = True) -> None:
         return
     if m.value is None or (m.side == "upper" and same_layout and c.value is not None and not c.bound):
         # keep a value found before only when it is exact and of the same layout
-        if c.bound or not same_layout:
+        if c.bound or c.unchecked or not same_layout:
             c.value, c.bound, c.value_is = None, False, m.why
+            c.unchecked = False
         return
+    c.unchecked = False
     c.value = m.value
     c.bound = m.side == "upper"
     c.value_bound = m.side

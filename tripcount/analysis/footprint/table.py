@@ -80,11 +80,11 @@ def text_table(nf: NestFootprint) -> list[str]:
     else:
         out.append(f"working sets (model estimate: {_caches_text(nf.caches)}; fully associative, capacity only):")
         head = ("loop", "bytes touched by all its iterations, outer variables fixed",
-                f"at {at}" if nf.at else "", "in lines" if nf.at else "", "fits" if nf.at else "", "reused by")
+                (f"at {at}" if nf.at else "value") if nf.sized else "", "in lines" if nf.sized else "", "fits" if nf.sized else "", "reused by")
         rows = [head]
         for ws in nf.levels:
             fp = ws.whole
-            point = nf.at if nf.at and not fp.fixed else None
+            point = nf.at if nf.sized and not fp.fixed else None
             expr = _piece_expr(fp.bytes, point)
             if fp.typical_piece is not None and fp.bytes.formula is not None:
                 expr = fp.bytes.formula.pieces[fp.typical_piece].poly.to_expr()
@@ -99,8 +99,11 @@ def text_table(nf: NestFootprint) -> list[str]:
             fits = ""
             if ws.fits:
                 fitting = [k for k, ok in ws.fits.items() if ok]
-                if getattr(fp.lines, "bound", False):  # an upper bound: a smaller cache may hold it too
-                    fits = f"{fitting[0]} or smaller" if fitting else "may not fit"
+                if getattr(fp.lines, "bound", False):
+                    # an upper bound proves the fit it shows; a smaller cache may hold the true set too
+                    smaller = fitting and fitting[0] != nf.caches.levels[0].name
+                    fits = (f"{fitting[0]} (smaller not checked: bound)" if smaller else fitting[0]) if fitting \
+                        else "may not fit"
                 else:
                     fits = fitting[0] if fitting else "none"
                 thr = [(f"{k} while {t.text()}" if t.largest is not None and t.largest >= 1 else
@@ -110,21 +113,23 @@ def text_table(nf: NestFootprint) -> list[str]:
                     fits += f" ({thr[-1]})"
             reuse = "-" if ws.loop.parent is None else (
                 f"loop {ws.outer_var}" if ws.reuse else ("nothing" if ws.reuse is False else "?"))
-            value = _value_text(fp.bytes, "bytes") if nf.at else ""
-            if nf.at and fp.bytes.value is None and fp.elements.value is not None:
+            value = _value_text(fp.bytes, "bytes") if nf.sized else ""
+            if nf.sized and fp.bytes.value is None and fp.elements.value is not None:
                 value = f"{_value_text(fp.elements)} elements"
-            in_lines = fmt_bytes(ws.occupancy) if ws.occupancy is not None else ("-" if nf.at else "")
+            in_lines = fmt_bytes(ws.occupancy) if ws.occupancy is not None else ("-" if nf.sized else "")
             if ws.occupancy is not None and fp.lower_bound and not fp.lines.bound:
                 in_lines = ">= " + in_lines
+            elif ws.occupancy is not None and getattr(fp.lines, "bound", False) and not fp.lower_bound:
+                in_lines = "<= " + in_lines
             rows.append((f"{ws.loop.var} (line {ws.loop.span.line})", expr, value, in_lines, fits, reuse))
         widths = [min(max(len(r[k]) for r in rows), 60) for k in range(6)]
         shown = [k for k in range(6) if head[k]]  # a column is kept or dropped whole, never cell by cell
         for r in rows:
             out.append("  " + "  ".join(r[k].ljust(widths[k]) for k in shown).rstrip())
-        if nf.at:
-            out.append("  (values: the largest over the outer loop variables, exact at these sizes in the packed "
-                       "row-major layout, arrays starting on a line boundary; 'in lines': the whole cache lines "
-                       "they occupy; 'fits': the smallest cache holding them)")
+        if nf.sized:
+            out.append("  (values: the largest over the outer loop variables, exact at these sizes unless marked "
+                       "'<=' or '>=', in the packed row-major layout, arrays starting on a line boundary; "
+                       "'in lines': the whole cache lines they occupy; 'fits': the smallest cache holding them)")
             out.append("  (legend: '<=' an upper bound, '>=' a lower bound, '~' the leading term of a long formula; "
                        "'reused by': 'nothing' = the enclosing loop does not touch these lines again, "
                        "'-' = no enclosing loop)")
@@ -135,12 +140,12 @@ def text_table(nf: NestFootprint) -> list[str]:
     fp = nf.footprint
     n_arr = len(fp.by_array)
     if n_arr:
-        el = _piece_expr(fp.elements, nf.at or None) or "-"
+        el = _piece_expr(fp.elements, nf.at if nf.sized else None) or "-"
         line = f"footprint of the nest: {n_arr} array{'s' if n_arr != 1 else ''}, {_short(el, fp.elements)} elements"
-        by = _piece_expr(fp.bytes, nf.at or None)
+        by = _piece_expr(fp.bytes, nf.at if nf.sized else None)
         if by is not None:
             line += f", {_short(by, fp.bytes)} bytes"
-        if nf.at and fp.bytes.value is not None:
+        if nf.sized and fp.bytes.value is not None:
             line += f" {'>=' if fp.lower_bound else '='} {fmt_bytes(fp.bytes.value)} at {at}"
         elif fp.bytes.note and fp.bytes.value is None:
             line += f" ({fp.bytes.note})"
@@ -160,19 +165,19 @@ def _flops_lines(nf: NestFootprint, at: str) -> list[str]:
     total = f.count
     if total.formula is not None and total.formula.is_zero() or total.value == 0 and total.formula is None:
         return ["flops: none (no floating-point arithmetic)"]
-    expr = _piece_expr(total, nf.at or None)
+    expr = _piece_expr(total, nf.at if nf.sized else None)
     line = "flops " + (_short(expr, total) if expr is not None else "unknown")
-    if nf.at and total.value is not None:
+    if nf.sized and total.value is not None:
         line += f" = {_value_text(total)}"
     kinds = []
     for k in ("add", "mul", "div"):
         c = f.kinds[k].count
         if c.value or (c.formula is not None and not c.formula.is_zero()):
-            kinds.append(f"{k} {_value_text(c) if nf.at and c.value is not None else _piece_expr(c)}")
+            kinds.append(f"{k} {_value_text(c) if nf.sized and c.value is not None else _piece_expr(c)}")
     for name, wc in sorted(f.calls.items()):
         c = wc.count
         if c.value or (c.formula is not None and not c.formula.is_zero()):
-            kinds.append(f"{name} {_value_text(c) if nf.at and c.value is not None else _piece_expr(c)}")
+            kinds.append(f"{name} {_value_text(c) if nf.sized and c.value is not None else _piece_expr(c)}")
     if kinds:
         line += f" ({', '.join(kinds)})"
     out = [line]

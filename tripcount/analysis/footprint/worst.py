@@ -58,6 +58,7 @@ def worst_case(an: Analyzer, fp: Footprint, stmts: list[Statement], fixed: tuple
             if mine.value is None and w is not None:
                 mine.value = w
                 mine.bound = fp.worst.bound
+                mine.unchecked = not fp.worst.bound
                 mine.value_is = ("worst case over " + ", ".join(fixed) +
                                  (" (upper bound)" if fp.worst.bound else " (at their extreme values)"))
 
