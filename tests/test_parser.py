@@ -39,11 +39,13 @@ def test_tide_gauge_file():
     assert [(d.code, d.span.line) for d in diags] == [("TC119", 6)]
     assert [(f.name, f.return_type) for f in tu.functions] == [
         ("smooth", "void"), ("mean_level", "level_t"), ("basin_tiles", "void"), ("main", "int")]
+    # enum quay { NORTH, SOUTH } gives two integer constants (C11 6.7.2.2: 0, then +1)
     assert [[decl.name for decl in g.declarators] for g in tu.globals] == [
-        ["TS"], ["levels"], ["datum", "cursor"], ["gauges"]]
-    assert [g.type_name for g in tu.globals] == ["static const int", "double", "level_t",
-                                                 "struct gauge"]
-    assert [ctext(x) for x in tu.globals[1].declarators[0].dims] == ["48", "1440"]
+        ["NORTH"], ["SOUTH"], ["TS"], ["levels"], ["datum", "cursor"], ["gauges"]]
+    assert [g.type_name for g in tu.globals] == ["const int", "const int", "static const int",
+                                                 "double", "level_t", "struct gauge"]
+    assert [ctext(g.declarators[0].init) for g in tu.globals[:2]] == ["0", "1"]
+    assert [ctext(x) for x in tu.globals[3].declarators[0].dims] == ["48", "1440"]
     assert [m.name for m in tu.macros] == ["NGAUGE", "NSTEP", "MIN", "MAX"]
     assert tu.path.endswith("tide_gauge.c")
     smooth = tu.functions[0]
@@ -85,7 +87,20 @@ def test_prototypes_structs_typedefs_are_skipped():
     tu, diags = parse_text(src)
     assert diags == []
     assert [f.name for f in tu.functions] == ["go"]
-    assert [g.declarators[0].name for g in tu.globals] == ["table", "piers"]
+    # the enumerators are integer constants (A = 1, B = 2 by C11 6.7.2.2), the rest is skipped
+    assert [g.declarators[0].name for g in tu.globals] == ["A", "B", "table", "piers"]
+    assert [ctext(g.declarators[0].init) for g in tu.globals[:2]] == ["1", "2"]
+
+
+def test_enumerators_count_on_and_use_earlier_ones():
+    src = """
+    enum tile { TW = 8, TH = TW * 2, TD, TNEG = -3, TNEXT };
+    enum { BAD = sizeof(int), AFTER };
+    """
+    tu, _ = parse_text(src)
+    got = {g.declarators[0].name: ctext(g.declarators[0].init) for g in tu.globals}
+    # a value that cannot be read (sizeof) leaves it and the ones counting on from it out
+    assert got == {"TW": "8", "TH": "16", "TD": "17", "TNEG": "-3", "TNEXT": "-2"}
 
 
 def test_typedefs_in_the_file_and_a_read_header_resolve_to_their_base_type():

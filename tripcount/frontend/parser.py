@@ -26,6 +26,7 @@ from tripcount import ir
 from tripcount.diagnostics import Diagnostic
 from tripcount.frontend import diagnostics as d
 from tripcount.frontend.build import PragmaToken, cover
+from tripcount.frontend.enums import enum_constants
 from tripcount.frontend.lalr import ParseFailure, engine
 from tripcount.frontend.lexer import SourceMap, Tok
 from tripcount.frontend.omp import omp_clauses
@@ -67,6 +68,7 @@ class UnitParser(Scanner, Recovery):
         self.pre = pre
         self.smap: SourceMap = pre.source
         self.diags = diags
+        self.enumerators: dict[str, int] = {}  # file-scope enum constants read so far
         self.eng = engine()
         t = self.eng.terms
         self.T = t
@@ -253,6 +255,10 @@ class UnitParser(Scanner, Recovery):
                     else:
                         budget -= size
             else:
+                enumerators = enum_constants(toks[a:b], self.enumerators)
+                if enumerators:
+                    globals_.extend(self._enumerator_decls(enumerators))
+                    continue
                 try:
                     g = self._global(toks, a, b)
                 except Exception:  # globals are optional: an unreadable one is skipped
@@ -266,6 +272,25 @@ class UnitParser(Scanner, Recovery):
                 count=len(skipped), limit=GRAMMAR_TOKEN_BUDGET))
         return functions, globals_
 
+
+    def _enumerator_decls(self, enumerators: list[tuple[Tok, int]]) -> list[ir.Decl]:
+        """`const int NAME = value;` for each enumerator, placed at its name."""
+        out: list[ir.Decl] = []
+        for name, value in enumerators:
+            self.enumerators[name.value] = value
+            s, e = name.start, name.end
+            synthetic = [Tok("id", "const", s, e), Tok("id", "int", s, e), Tok("id", name.value, s, e),
+                         Tok("punct", "=", s, e), Tok("num", str(value), s, e), Tok("punct", ";", s, e)]
+            if value < 0:
+                synthetic[4:4] = [Tok("punct", "-", s, e)]
+                synthetic[5] = Tok("num", str(-value), s, e)
+            try:
+                node = self._parse(self.to_lark(synthetic), "decl_start")
+            except ParseFailure:
+                continue
+            if isinstance(node, ir.Decl):
+                out.append(node)
+        return out
 
     def _global(self, toks: list[Tok], a: int, b: int) -> ir.Decl | None:
         first = toks[a]

@@ -23,6 +23,7 @@ KEYWORD_ALIASES = {
     "__inline__": "inline", "__const": "const", "__volatile": "volatile",
     "__volatile__": "volatile", "__signed": "signed", "__signed__": "signed",
     "__thread": "_Thread_local", "__forceinline": "inline",
+    "constexpr": "const",  # C23 and C++: a constant like any const object for tripcount
 }
 # Words followed by a parenthesised argument that carry nothing for tripcount.
 SKIP_WITH_PARENS = {"__attribute__", "__attribute", "__declspec", "_Alignas", "alignas"}
