@@ -1,23 +1,26 @@
 // Velin harbour: the C++ sweep of the basin solver -- a function template,
-// std::vector, std::min, std::size_t, a range-based for, and the depth grid
-// stored row by row in one vector (cell (i, j) at i * m + j).
+// std::vector of a typedef, std::min with explicit template arguments,
+// std::size_t, a range-based for, and the depth grid stored row by row in one
+// vector (cell (i, j) at i * m + j).
 #include <algorithm>
 #include <cstddef>
 #include <vector>
 
 namespace velin {
 
+typedef double level_t;
+
 // blocked relaxation of the water level, 256 cells per block
 template <typename T>
 void harbour_block_relax(std::vector<T> &level, const std::vector<T> &inflow, std::size_t n)
 {
     for (std::size_t b = 0; b < n; b += 256)
-        for (std::size_t i = b; i < std::min(b + 256, n); i++)
+        for (std::size_t i = b; i < std::min<std::size_t>(b + 256, n); i++)
             level[i] = level[i] + inflow[i] * 0.5;
 }
 
 // scale the flat depth grid
-void harbour_depth_scale(std::vector<double> &depth, int n, int m, double s)
+void harbour_depth_scale(std::vector<level_t> &depth, int n, int m, double s)
 {
     for (int i = 0; i < n; i++)
         for (int j = 0; j < m; j++)

@@ -144,3 +144,22 @@ def test_hostile_cxx_ends_quickly_with_diagnostics_only(piece):
     codes = [g.code for g in fr.all_diagnostics()]
     assert not [c for c in codes if c.startswith("TC9") or c == "TC199"], codes
     assert time.perf_counter() - t0 < 60  # generous: a quadratic rewrite would take hours
+
+
+def test_explicit_template_arguments_and_vectors_of_typedefs():
+    # std::min<int>(t + 64, n) is min(t + 64, n): the inner loop runs n times in all (not once per tile);
+    # std::vector<real> with real a typedef read after the vector: 4-byte elements
+    src = """
+typedef float real;
+void scale(int n, std::vector<real> &a, real s) {
+  for (int t = 0; t < n; t += 64)
+    for (int i = t; i < std::min<int>(t + 64, n); ++i)
+      a[i] = a[i] * s;
+}
+"""
+    fr = analyze_text(src, "scale.cpp", Options(at={"n": 1000}))
+    (nr,) = fr.nests
+    assert [g.code for g in fr.all_diagnostics() if g.severity != "note"] == []
+    assert [sr.count.value for sr in nr.statements] == [1000]
+    fp = nr.extras["footprint"].footprint.to_json()
+    assert fp["by_array"]["a"]["elem_size"] == 4 and fp["bytes"]["value"] == 4000

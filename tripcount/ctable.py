@@ -84,6 +84,10 @@ FUSED_CALLS: dict[str, tuple[str, ...]] = {"fma": ("mul", "add")}
 INT_CALLS = frozenset({"abs", "labs", "llabs", "lround", "llround", "lrint", "llrint", "ilogb"})
 # Of those, the absolute values (exact for the affine stage).
 ABS_CALLS = frozenset({"abs", "labs", "llabs"})
+# C++ library function templates whose explicit template arguments change only
+# the type the arguments are converted to (`std::min<int>(a, b)` is min(a, b)
+# for the integer values a loop bound takes): the C++ reading drops them.
+VALUE_TEMPLATES = frozenset({"min", "max", "clamp", "abs", "fmin", "fmax", "sqrt", "exp", "pow"})
 
 
 def base_type(type_name: str) -> str:

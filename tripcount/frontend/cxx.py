@@ -8,6 +8,8 @@
 #     `Basin::relax` is `relax`);
 #   * `std::vector<T>` / `std::array<T, N>` / `std::valarray<T>` become a
 #     pointer to T (so `v[i]` is an access with element type T);
+#   * explicit template arguments of library value functions go
+#     (`std::min<int>(a, b)` is `min(a, b)`, ctable.VALUE_TEMPLATES);
 #   * references `T &x` read as `T x`; `static_cast<T>(e)` as `(T)(e)`;
 #     `const`/`override`/`noexcept` after a parameter list go;
 #   * range-based `for (auto &x : v) body` becomes
@@ -19,6 +21,7 @@
 
 from __future__ import annotations
 
+from tripcount.ctable import VALUE_TEMPLATES
 from tripcount.frontend.lexer import Tok
 from tripcount.frontend.vocab import KNOWN_TYPES, SPEC_WORDS
 from tripcount.sources import CXX_SUFFIXES
@@ -169,6 +172,12 @@ def _types_and_references(toks: list[Tok], typedefs: dict[str, tuple[str, int]])
                 name = "__tc_vec_" + "_".join(w if w != "*" else "p" for w in words)
                 typedefs[name] = (base, 1 + words.count("*"))
                 out.append(_tok(t, name, "id"))
+                i = j + 1
+                continue
+        if t.kind == "id" and v in VALUE_TEMPLATES and nxt == "<":
+            j = _match(toks, i + 1)
+            if j > 0 and toks[j].value == ">" and j + 1 < n and toks[j + 1].value == "(":
+                out.append(t)  # `min<int>(a, b)` -> `min(a, b)`
                 i = j + 1
                 continue
         if t.kind == "id" and v in CASTS and nxt == "<":

@@ -200,22 +200,31 @@ def _function_head(toks: list[Tok], a: int, b: int) -> int | None:
 def resolve_typedef(text: str, table: dict[str, tuple[str, int]]) -> tuple[str, int]:
     """A type's words with each typedef name replaced by what it stands for, and the pointer levels it adds.
 
-    Chains (`typedef float real; typedef real real2;`) are resolved when each
-    is recorded, so one look-up per word suffices.
+    Chains (`typedef float real; typedef real real2;`) are mostly resolved when
+    each is recorded; a name recorded before the typedef it uses (the C++
+    rewrite records `std::vector<real>` before the file's typedefs are read)
+    is resolved here, a bounded number of rounds (a typedef cycle stops).
     """
-    words = text.split()
-    if not any(w in table for w in words):
-        return text, 0
-    out: list[str] = []
     stars = 0
-    for w in words:
-        if w in table:
-            base, more = table[w]
-            out.extend(base.split())
-            stars += more
-        else:
-            out.append(w)
-    return " ".join(out), stars
+    for _ in range(MAX_TYPEDEF_CHAIN):
+        words = text.split()
+        if not any(w in table for w in words):
+            break
+        out: list[str] = []
+        for w in words:
+            if w in table and table[w][0] != w:
+                base, more = table[w]
+                out.extend(base.split())
+                stars += more
+            else:
+                out.append(w)
+        if out == words:
+            break
+        text = " ".join(out)
+    return text, stars
+
+
+MAX_TYPEDEF_CHAIN = 16
 
 
 class Scanner:
