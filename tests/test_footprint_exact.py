@@ -35,6 +35,7 @@ PARAMS = {
     "harbour_blur_flat": [("H", "int", False), ("W", "int", False), ("img", "double", True),
                           ("out", "double", True), ("k", "double", True)],
     "quay_blocked": [("n", "int", False), ("A", "double", True), ("B", "double", True), ("C", "double", True)],
+    "tide_pairs": [("n", "int", False), ("m", "int", False), ("x", "double", True), ("g", "double", True)],
     "tide_rows": [("n", "int", False), ("m", "int", False), ("A", "double", True), ("x", "double", True),
                   ("y", "double", True)],
     "wave_steps": [("T", "int", False), ("nx", "int", False), ("ny", "int", False), ("u", "double", True),
@@ -106,6 +107,7 @@ gcc = pytest.mark.skipif(not gcc_available(), reason="gcc not available")
     ("harbour_blur_flat", SMALL),  # the same blur on flattened buffers: the packed layout of W columns
     ("quay_blocked", SMALL),  # interior and boundary tiles, rows of 296 B
     ("tide_rows", SMALL),  # VLA rows of 104 B
+    ("tide_pairs", SMALL),  # two rows i and j of one matrix, triangular
     ("tide_rows", OTHER),  # rows of 64 B
     ("wave_steps", SMALL),
     ("wave_steps", OTHER),
@@ -177,3 +179,36 @@ def test_values_without_formulas_are_exact_or_bounds(monkeypatch, function):
         assert _check_against_trace(function, SMALL) >= 0
     finally:
         _analysed.cache_clear()
+
+
+@pytest.mark.gcc
+@gcc
+@pytest.mark.parametrize("at", [SMALL, OTHER], ids=["rows of 104 B", "rows of 64 B"])
+def test_two_rows_of_one_matrix_without_enumerating_the_outer_values(monkeypatch, at):
+    """With no outer value tried one by one, the k loop's two rows x[i][.] and x[j][.] (their distance
+    varies) are maximised reference by reference: exact where both rows are at their largest and apart,
+    checked against the gcc trace like every other value."""
+    from tripcount.analysis.footprint import exact as ex
+    monkeypatch.setattr(ex, "POINT_CAP", 0)
+    _analysed.cache_clear()
+    try:
+        assert _check_against_trace("tide_pairs", at) > 0
+        ws = {lr.loop.var: lr.extras["working_set"] for lr in _nests(at)["tide_pairs"].loops}
+        assert not ws["k"].whole.lines.bound
+    finally:
+        _analysed.cache_clear()
+
+
+def test_two_rows_at_1000_are_exact():
+    """n = m = 1000: rows of 8000 B (125 lines, each starting on a line boundary): the k loop touches two
+    rows, 250 lines (by hand from the packed layout)."""
+    src = SRC[SRC.index("void tide_pairs"):]
+    src = src[:src.index("\n}\n") + 3]
+    fr = pipeline.analyze_text(src, "tide_pairs.c", Options(at={"n": 1000, "m": 1000}, line_size=LINE,
+                                                            caches=dict(CACHES)))
+    (nr,) = fr.nests
+    ws = {lr.loop.var: lr.extras["working_set"] for lr in nr.loops}
+    assert (ws["k"].whole.lines.value, ws["k"].whole.lines.bound) == (250, False)
+    # the j loop at i = 999 (a triangular loop: too many values of i to try one by one, its formula
+    # (i + 1)*(m + 1) is maximised at the end of the range): rows 0..999 of x and row 999 of g
+    assert (ws["j"].whole.elements.value, ws["j"].whole.elements.bound) == (1000 * 1000 + 1000, False)

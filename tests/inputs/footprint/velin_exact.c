@@ -53,3 +53,15 @@ void harbour_blur_flat(int H, int W, const double *img, double *out, const doubl
                 for (int dj = 0; dj < 3; dj++)
                     out[i * W + j] += k[3 * di + dj] * img[(i + di - 1) * W + (j + dj - 1)];
 }
+
+/* products of every pair of tide records (lower triangle), records stored row by row */
+void tide_pairs(int n, int m, const double *x, double *g)
+{
+    for (int i = 0; i < n; ++i)
+        for (int j = 0; j <= i; ++j) {
+            double acc = 0;
+            for (int k = 0; k < m; ++k)
+                acc += x[i * m + k] * x[j * m + k];
+            g[i * n + j] = acc;
+        }
+}

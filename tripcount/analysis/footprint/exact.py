@@ -13,7 +13,11 @@
 # depends only on the byte offset of the shape's start within a line, so one
 # outer value per reachable offset gives every value the count takes. A region
 # whose shape varies (a triangular loop) is evaluated at every value when it
-# has few; otherwise the value is an upper bound and says so and why.
+# has few. Otherwise, when each reference's part of it is one shape shifted
+# (rows i and j of one matrix, at a varying distance), the parts' maxima add
+# up, and the sum is exact where isl finds an outer value with every part at
+# its maximum and no two sharing a line; else the value is an upper bound and
+# says so and why.
 #
 # isl text is built here from generic names only (x0, y0, ...): user names
 # never reach isl's parser (a variable named like an isl word is fine).
@@ -186,6 +190,8 @@ class Part:
     counted: isl.Map  # { o -> what is counted (elements or lines) }
     weight: int
     residue: isl.Map | None
+    to_counted: isl.Map | None = None  # { element -> line } (None: elements are counted)
+    offset_of: isl.Map | None = None  # { element -> byte offset within its line } (None for elements)
 
 
 def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
@@ -217,10 +223,16 @@ def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
         normal.append(e.range_product(isl.Map.from_pw_multi_aff(lo)).apply_range(_shift_map(n_out))
                       if n_out else e)
     best: Max | None = None
+    above: Max | None = None  # the largest upper bound of a region whose maximum was not found
     for r in regions:
         got = _region_max(parts, normal, r, fixed, budget)
-        if best is None or got.value > best.value:  # type: ignore[operator]
+        if got.side == "upper":
+            if above is None or got.value > above.value:  # type: ignore[operator]
+                above = got
+        elif best is None or got.value > best.value:  # type: ignore[operator]
             best = got
+    if above is not None and (best is None or above.value > best.value):  # type: ignore[operator]
+        return above
     return best or Max(0)
 
 
@@ -251,7 +263,7 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
     if not shifted:
         pts = points(r, fixed, POINT_CAP)
         if pts is None:
-            raise _TooHard
+            return _by_reference(parts, r, fixed, budget)
         best = Max(0)
         for pt in pts:
             if budget is not None and budget.spent():
@@ -277,6 +289,100 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
         if best.at is None or v > (best.value or 0):
             best = Max(v, at=dict(pt))
     return best
+
+
+def _by_reference(parts: Sequence[Part], r: isl.Set, fixed: Sequence[str], budget: ExactBudget | None) -> Max:
+    """The maximum over a region where the union of what is touched changes shape (two rows i and j of
+    one matrix: their distance varies) but each of its pieces -- one reference, say -- is a fixed shape
+    shifted. The region is cut into cells where the same pieces are present. In a cell the count is at
+    most the sum of each piece's own maximum (a union is no larger than the sum of its parts); it equals
+    that sum at an outer value where every piece is at its maximum and no two pieces share an element
+    or line, which isl finds or rules out exactly. Without such a value the sum is an upper bound."""
+    pieces: list[tuple[Part, isl.Map]] = []
+    for p in parts:
+        p.elements.intersect_domain(r).foreach_basic_map(lambda b, p=p: pieces.append((p, isl.Map.from_basic_map(b))))
+    cells = [r]
+    for _, b in pieces:
+        d = b.domain()
+        cells = [c for x in cells for c in (x.intersect(d), x.subtract(d)) if not c.is_empty()]
+        if len(cells) > MAX_PIECES:
+            raise _TooHard
+    best: Max | None = None
+    above: Max | None = None
+    for cell in cells:
+        got = _cell_sum([(p, b.intersect_domain(cell)) for p, b in pieces], cell, fixed, budget)
+        if got.side == "upper":
+            above = got if above is None or got.value > above.value else above  # type: ignore[operator]
+        elif best is None or got.value > best.value:  # type: ignore[operator]
+            best = got
+    if above is not None and (best is None or above.value > best.value):  # type: ignore[operator]
+        return above
+    return best or Max(0)
+
+
+def _cell_sum(pieces: Sequence[tuple[Part, isl.Map]], cell: isl.Set, fixed: Sequence[str],
+              budget: ExactBudget | None) -> Max:
+    """The maximum over one cell where every piece is present (see _by_reference)."""
+    total = 0
+    argmax = cell
+    overlap = isl.Set.empty(cell.get_space())
+    counted: dict[int, list[isl.Map]] = {}
+    for p, b in pieces:
+        if b.is_empty():
+            continue
+        if budget is not None and budget.spent():
+            raise _TooHard
+        got = _piece_max(p, b, cell, fixed)
+        if got is None:
+            raise _TooHard
+        value, where = got
+        total += p.weight * value
+        argmax = argmax.intersect(where)
+        c = b.apply_range(p.to_counted) if p.to_counted is not None else b
+        same = counted.setdefault(id(p), [])  # arrays do not overlap: only pieces of one part can
+        for other in same:
+            overlap = overlap.union(c.intersect(other).domain())
+        same.append(c)
+    hit = argmax.subtract(overlap)
+    if not hit.is_empty():
+        return Max(total, at=_first(hit, fixed))
+    return Max(total, side="upper", at=_first(cell, fixed),
+               why=("the maximum over " + ", ".join(fixed) + " was not found exactly; upper bound: the sum of "
+                    "the largest part each reference touches"))
+
+
+def _piece_max(p: Part, b: isl.Map, r: isl.Set, fixed: Sequence[str]) -> tuple[int, isl.Set] | None:
+    """Largest count of one piece `b` (outer values -> elements) of a part over `r`, and where it is
+    reached; None when the piece is not one shape shifted over `r`."""
+    lo = b.lexmin_pw_multi_aff()
+    if len(_domains(lo)) != 1:
+        return None
+    n_out = b.dim(_dt.out)
+    normal = b.range_product(isl.Map.from_pw_multi_aff(lo)).apply_range(_shift_map(n_out)) if n_out else b
+    o_star = _first(b.domain(), fixed)
+    if o_star is None:
+        return 0, r
+    at = r
+    for k, name in enumerate(fixed):
+        at = at.fix_val(_dt.set, k, _val(r.get_ctx(), o_star[name]))
+    if not normal.is_equal(isl.Map.from_domain_and_range(b.domain(), normal.intersect_domain(at).range())):
+        return None
+    counted = b.apply_range(p.to_counted) if p.to_counted is not None else b
+    one = Part(b, counted, 1, None)
+    if p.offset_of is None or not n_out:
+        return _value_at([one], o_star, fixed), b.domain()
+    offsets = isl.Map.from_pw_multi_aff(lo).apply_range(p.offset_of)
+    best, where = -1, isl.Set.empty(r.get_space())
+    for m in _classes(offsets, 0, [MAX_CLASSES]):
+        pt = _first(m.domain(), fixed)
+        if pt is None:
+            continue
+        v = _value_at([one], pt, fixed)
+        if v > best:
+            best, where = v, m.domain()
+        elif v == best:
+            where = where.union(m.domain())
+    return best, where
 
 
 def _classes(m: isl.Map, k: int, left: list[int]) -> list[isl.Map]:
@@ -381,15 +487,14 @@ def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None]
             if ext is not None:
                 layout = "linear"
                 lm = packed_line_map(n, ext, elem, line)
-                strides = [math.prod(ext[k:]) for k in range(n)]
-                lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
-                residue = lo.apply_range(_residue_map(strides, elem, line)) if lo is not None else None
+                rmap = _residue_map([math.prod(ext[k:]) for k in range(n)], elem, line)
             else:
                 lm = aligned_line_map(n, elem, line)
                 # rows aligned: a row's lines depend on where its first element sits in a line
-                lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
-                residue = lo.apply_range(_residue_map([0] * (n - 1) + [1], elem, line)) if lo is not None else None
-            ln_parts[name] = Part(rel, rel.apply_range(lm), 1, residue)
+                rmap = _residue_map([0] * (n - 1) + [1], elem, line)
+            lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
+            residue = lo.apply_range(rmap) if lo is not None else None
+            ln_parts[name] = Part(rel, rel.apply_range(lm), 1, residue, lm, rmap)
             lines = best([ln_parts[name]], (name, "lines"))
         arrays[name] = (best([el_parts[name]], (name, "elements")), lines, layout)
     total_el = (best(list(el_parts.values()), ("", "elements")) if len(el_parts) != 1

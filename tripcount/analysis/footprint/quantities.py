@@ -5,6 +5,7 @@
 
 from __future__ import annotations
 
+import math
 import time
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -153,7 +154,9 @@ def max_over(q: _Quantity, outer: isl.Set, fixed: Sequence[str], sizes: Mapping[
                 for k in range(len(fixed) - 1, -1, -1):
                     if fixed[k] not in used:
                         proj = proj.project_out(isl.dim_type.set, k, 1)
-                cands = points(proj, used, budget)
+                cands = _critical_points(piece.poly, used, sizes, proj)
+                if cands is None:
+                    cands = points(proj, used, budget)
                 if cands is None:
                     return None
                 budget -= len(cands)
@@ -180,6 +183,44 @@ def max_over(q: _Quantity, outer: isl.Set, fixed: Sequence[str], sizes: Mapping[
         best = int(best)
     return (best if best is not None else 0), arg
 
+
+def _critical_points(poly: Any, used: Sequence[str], sizes: Mapping[str, int],
+                     proj: isl.Set) -> list[dict[str, int]] | None:
+    """The values of one fixed variable where a polynomial of degree <= 2 in it takes its maximum over an
+    interval of integers: the ends, and the integers beside the vertex of a parabola inside it (a
+    triangular loop's working set grows like i or i^2, and its outer loop has too many values to try
+    one by one). None when the piece is not of that kind (then its points are tried)."""
+    if len(used) != 1:
+        return None
+    var = used[0]
+    p = poly
+    for name in list(p.variables()):
+        if name in sizes:
+            p = p.substitute(name, sizes[name])
+    if p.variables() - {var}:
+        return None
+    try:
+        cs = p.coeffs_in(var)
+    except ValueError:  # the variable inside a floor: a periodic part, try every value
+        return None
+    if not cs or max(cs) > 2 or not all(c.is_const() for c in cs.values()):
+        return None
+    lo, hi = proj.dim_min_val(0), proj.dim_max_val(0)
+    if not (lo.is_int() and hi.is_int()):
+        return None
+    lo, hi = int(lo.to_python()), int(hi.to_python())
+    whole = isl.Set.universe(proj.get_space())
+    whole = whole.lower_bound_val(isl.dim_type.set, 0, lo).upper_bound_val(isl.dim_type.set, 0, hi)
+    whole = whole.intersect_params(proj.params())  # the sizes, fixed
+    if not proj.is_equal(whole):  # holes (a stride): every point is tried
+        return None
+    cands = {lo, hi}
+    a = cs[2].const_value() if 2 in cs else Fraction(0)
+    b = cs[1].const_value() if 1 in cs else Fraction(0)
+    if a != 0:
+        x = -b / (2 * a)
+        cands |= {k for k in (math.floor(x), math.ceil(x)) if lo <= k <= hi}
+    return [{var: k} for k in sorted(cands)]
 
 
 def _scaled_count(c: FCount, k: int) -> FCount:
