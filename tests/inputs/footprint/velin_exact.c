@@ -65,3 +65,14 @@ void tide_pairs(int n, int m, const double *x, double *g)
             g[i * n + j] = acc;
         }
 }
+
+/* elimination on the quay stiffness matrix, rows shortening as k grows */
+void quay_elimination(int n, double A[n][n])
+{
+    for (int k = 0; k < n; k++)
+        for (int i = k + 1; i < n; i++) {
+            A[i][k] /= A[k][k];
+            for (int j = k + 1; j < n; j++)
+                A[i][j] -= A[i][k] * A[k][j];
+        }
+}

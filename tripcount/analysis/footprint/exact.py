@@ -192,6 +192,7 @@ class Part:
     residue: isl.Map | None
     to_counted: isl.Map | None = None  # { element -> line } (None: elements are counted)
     offset_of: isl.Map | None = None  # { element -> byte offset within its line } (None for elements)
+    layout: tuple[tuple[int, ...], int, int] | None = None  # (element strides, element size, line size)
 
 
 def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
@@ -366,7 +367,7 @@ def _piece_max(p: Part, b: isl.Map, r: isl.Set, fixed: Sequence[str]) -> tuple[i
     for k, name in enumerate(fixed):
         at = at.fix_val(_dt.set, k, _val(r.get_ctx(), o_star[name]))
     if not normal.is_equal(isl.Map.from_domain_and_range(b.domain(), normal.intersect_domain(at).range())):
-        return None
+        return _segment_max(p, b)
     counted = b.apply_range(p.to_counted) if p.to_counted is not None else b
     one = Part(b, counted, 1, None)
     if p.offset_of is None or not n_out:
@@ -383,6 +384,45 @@ def _piece_max(p: Part, b: isl.Map, r: isl.Set, fixed: Sequence[str]) -> tuple[i
         elif v == best:
             where = where.union(m.domain())
     return best, where
+
+
+def _segment_max(p: Part, b: isl.Map) -> tuple[int, isl.Set] | None:
+    """Largest count of a piece that is one contiguous run of a row whose ends move with the outer values
+    (A[i][k+1..N-1] in LU), and where it is reached: the count is an affine expression with floors of
+    the outer values (the run's elements, or floor(last byte / line) - floor(first byte / line) + 1
+    lines), maximised exactly by isl. None for any other piece."""
+    n = b.dim(_dt.out)
+    if n == 0 or (p.to_counted is not None and p.layout is None):
+        return None
+    lo, hi = b.lexmin_pw_multi_aff(), b.lexmax_pw_multi_aff()
+    # lexmin and lexmax agreeing on the first coordinates: every element is in that one row
+    for k in range(n - 1):
+        if not lo.get_pw_aff(k).is_equal(hi.get_pw_aff(k)):
+            return None
+    first, last = lo.get_pw_aff(n - 1), hi.get_pw_aff(n - 1)
+    run = (isl.Map.from_pw_aff(first).apply_range(isl.Map("{ [a] -> [t] : t >= a }"))
+           .intersect(isl.Map.from_pw_aff(last).apply_range(isl.Map("{ [z] -> [t] : t <= z }"))))
+    if not run.is_subset(b.project_out(_dt.out, 0, n - 1)):
+        return None  # holes in the run
+    if p.to_counted is None:
+        f = last.sub(first)
+    else:
+        strides, elem, line = p.layout  # type: ignore[misc]
+        ctx = b.get_ctx()
+
+        def line_of(end: isl.PwMultiAff) -> isl.PwAff:
+            addr = None
+            for k in range(n):
+                term = end.get_pw_aff(k).scale_val(_val(ctx, elem * strides[k]))
+                addr = term if addr is None else addr.add(term)
+            return addr.scale_down_val(_val(ctx, line)).floor()  # type: ignore[union-attr]
+
+        f = line_of(hi).sub(line_of(lo))
+    top = f.max_val()
+    if not top.is_int():
+        return None
+    where = f.eq_set(isl.PwAff.val_on_domain(f.domain(), top))
+    return int(top.to_python()) + 1, where
 
 
 def _classes(m: isl.Map, k: int, left: list[int]) -> list[isl.Map]:
@@ -419,8 +459,8 @@ def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
 class ExactBudget:
     """Time budget of the exact values of one nest (only the time spent computing them counts)."""
 
-    def __init__(self, seconds: float = EXACT_BUDGET_S) -> None:
-        self.seconds = seconds
+    def __init__(self, seconds: float | None = None) -> None:
+        self.seconds = EXACT_BUDGET_S if seconds is None else seconds
         self.used = 0.0
         self.started: float | None = None
 
@@ -494,7 +534,8 @@ def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None]
                 rmap = _residue_map([0] * (n - 1) + [1], elem, line)
             lo = isl.Map.from_pw_multi_aff(rel.lexmin_pw_multi_aff()) if n else None
             residue = lo.apply_range(rmap) if lo is not None else None
-            ln_parts[name] = Part(rel, rel.apply_range(lm), 1, residue, lm, rmap)
+            strides = tuple(math.prod(ext[k:]) for k in range(n)) if ext is not None else (0,) * (n - 1) + (1,)
+            ln_parts[name] = Part(rel, rel.apply_range(lm), 1, residue, lm, rmap, (strides, elem, line))
             lines = best([ln_parts[name]], (name, "lines"))
         arrays[name] = (best([el_parts[name]], (name, "elements")), lines, layout)
     total_el = (best(list(el_parts.values()), ("", "elements")) if len(el_parts) != 1
