@@ -227,3 +227,25 @@ def test_two_rows_at_1000_are_exact():
     # the j loop at i = 999 (a triangular loop: too many values of i to try one by one, its formula
     # (i + 1)*(m + 1) is maximised at the end of the range): rows 0..999 of x and row 999 of g
     assert (ws["j"].whole.elements.value, ws["j"].whole.elements.bound) == (1000 * 1000 + 1000, False)
+
+
+def _packed_lines(rows: int, cols: int) -> int:
+    """Lines of a packed rows x cols matrix of doubles starting on a line boundary, by enumeration."""
+    return len({(8 * (r * cols + c)) // LINE for r in range(rows) for c in range(cols)})
+
+
+def test_threshold_is_the_exact_one_of_the_packed_layout():
+    """Rows of 13 doubles (104 B) share lines: the whole matrix fits a 32 KiB cache (512 lines) up to
+    n = 315 rows, not the 256 of the rows-aligned formula (2 lines per row). The threshold is found with
+    the exact count and checked here by enumeration at it and one past it."""
+    src = "void f(int n, int m, double A[n][m]) {\n for (int i = 0; i < n; i++)\n" \
+          "  for (int j = 0; j < m; j++)\n   A[i][j] += 1.0;\n}\n"
+    fr = pipeline.analyze_text(src, "rows.c", Options(at={"n": 300, "m": 13}, line_size=LINE,
+                                                      caches={"L1": 32 * 1024, "L2": 1024 * 1024},
+                                                      solve_for="n"))
+    (nr,) = fr.nests
+    ws = {lr.loop.var: lr.extras["working_set"] for lr in nr.loops}["i"]
+    t = ws.thresholds["L1"]
+    assert (t.param, t.checked, t.assumes) == ("n", True, None)
+    assert _packed_lines(t.largest, 13) <= 512 < _packed_lines(t.largest + 1, 13)
+    assert t.largest == 315

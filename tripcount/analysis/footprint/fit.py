@@ -28,6 +28,7 @@ if TYPE_CHECKING:
     from tripcount.analysis.footprint.scopes import Analyzer
 
 SEARCH_MAX = 1 << 40  # largest size the threshold search looks at
+SEARCH_STEPS = 48  # evaluations of the exact count in one threshold search, per phase
 THRESHOLD_TIME_S = 0.2  # per threshold search (evaluation without a formula enumerates)
 
 
@@ -91,20 +92,68 @@ def cache_fit(an: Analyzer, ws: WorkingSet) -> None:
 
 
 def _checked(an: Analyzer, ws: WorkingSet, t: Threshold, capacity_lines: int) -> Threshold | None:
-    """The threshold checked with the exact count (packed layout) at it and one past it; None when the
-    exact count disagrees (the formula's layout assumption moved it); marked as resting on the formula's
-    layout assumption when the exact count cannot be had within the limits."""
+    """The threshold checked with the exact count (packed layout) at it and one past it; where the exact
+    count disagrees (the formula's layout assumption moved it), the exact threshold is searched for near
+    it with the exact count; None when that search does not settle within the limits; marked as resting
+    on the formula's layout assumption when the exact count cannot be had at all."""
     if ws.exact_lines is None or t.largest is None:
         return t
-    here = ws.exact_lines({**t.fixed, t.param: t.largest})
-    past = ws.exact_lines({**t.fixed, t.param: t.largest + 1}) if here is not None else None
+    exact = ws.exact_lines
+
+    def fits(v: int) -> bool | None:
+        got = exact({**t.fixed, t.param: v})
+        return None if got is None else got <= capacity_lines
+
+    here = fits(t.largest)
+    past = fits(t.largest + 1) if here is not None else None
     if here is None or past is None:  # not checked within the limits: it holds for the formula's layout
         t.assumes = "rows aligned"
         return t
-    if here <= capacity_lines < past:
+    if here and not past:
         t.checked = True
         return t
-    return None
+    found = _exact_threshold(fits, t.largest, here)
+    if found is None:
+        return None
+    t.largest, t.checked = found, True
+    return t
+
+
+def _exact_threshold(fits: Callable[[int], bool | None], start: int, fits_start: bool) -> int | None:
+    """Largest v with fits(v) and not fits(v + 1), searched from `start` (the formula's threshold, a
+    few percent off at most): steps doubling away from it until the answer changes, then bisection.
+    None when an evaluation is not had within the limits, the size would go below 1, or the search
+    runs long."""
+    lo: int | None = start if fits_start else None  # fits at lo
+    hi: int | None = None if fits_start else start  # not at hi
+    step = 1
+    for _ in range(SEARCH_STEPS):
+        v = start + step if fits_start else start - step
+        if v < 1:
+            return None
+        ok = fits(v)
+        if ok is None:
+            return None
+        if ok == fits_start:  # same answer: step further away
+            lo, hi = (v, hi) if ok else (lo, v)
+            step *= 2
+            continue
+        lo, hi = (lo, v) if fits_start else (v, hi)
+        break
+    if lo is None or hi is None:
+        return None
+    for _ in range(SEARCH_STEPS):
+        if hi - lo <= 1:
+            break
+        mid = (lo + hi) // 2
+        ok = fits(mid)
+        if ok is None:
+            return None
+        lo, hi = (mid, hi) if ok else (lo, mid)
+    if hi - lo != 1:
+        return None
+    return lo
+
 
 def _solve_param(an: Analyzer, f: Callable[[Mapping[str, int]], int | Fraction | None]) -> str | None:
     """--solve-for, the only parameter, or the one the working set grows fastest in at the --at sizes."""
@@ -207,7 +256,8 @@ def flag(ws: WorkingSet, an: Analyzer, diags: list[Diagnostic]) -> None:
         if t.largest is None or t.largest < 1:
             parts.append(f"it cannot fit {lv.name} for any {t.param} >= 1")
         else:
-            parts.append(f"it would fit {lv.name} {'at least ' if t.safe else ''}while {t.text()}"
+            cond = f"{t.param} <= {t.largest}"  # t.text() without its short layout mark: said in full here
+            parts.append(f"it would fit {lv.name} {'at least ' if t.safe else ''}while {cond}"
                          + (" (if every row started on a cache-line boundary)" if t.assumes else ""))
     threshold = ("; " + "; ".join(parts) + (f" ({_fmt_at(others)} fixed)" if others else "")) if parts else ""
     fp = ws.whole
