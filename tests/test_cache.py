@@ -17,6 +17,7 @@ from pathlib import Path
 import pytest
 
 from tripcount import cache
+from tripcount.ir import Span
 from tripcount.options import Options
 
 ROOT = Path(__file__).resolve().parent.parent
@@ -212,6 +213,39 @@ def test_cached_equals_uncached_after_edits(cache_dir):
     assert stmt["line"] == 11 and stmt["text"] == "L[t][q]  +=  A[q][c]"
 
 
+QUAY = """\
+void quay_scan(int N, const double *depth, double *mark)
+{
+    for (int i = 0; i < N; i++) {
+        if (depth[i] < 0.0)
+            break;
+        mark[i] = depth[i];
+    }
+}
+"""
+
+
+@needs_pipeline
+def test_cached_diagnostics_keep_structured_args_and_move_with_the_code(cache_dir):
+    # TC204 names the 'break' and the loop header: both are arguments, moved with an edit
+    # above the nest and rendered again, never found in the message text afterwards
+    o = Options()
+    cold = cache.analyze_file_cached("q.c", QUAY, o)
+    brk = next(d for d in cold["diagnostics"] if d["code"] == "TC204")
+    assert brk["args"]["pos"]["line"] == 5 and brk["args"]["loop"] == {
+        "loop": "i", "line": 3, "column": 5, "end_line": 3, "end_column": 32}
+    assert brk["message"].startswith("'break' at 5:13 can leave loop 'for (i ...)' at 3:5 early")
+    assert cache.analyze_file_cached("q.c", QUAY, o) == cold == cache.analyze_file_uncached("q.c", QUAY, o)
+    moved = "// Velin quay survey\n\n\n" + QUAY
+    st = cache.Store()
+    got = cache.analyze_file_cached("q.c", moved, o, store=st)
+    assert st.writes == 1  # the nest came from the cache
+    assert got == cache.analyze_file_uncached("q.c", moved, o)
+    brk = next(d for d in got["diagnostics"] if d["code"] == "TC204")
+    assert (brk["line"], brk["args"]["pos"]["line"], brk["args"]["loop"]["line"]) == (8, 8, 6)
+    assert brk["message"].startswith("'break' at 8:13 can leave loop 'for (i ...)' at 6:5 early")
+
+
 @needs_pipeline
 def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch):
     o = Options(at={"N": 8, "T": 3})
@@ -281,16 +315,24 @@ def test_read_source_reports_bad_bytes(tmp_path):
 
 
 def test_results_cut_short_by_time_are_not_kept():
-    # a time limit depends on the machine's load: such results are computed again
-    keep = {"code": "TC301", "message": "no closed formula for S1: more than 256 pieces"}
-    assert not cache._depends_on_time(keep)
-    for d in ({"code": "TC310", "message": "analysis of this nest stopped"},
-              {"code": "TC311", "message": "nest not analyzed"},
-              {"code": "TC900", "message": "internal error"},
-              {"code": "TC301", "message": "no closed formula for S1: time limit of 2 s exceeded (sum)"},
-              {"code": "TC402", "message": "no footprint formula: no formula within the footprint "
-                                           "analysis's time of 0.5 s per formula"}):
-        assert cache._depends_on_time(d), d
+    # a time limit depends on the machine's load: such results are computed again; the
+    # decision reads the diagnostics' structured arguments, never their message text
+    from tripcount.diagnostics.engine import AnalysisLimit, FileBudgetSpent, FormulaLimit
+    from tripcount.diagnostics.internal import InternalError
+    from tripcount.diagnostics.memory import FootprintLimit
+
+    span = Span.point(3, 5)
+    keep = FormulaLimit(span, what="S1", reason="more than 256 pieces", fallback="", time_bound=False)
+    assert not cache._depends_on_time(keep.to_dict())
+    worded = FormulaLimit(span, what="S1", reason="time of day", fallback="", time_bound=False).to_dict()
+    assert not cache._depends_on_time(worded)  # the word "time" alone decides nothing
+    for d in (AnalysisLimit(span, reason="time limit", kept="the counts"),
+              FileBudgetSpent(span, seconds=2.0, factor=3),
+              InternalError(span, what="x"),
+              FormulaLimit(span, what="S1", reason="time limit of 2 s exceeded (sum)", fallback="", time_bound=True),
+              FootprintLimit(span, what="some working sets", reason="no formula within 0.5 s", fallback="",
+                             time_bound=True)):
+        assert cache._depends_on_time(d.to_dict()), d
 
 
 def test_an_entry_without_its_summary_is_a_miss(tmp_path):

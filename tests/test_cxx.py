@@ -88,7 +88,7 @@ def test_what_is_not_understood_is_reported():
     fr = analyze_text(src, "lambda.cpp", Options(at={"n": 4}))
     codes = [g.code for g in fr.all_diagnostics()]
     assert any(c in codes for c in ("TC101", "TC215")), codes
-    assert "TC900" not in codes and "TC199" not in codes
+    assert not [c for c in codes if c.startswith("TC9")], codes
     (nr,) = fr.nests
     assert nr.nest.loops[0].var == "i"  # the loop stays; only the statement is not read
 
@@ -142,7 +142,7 @@ def test_hostile_cxx_ends_quickly_with_diagnostics_only(piece):
     t0 = time.perf_counter()
     fr = analyze_text(text, "hostile.cpp", Options(time_limit=2))
     codes = [g.code for g in fr.all_diagnostics()]
-    assert not [c for c in codes if c.startswith("TC9") or c == "TC199"], codes
+    assert not [c for c in codes if c.startswith("TC9")], codes
     assert time.perf_counter() - t0 < 60  # generous: a quadratic rewrite would take hours
 
 

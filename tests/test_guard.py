@@ -213,11 +213,11 @@ def test_file_budget_marks_the_remaining_nests(monkeypatch):
 
 
 def test_limit_diagnostics_are_registered():
-    from tripcount.diagnostics import REGISTRY
+    from tripcount.diagnostics import by_code, engine, internal
 
-    assert REGISTRY["TC310"] is guard.AnalysisLimit
-    assert REGISTRY["TC311"] is guard.FileBudgetSpent
-    assert REGISTRY["TC902"] is guard.ReadFailure
+    assert by_code("TC310") is engine.AnalysisLimit
+    assert by_code("TC311") is engine.FileBudgetSpent
+    assert by_code("TC902") is internal.ReadFailure
 
 
 # Direct `.count_val(` calls outside tripcount/guard.py that still rely on the

@@ -32,7 +32,12 @@ def good_report():
         "settings": {"assume": None, "caches": {"L1": 32768}},
         "files": [{"path": "a.c", "diagnostics": [
             {"line": 2, "column": 5, "end_line": 2, "end_column": 9, "severity": "note", "code": "TC404",
-             "message": "m"}],
+             "message": "m", "args": {"what": "loop 'i'", "reason": [
+                 "used at ", {"line": 3, "column": 9, "end_line": 3, "end_column": 12}, " too"]}},
+            {"line": 2, "column": 5, "end_line": 2, "end_column": 9, "severity": "warning", "code": "TC204",
+             "message": "m", "args": {"pos": {"line": 2, "column": 5, "end_line": 2, "end_column": 9},
+                                      "loop": {"loop": "i", "line": 2, "column": 5, "end_line": 3, "end_column": 9},
+                                      "n": 3, "time_bound": False}}],
             "nests": [{
                 "function": "f", "line": 2, "column": 5, "end_line": 3, "end_column": 9, "parameters": ["N"],
                 "symbolic": {}, "footprint": {"anything": [1, 2]},
@@ -67,6 +72,9 @@ def test_good_report_and_additional_fields():
     (("schema_version",), 2),
     (("files", 0, "diagnostics", 0, "code"), "E42"),
     (("files", 0, "diagnostics", 0, "severity"), "fatal"),
+    (("files", 0, "diagnostics", 0, "args"), ["what"]),
+    (("files", 0, "diagnostics", 1, "args", "pos"), {"line": 2}),
+    (("files", 0, "diagnostics", 1, "args", "loop", "column"), 0),
     (("files", 0, "nests", 0, "line"), 0),
     (("files", 0, "nests", 0, "loops", 0, "trips", "value"), 1.5),
     (("files", 0, "nests", 0, "loops", 0, "trips", "pieces"), [{"when": "true"}]),
@@ -90,6 +98,9 @@ def test_missing_required_fields():
     data = good_report()
     del data["files"][0]["nests"][0]["loops"][0]["trips"]
     assert any("trips" in e for e in report_errors(data))
+    data = good_report()
+    del data["files"][0]["diagnostics"][0]["args"]
+    assert any("args" in e for e in report_errors(data))
 
 
 def pipeline_ready() -> bool:

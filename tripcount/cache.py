@@ -43,6 +43,7 @@ from typing import Any, TextIO
 from tripcount import __version__
 from tripcount.cacheentry import SLICE, valid_entry
 from tripcount.compdb import source_inputs
+from tripcount.diagnostics import rerendered
 from tripcount.options import Options
 from tripcount.paths import cache_dir
 from tripcount.sources import decode_source, read_bytes
@@ -419,7 +420,7 @@ def locate(text: str, path: str, options: Options,
     may read (compdb.source_inputs, passed as `inputs` when already computed),
     so a changed header is a miss.
     """
-    from tripcount.diagnostics import BuildFlagsUnreadable
+    from tripcount.diagnostics.source import BuildFlagsUnreadable
     from tripcount.frontend import parse_text
     from tripcount.ir import Span
 
@@ -555,6 +556,14 @@ def _remap_json(data: Any, remap: _Remap) -> Any:
         elif _is_int(out.get(lk)) and ck not in out:
             out[lk] = remap.line(out[lk])
     return out
+
+
+def _remap_diags(diags: list[dict[str, Any]], remap: _Remap) -> list[dict[str, Any]]:
+    """Stored diagnostics with their positions (also those among their arguments)
+    moved, and their messages rendered again from the moved arguments."""
+    if remap.identity:
+        return diags
+    return [rerendered(d) for d in _remap_json(diags, remap)]
 
 
 def _slices_out(nest: dict[str, Any], toks: Tokens) -> dict[str, Any]:
@@ -775,10 +784,10 @@ def _assemble(layout: Layout, store: Store) -> tuple[list, list, list, bool] | N
         if e.get("nest") is not None:
             nests.append(_slices_in(_remap_json(e["nest"], remap), toks))
             summaries.append(_slices_in(_remap_json(e["summary"], remap), toks))
-        diags.extend(_remap_json(e.get("diagnostics", []), remap))
+        diags.extend(_remap_diags(e.get("diagnostics", []), remap))
     for (_a, _b, e), remap in zip(fn_entries, fn_remaps, strict=True):
-        diags.extend(_remap_json(e.get("diagnostics", []), remap))
-    diags.extend(_remap_json(out_entry.get("diagnostics", []), out_remap))
+        diags.extend(_remap_diags(e.get("diagnostics", []), remap))
+    diags.extend(_remap_diags(out_entry.get("diagnostics", []), out_remap))
     return nests, summaries, diags, True
 
 
@@ -801,7 +810,8 @@ def _depends_on_time(diag: dict[str, Any]) -> bool:
     code = diag.get("code", "")
     if code.startswith("TC9") or code in ("TC310", "TC311"):
         return True
-    return code in ("TC301", "TC402") and "time" in diag.get("message", "")
+    args = diag.get("args")
+    return isinstance(args, dict) and args.get("time_bound") is True
 
 
 def _compute(layout: Layout, path: str, text: str, options: Options,
@@ -831,7 +841,7 @@ def _compute(layout: Layout, path: str, text: str, options: Options,
         if cached.get("nest") is not None:
             nj = _slices_in(_remap_json(cached["nest"], remap), toks)
             sj = _slices_in(_remap_json(cached["summary"], remap), toks)
-        found.append((site, nj, sj, _remap_json(cached.get("diagnostics", []), remap)))
+        found.append((site, nj, sj, _remap_diags(cached.get("diagnostics", []), remap)))
     from tripcount.pipeline import run_nests
 
     for k, (nj, sj, nd) in run_nests(nests, todo, options, _Render(options)).items():

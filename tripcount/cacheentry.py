@@ -15,6 +15,7 @@ import re
 from typing import Any
 
 from tripcount.analysis.summary import NestSummary
+from tripcount.diagnostics import from_dict
 
 MAX_DEPTH = 48  # the deepest entry the cache writes is about 12 levels
 MAX_NODES = 2_000_000
@@ -50,11 +51,19 @@ def bounded(data: Any) -> bool:
 
 
 def valid_diagnostic(d: Any) -> bool:
-    """A diagnostic as Diagnostic.to_dict writes it."""
-    return (isinstance(d, dict) and _pos(d.get("line")) and _pos(d.get("column"))
+    """A diagnostic exactly as Diagnostic.to_dict writes it: a code of the
+    catalogue, and a message that its structured arguments render again."""
+    if not (isinstance(d, dict) and _pos(d.get("line")) and _pos(d.get("column"))
             and all(k not in d or _pos(d[k]) for k in ("end_line", "end_column"))
             and d.get("severity") in SEVERITIES and isinstance(d.get("code"), str)
-            and _CODE.match(d["code"]) is not None and isinstance(d.get("message"), str))
+            and _CODE.match(d["code"]) is not None and isinstance(d.get("message"), str)
+            and isinstance(d.get("args"), dict)):
+        return False
+    try:
+        diag = from_dict(d)
+        return diag is not None and diag.to_dict() == d
+    except (TypeError, ValueError, AttributeError, KeyError):
+        return False
 
 
 def valid_diagnostics(ds: Any) -> bool:

@@ -24,6 +24,7 @@ from tripcount.config import (
     parse_sizes,
 )
 from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.balance import UnmatchedParallel
 from tripcount.ir import Span
 from tripcount.options import Options
 from tripcount.sources import collect_paths, refusal
@@ -247,13 +248,6 @@ def _not_c(results: list) -> bool:
     return True
 
 
-class UnmatchedParallel(Diagnostic):
-    """`--parallel LINE` names a line where no analysed loop starts."""
-
-    code = "TC506"
-    severity = "warning"
-    title = "parallel-line-unmatched"
-    template = "--parallel {line}: no loop of the analysed files starts on line {line}"
 
 
 def unknown_sizes(at: dict[str, int], known: set[str]) -> tuple[str, bool]:

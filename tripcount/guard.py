@@ -42,7 +42,6 @@ from typing import Any
 
 import islpy as isl
 
-from tripcount.diagnostics import Diagnostic
 from tripcount.engine import EngineLimit
 from tripcount.options import Options
 
@@ -79,33 +78,10 @@ class EnumerationLimit(EngineLimit):
     """An exact enumeration that cannot finish within the nest's remaining time."""
 
 
-class AnalysisLimit(Diagnostic):
-    """A nest's analysis stopped at its time or operation budget (partial, never wrong)."""
-
-    code = "TC310"
-    severity = "warning"
-    title = "nest-limit"
-    template = ("analysis of this nest stopped: {reason}; {kept}. "
-                "Raise --time-limit to go further")
 
 
-class FileBudgetSpent(Diagnostic):
-    """A nest not analyzed because its file's time budget was spent on earlier nests."""
-
-    code = "TC311"
-    severity = "warning"
-    title = "file-limit"
-    template = ("nest not analyzed: the file's budget of {seconds:g} s "
-                "({factor} x --time-limit) was spent on the nests before it")
 
 
-class ReadFailure(Diagnostic):
-    """An unexpected failure while reading or modelling a whole file."""
-
-    code = "TC902"
-    severity = "error"
-    title = "internal-error-file"
-    template = "internal error while reading this file ({what}); please report it. The other files are unaffected"
 
 
 @dataclass

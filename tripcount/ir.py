@@ -14,6 +14,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from typing import Any
 
 
 @dataclass(frozen=True, order=True)
@@ -304,11 +305,12 @@ class Empty(Stmt):
 class Unparsed(Stmt):
     """Source the grammar could not read as a statement; skipped with a note.
 
-    `reason` says why (it becomes a diagnostic when the text lies inside a loop nest).
+    `reason` says why (it becomes a diagnostic when the text lies inside a loop nest):
+    text, or a diagnostics Phrase when it names a position (rendered late).
     """
 
     text: str
-    reason: str = ""
+    reason: Any = ""
 
 
 # --------------------------------------------------------------------------

@@ -35,6 +35,9 @@ from tripcount.analysis.summary import (
     StatementSummary,
     WorkingSetSummary,
 )
+from tripcount.diagnostics.gate import BudgetsUnusable
+from tripcount.diagnostics.internal import DocumentFailed
+from tripcount.diagnostics.source import LiveAnalysisSkipped
 from tripcount.lspworker import Worker
 
 log = logging.getLogger("tripcount.lsp")
@@ -136,8 +139,7 @@ def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Ana
     try:
         a.findings = [d.to_dict() for d in findings_for(a.nests, text, budgets, options, levels)]
     except ValueError as exc:  # e.g. a budget naming a cache level the machine lacks
-        a.findings = [{"line": 1, "column": 1, "end_line": 1, "end_column": 1, "severity": "warning",
-                       "code": "TC604", "message": f"budgets not checked: {exc}"}]
+        a.findings = [BudgetsUnusable(None, reason=str(exc)).to_dict()]
     return a
 
 
@@ -426,10 +428,10 @@ def make_server() -> Any:
                 return
             text, version = snap
             if len(text) > MAX_LIVE_CHARS:
+                skipped = LiveAnalysisSkipped(None, kib=len(text) // 1024)
                 self.publish(uri, [{"range": {"start": {"line": 0, "character": 0}, "end": {"line": 0, "character": 0}},
-                                    "severity": 3, "code": None, "source": "tripcount",
-                                    "message": f"document too large for live analysis ({len(text) // 1024} KiB); "
-                                               "run `tripcount analyze` on it"}], version)
+                                    "severity": SEVERITY[skipped.severity], "code": skipped.code,
+                                    "source": "tripcount", "message": skipped.message}], version)
                 return
             prev = self.analyses.get(uri)
             if prev is not None and prev.text == text and not force:
@@ -595,8 +597,7 @@ def _safe_analyze(path: str | None, text: str) -> Analysis:
     except Exception as exc:  # configuration errors, internal errors: keep serving
         log.exception("analysis failed")
         lines = text.split("\n")
-        diag = {"line": 1, "column": 1, "end_line": 1, "end_column": 1, "severity": "error", "code": "TC900",
-                "message": f"tripcount could not analyze this file: {type(exc).__name__}: {exc}"}
+        diag = DocumentFailed(None, what=f"{type(exc).__name__}: {exc}").to_dict()
         return Analysis(text=text, result={"path": path or "<untitled>", "nests": [], "diagnostics": [diag]},
                         lines=lines)
 

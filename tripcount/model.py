@@ -31,7 +31,8 @@ from typing import TYPE_CHECKING, Any
 import islpy as isl
 
 from tripcount import affine as af
-from tripcount.diagnostics import InternalError
+from tripcount.diagnostics.internal import InternalError
+from tripcount.diagnostics.model import BadAssumption, NonAffineSubscript, UnboundedLoop
 from tripcount.ir import NO_SPAN, OmpClauses, Span, Stmt, TranslationUnit
 
 if TYPE_CHECKING:
@@ -348,7 +349,7 @@ def build_nests(
         try:
             assumption = _parse_assumption_text(assume)
         except ValueError as exc:
-            file_diags.append(af.BadAssumption(NO_SPAN, path=path, text=assume, reason=str(exc)))
+            file_diags.append(BadAssumption(NO_SPAN, path=path, text=assume, reason=str(exc)))
     try:
         anests, more = af.extract_nests(unit, path)
     except Exception as exc:  # pragma: no cover - extract_nests already guards itself
@@ -431,7 +432,7 @@ def _model_nest(an: af.ANest, assumption: tuple[af.Cond, list[str]] | None) -> N
                     )
                 else:
                     detail = f"the condition '{lp.cond_text}' need not become false for some parameter values"
-                refusal = af.UnboundedLoop(lp.header, path=an.path, loop=label, detail=detail)
+                refusal = UnboundedLoop(lp.header, path=an.path, loop=label, detail=detail)
                 diags.append(refusal)
                 dom = None
         elif refusal is None:
@@ -473,8 +474,8 @@ def _model_nest(an: af.ANest, assumption: tuple[af.Cond, list[str]] | None) -> N
                 continue
             if a.kind == "write" and any(b.kind == "read" and b.span == a.span for b in st.accesses):
                 continue  # `a[...] += x`: one note for the reference
-            diags.append(af.NonAffineSubscript(
-                    a.span, path=an.path, text=f"{a.array}[{a.texts[0]}]", pos=f"{a.span.line}:{a.span.column}",
+            diags.append(NonAffineSubscript(
+                    a.span, path=an.path, text=f"{a.array}[{a.texts[0]}]", pos=a.span,
                     detail="a flattened subscript whose part beside the multiple of the row length is not "
                            "provably within 0 and the row length on the domain"))
         statements.append(

@@ -29,7 +29,9 @@ from tripcount import guard
 from tripcount.analysis import counts
 from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, StatementResult
 from tripcount.compdb import source_flags
-from tripcount.diagnostics import BuildFlagsUnreadable, InternalError, UnreadableFile
+from tripcount.diagnostics.engine import AnalysisLimit, FileBudgetSpent
+from tripcount.diagnostics.internal import InternalError, ReadFailure, UnreadableFile
+from tripcount.diagnostics.source import BuildFlagsUnreadable
 from tripcount.frontend import parse_text
 from tripcount.ir import Span
 from tripcount.model import Nest, build_nests
@@ -158,7 +160,7 @@ def analyze_nest(nest: Nest, options: Options) -> NestResult:
             stopped.append("counts")
             _complete_counts(result, "count unknown (nest limit reached)")
     if stopped:
-        result.diagnostics.append(guard.AnalysisLimit(nest.span, reason=reason or "limit reached",
+        result.diagnostics.append(AnalysisLimit(nest.span, reason=reason or "limit reached",
                                                       kept=_kept_text(result, stopped)))
     return result
 
@@ -184,7 +186,7 @@ def _kept_text(result: NestResult, stopped: list[str]) -> str:
 
 def _file_failure(path: str, text: str, stage: str, exc: BaseException, snippet: bool) -> FileResult:
     result = FileResult(path=path, source=text if snippet else None)
-    result.diagnostics.append(guard.ReadFailure(
+    result.diagnostics.append(ReadFailure(
         Span.point(1, 1), what=f"{stage}: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
     return result
 
@@ -193,7 +195,7 @@ def _skipped(nest: Nest, options: Options) -> NestResult:
     """A nest left out because its file's time budget is spent (TC311)."""
     skipped = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
     _complete_counts(skipped, "not analyzed (file budget spent)")
-    skipped.diagnostics.append(guard.FileBudgetSpent(
+    skipped.diagnostics.append(FileBudgetSpent(
         nest.span, seconds=guard.FILE_TIME_FACTOR * guard.time_limit_of(options), factor=guard.FILE_TIME_FACTOR))
     return skipped
 
@@ -325,7 +327,7 @@ def analyze_text(text: str, path: str, options: Options, snippet: bool = False) 
     try:
         nests, model_diags = build_nests(unit, assume=options.assume, path=path)
     except Exception as exc:  # build_nests contains failures per nest; this is the last net
-        result.diagnostics.append(guard.ReadFailure(
+        result.diagnostics.append(ReadFailure(
             Span.point(1, 1), what=f"model: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"))
         return _finish(result, path)
     result.diagnostics.extend(model_diags)

@@ -8,7 +8,7 @@ import os
 import stat
 from collections.abc import Iterable
 
-from tripcount.diagnostics import InvalidEncoding
+from tripcount.diagnostics.source import InvalidEncoding
 from tripcount.ir import Span
 from tripcount.paths import cache_dir, is_inside
 

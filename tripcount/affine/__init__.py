@@ -27,28 +27,6 @@ from tripcount.affine.build import _NestBuilder, extract_nests, outermost_fors
 from tripcount.affine.convert import Converter, NotAffine
 from tripcount.affine.ctext import loop_label, mangle, symbol_base
 from tripcount.affine.depth import MAX_DEPTH
-from tripcount.affine.diagnostics import (
-    ArrayDependentBound,
-    BadAssumption,
-    EarlyBreak,
-    ExpressionTooDeep,
-    FloatingLoop,
-    JumpInNest,
-    LoopVarModified,
-    NonAffineBound,
-    NonAffineGuard,
-    NonAffineSubscript,
-    NonConstantStep,
-    NonMonotoneCondition,
-    SwitchInNest,
-    SymbolicParameter,
-    UnboundedLoop,
-    UnmodelledContinue,
-    UnreadStatement,
-    UnsupportedLoopForm,
-    WhileInNest,
-    WrittenValueBound,
-)
 from tripcount.affine.lin import (
     FALSE,
     TRUE,
@@ -94,26 +72,6 @@ from tripcount.affine.nests import AAccess, ALoop, ANest, AStmt
 from tripcount.ctable import base_type, is_floating_type, is_integer_type, type_size
 
 __all__ = [
-    "ArrayDependentBound",
-    "BadAssumption",
-    "EarlyBreak",
-    "ExpressionTooDeep",
-    "FloatingLoop",
-    "JumpInNest",
-    "LoopVarModified",
-    "NonAffineBound",
-    "NonAffineGuard",
-    "NonAffineSubscript",
-    "NonConstantStep",
-    "NonMonotoneCondition",
-    "SwitchInNest",
-    "SymbolicParameter",
-    "UnboundedLoop",
-    "UnmodelledContinue",
-    "UnreadStatement",
-    "UnsupportedLoopForm",
-    "WhileInNest",
-    "WrittenValueBound",
     "And",
     "Atom",
     "BoolConst",

@@ -10,21 +10,9 @@ from typing import Any
 
 from tripcount import ir
 from tripcount.affine.convert import Converter, NotAffine
-from tripcount.affine.ctext import loop_label, mangle, span_pos, stmt_text, symbol_base
+from tripcount.affine.ctext import loop_label, mangle, stmt_text, symbol_base
 from tripcount.affine.decls import FunctionInfo, global_decls
 from tripcount.affine.depth import DEEP_TEXT, cut_deep_function, cut_deep_globals, is_deep_cut
-from tripcount.affine.diagnostics import (
-    EarlyBreak,
-    JumpInNest,
-    LoopVarModified,
-    NonAffineGuard,
-    NonAffineSubscript,
-    SwitchInNest,
-    SymbolicParameter,
-    UnmodelledContinue,
-    UnreadStatement,
-    WhileInNest,
-)
 from tripcount.affine.flatten import split_flat
 from tripcount.affine.lin import Cond, Lin, Var, cond_vars, conj, lin_vars, negate, var
 from tripcount.affine.loops import loop_header, loop_var_guess
@@ -39,7 +27,20 @@ from tripcount.affine.writes import (
     walk_exprs,
 )
 from tripcount.ctable import base_type, is_floating_type, type_size
-from tripcount.diagnostics import Diagnostic, InternalError
+from tripcount.diagnostics import Diagnostic, LoopRef, Phrase
+from tripcount.diagnostics.internal import InternalError
+from tripcount.diagnostics.model import (
+    EarlyBreak,
+    JumpInNest,
+    LoopVarModified,
+    NonAffineGuard,
+    NonAffineSubscript,
+    SwitchInNest,
+    SymbolicParameter,
+    UnmodelledContinue,
+    UnreadStatement,
+    WhileInNest,
+)
 from tripcount.ir import Span, c_text
 
 # Names of class members by the usual conventions (`n_`, `m_rows`).
@@ -191,7 +192,7 @@ class _NestBuilder:
             else:
                 kind = "return" if re.search(r"\breturn\b", getattr(j, "text", "")) else "goto"
             label = loop_label(loop_var_guess(first), first.header)
-            unknown = self.diag(JumpInNest, j.span, kind=kind, pos=span_pos(j.span), loop=label)
+            unknown = self.diag(JumpInNest, j.span, kind=kind, pos=j.span, loop=label)
         self.walk(first, _Ctx((), (), unknown, {}, _Body()))
         return self.finish()
 
@@ -208,17 +209,17 @@ class _NestBuilder:
             kind = "while" if isinstance(s, ir.While) else "do"
             d = ctx.unknown
             if d is None:
-                d = self.diag(WhileInNest, s.span, kind=kind, pos=span_pos(s.span), loop=self.loop_name(ctx))
+                d = self.diag(WhileInNest, s.span, kind=kind, pos=s.span, loop=self.loop_name(ctx))
             # break/continue inside belong to this loop, not to ours
             inner = _Ctx(ctx.loops, ctx.guards, d, dict(ctx.env), _Body(foreign=True))
             self.walk(s.body, inner)
         elif isinstance(s, ir.Switch):
             d = ctx.unknown or ctx.body.dead
             if d is None:
-                d = self.diag(SwitchInNest, s.span, pos=span_pos(s.span))
+                d = self.diag(SwitchInNest, s.span, pos=s.span)
             if ctx.body.dead is None and find_jumps(s.body, {"continue"}, into_loops=False):
                 ctx.body.dead = self.diag(
-                    UnmodelledContinue, s.span, pos=span_pos(s.span), loop=self.loop_name(ctx)
+                    UnmodelledContinue, s.span, pos=s.span, loop=self.loop_name(ctx)
                 )
             self.walk(s.body, _Ctx(ctx.loops, ctx.guards, d, dict(ctx.env), ctx.body))
         elif isinstance(s, ir.Labeled):
@@ -228,7 +229,7 @@ class _NestBuilder:
                 if ctx.unknown is not None:
                     if ctx.body.dead is None:
                         ctx.body.dead = self.diag(
-                            UnmodelledContinue, s.span, pos=span_pos(s.span), loop=self.loop_name(ctx)
+                            UnmodelledContinue, s.span, pos=s.span, loop=self.loop_name(ctx)
                         )
                 else:
                     ctx.body.kills.append(conj(list(ctx.guards)))
@@ -237,10 +238,10 @@ class _NestBuilder:
         elif is_deep_cut(s):  # reported where it was cut; the nest is refused (see build)
             self.add_stmt(s, ctx, s.text, accesses=False)
         elif isinstance(s, ir.Unparsed):
-            reason = f" ({s.reason})" if s.reason else ""
-            self.diag(UnreadStatement, s.span, pos=span_pos(s.span), reason=reason)
+            reason = Phrase((" (", s.reason, ")")) if s.reason else ""
+            self.diag(UnreadStatement, s.span, pos=s.span, reason=reason)
             if re.search(r"\bcontinue\b", s.text) and ctx.body.dead is None:
-                ctx.body.dead = self.diag(UnmodelledContinue, s.span, pos=span_pos(s.span), loop=self.loop_name(ctx))
+                ctx.body.dead = self.diag(UnmodelledContinue, s.span, pos=s.span, loop=self.loop_name(ctx))
             self.add_stmt(s, ctx, s.text, accesses=False)
         elif isinstance(s, ir.Decl):
             for d in s.declarators:
@@ -262,7 +263,7 @@ class _NestBuilder:
         else:
             self.add_stmt(s, ctx, stmt_text(s))
 
-    def loop_name(self, ctx: _Ctx) -> str:
+    def loop_name(self, ctx: _Ctx) -> str | LoopRef:
         if not ctx.loops:
             return "the nest"
         lp = self.loops[ctx.loops[-1]]
@@ -281,7 +282,7 @@ class _NestBuilder:
                     NonAffineGuard,
                     s.cond.span,
                     text=c_text(s.cond),
-                    pos=span_pos(s.cond.span),
+                    pos=s.cond.span,
                     detail=err.detail,
                 )
             self.walk(s.then, _Ctx(ctx.loops, ctx.guards, d, dict(ctx.env), ctx.body))
@@ -333,11 +334,11 @@ class _NestBuilder:
         if own is None:
             brk = find_jumps(s, {"break"}, into_loops=False)
             if brk:
-                own = self.diag(EarlyBreak, brk[0].span, pos=span_pos(brk[0].span), loop=label)
+                own = self.diag(EarlyBreak, brk[0].span, pos=brk[0].span, loop=label)
         if own is None and not self.cut_refused:  # cut code "writes" every variable: no news there
             w = find_var_write(s.body, lp.display)
             if w is not None:
-                own = self.diag(LoopVarModified, w, loop=label, var=lp.display, pos=span_pos(w))
+                own = self.diag(LoopVarModified, w, loop=label, var=lp.display, pos=w)
         if own is not None:
             lp.constraint = None
         lp.refusal = ctx.unknown or ctx.body.dead or own
@@ -396,7 +397,7 @@ class _NestBuilder:
                 subs = None
                 flat = split_flat(conv, ref.indices[0]) if len(ref.indices) == 1 else None
                 if flat is None and (kind != "write" or not any(r is ref and k == "read" for r, k in refs)):
-                    self.diag(NonAffineSubscript, ref.span, text=c_text(ref), pos=span_pos(ref.span), detail=err.detail)
+                    self.diag(NonAffineSubscript, ref.span, text=c_text(ref), pos=ref.span, detail=err.detail)
             etype, esize, extents = self.elem_info(ref, ctx)
             out.append(AAccess(ref.array, kind, subs, texts, ref.span, etype, esize, extents, flat))
         return out

@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 
 from tripcount import ir
+from tripcount.diagnostics import LoopRef
 from tripcount.ir import Span, c_text
 from tripcount.names import mangle
 
@@ -58,15 +59,9 @@ def _decl_text(d: ir.Decl) -> str:
     return f"{d.type_name} {', '.join(parts)}"
 
 
-def span_pos(span: Span) -> str:
-    return f"{span.line}:{span.column}"
-
-
-def loop_label(var: str, header: Span) -> str:
-    """How messages name a loop: "loop 'for (i ...)' at 12:5"."""
-    if var == "?":
-        return f"loop 'for (...)' at {span_pos(header)}"
-    return f"loop 'for ({var} ...)' at {span_pos(header)}"
+def loop_label(var: str, header: Span) -> LoopRef:
+    """How messages name a loop: "loop 'for (i ...)' at 12:5", rendered when shown."""
+    return LoopRef(var, header)
 
 
 # --------------------------------------------------------------------------

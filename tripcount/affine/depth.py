@@ -6,10 +6,9 @@ from dataclasses import dataclass, replace
 from typing import Any
 
 from tripcount import ir
-from tripcount.affine.ctext import span_pos
-from tripcount.affine.diagnostics import ExpressionTooDeep
 from tripcount.diagnostics import Diagnostic
-from tripcount.frontend.diagnostics import NestingTooDeep
+from tripcount.diagnostics.model import ExpressionTooDeep
+from tripcount.diagnostics.source import NestingTooDeep
 from tripcount.ir import Span
 
 # --------------------------------------------------------------------------
@@ -41,9 +40,9 @@ class DeepCut:
     def diagnostic(self, path: str | None, in_nest: bool) -> Diagnostic:
         """TC112 for statements, TC220 for an expression."""
         if self.kind == "statement":
-            return NestingTooDeep(self.at, path=path, where=span_pos(self.at), limit=MAX_DEPTH)
+            return NestingTooDeep(self.at, path=path, where=self.at, limit=MAX_DEPTH)
         effect = "; the nest around it is not counted" if in_nest else ""
-        return ExpressionTooDeep(self.at, path=path, pos=span_pos(self.at), limit=MAX_EXPR_LEVEL, effect=effect)
+        return ExpressionTooDeep(self.at, path=path, pos=self.at, limit=MAX_EXPR_LEVEL, effect=effect)
 
 
 def is_deep_cut(n: ir.Node) -> bool:

@@ -10,18 +10,6 @@ from typing import TYPE_CHECKING, Any
 from tripcount import ir
 from tripcount.affine.convert import Converter, NotAffine
 from tripcount.affine.ctext import loop_label, mangle
-from tripcount.affine.diagnostics import (
-    ArrayDependentBound,
-    FloatingLoop,
-    IntegerWrap,
-    NonAffineBound,
-    NonConstantStep,
-    NonMonotoneCondition,
-    UnboundedLoop,
-    UnsignedComparison,
-    UnsupportedLoopForm,
-    WrittenValueBound,
-)
 from tripcount.affine.inttypes import int_type, range_issues, unsigned_condition
 from tripcount.affine.lin import (
     And,
@@ -50,6 +38,18 @@ from tripcount.affine.walkctx import _Ctx, _Resolver
 from tripcount.affine.writes import write_target
 from tripcount.ctable import base_type, is_floating_type
 from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.model import (
+    ArrayDependentBound,
+    FloatingLoop,
+    IntegerWrap,
+    NonAffineBound,
+    NonConstantStep,
+    NonMonotoneCondition,
+    UnboundedLoop,
+    UnsignedComparison,
+    UnsupportedLoopForm,
+    WrittenValueBound,
+)
 from tripcount.ir import c_text
 
 if TYPE_CHECKING:

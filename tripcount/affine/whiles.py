@@ -14,17 +14,16 @@ from __future__ import annotations
 from dataclasses import replace
 
 from tripcount import ir
-from tripcount.affine.ctext import span_pos
-from tripcount.affine.diagnostics import PerWhileIteration, UncountedWhile
 from tripcount.affine.loops import parse_step
 from tripcount.affine.writes import collect_writes, find_jumps, write_target
-from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics import Diagnostic, Phrase
+from tripcount.diagnostics.model import PerWhileIteration, UncountedWhile
 from tripcount.ir import c_text
 
 _RELATIONS = ("<", "<=", ">", ">=", "!=")
 
 
-def disguised_for(prev: ir.Stmt | None, w: ir.While) -> tuple[ir.For | None, str]:
+def disguised_for(prev: ir.Stmt | None, w: ir.While) -> tuple[ir.For | None, str | Phrase]:
     """The `for` a `while` stands for (with `prev` as its initialization), or None and the reason."""
     cond = w.cond
     if not (isinstance(cond, ir.Binary) and cond.op in _RELATIONS):
@@ -52,7 +51,7 @@ def disguised_for(prev: ir.Stmt | None, w: ir.While) -> tuple[ir.For | None, str
     jumps = find_jumps(rest, {"break", "continue"}, into_loops=False) + find_jumps(rest, {"return", "goto"}, True)
     if jumps:
         kind = jumps[0].kind if isinstance(jumps[0], ir.Jump) else "jump"
-        return None, f"'{kind}' at {span_pos(jumps[0].span)} can leave it early"
+        return None, Phrase((f"'{kind}' at ", jumps[0].span, " can leave it early"))
     header = ir.Span(w.span.line, w.span.column, cond.span.end_line, cond.span.end_column + 1)
     return ir.For(w.span, prev, cond, last.expr, rest, header), ""
 
@@ -95,7 +94,7 @@ def uncounted_whiles(fn: ir.Function, path: str) -> tuple[list[Diagnostic], dict
         if isinstance(n, ir.For):
             if enclosing is not None:
                 kind = "while" if isinstance(enclosing, ir.While) else "do"
-                per_nest[id(n)] = PerWhileIteration(n.span, path=path, kind=kind, line=enclosing.span.line)
+                per_nest[id(n)] = PerWhileIteration(n.span, path=path, kind=kind, while_at=enclosing.span)
             continue
         if isinstance(n, ir.Expr):
             continue
@@ -105,7 +104,7 @@ def uncounted_whiles(fn: ir.Function, path: str) -> tuple[list[Diagnostic], dict
                 _, reason = disguised_for(prev if isinstance(prev, ir.Stmt) else None, n)
             else:
                 reason = "'do' loops are not modelled (the body runs before the first test)"
-            diags.append(UncountedWhile(n.span, path=path, kind=kind, pos=span_pos(n.span), function=fn.name,
+            diags.append(UncountedWhile(n.span, path=path, kind=kind, pos=n.span, function=fn.name,
                                         reason=reason))
             enclosing = n
         kids = ir.children(n)

@@ -20,38 +20,11 @@ import islpy as isl
 from tripcount import engine, guard
 from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
 from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.engine import FormulaLimit, VerifyMismatch, VerifyPassed
 from tripcount.formula import piecewise_value
 from tripcount.ir import Span
 from tripcount.model import Nest
 from tripcount.options import Options
-
-
-class FormulaLimit(Diagnostic):
-    """The engine hit a limit; the value at the given sizes is still exact."""
-
-    code = "TC301"
-    severity = "warning"
-    title = "formula-limit"
-    template = "no closed formula for {what}: {reason}; {fallback}"
-
-
-class VerifyMismatch(Diagnostic):
-    """--verify found a formula or figure that disagrees with enumeration (a bug: please report)."""
-
-    code = "TC302"
-    severity = "error"
-    title = "verify-mismatch"
-    template = "formula for {what} gives {got} but enumeration counts {want} at {point}"
-
-
-class VerifyPassed(Diagnostic):
-    """--verify summary for one nest."""
-
-    code = "TC303"
-    severity = "note"
-    title = "verified"
-    template = ("verified {n} formulas of this nest, as computed and as printed, "
-                "against enumeration at {points} parameter points")
 
 
 def context_for(s: isl.Set, context: isl.Set | None) -> isl.Set | None:
@@ -125,7 +98,9 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
             fallback = "no value either"
         if v is None and not options.at:
             fallback = "give --at sizes for exact values"
-        diags.append(FormulaLimit(span, what=what, reason=str(exc), fallback=fallback))
+        # EngineLimit carries no kind yet: its text says whether a time limit stopped it
+        diags.append(FormulaLimit(span, what=what, reason=str(exc), fallback=fallback,
+                                  time_bound="time" in str(exc)))
         return Count(value=v, formula=None, note="formula not available: " + str(exc))
     c = Count(value=value_at(formula, s, options), formula=formula)
     c.locate(options.sizes(params_of(s)))

@@ -17,27 +17,18 @@ from typing import Any
 
 from tripcount import engine
 from tripcount.analysis.counts import (
-    VerifyMismatch,
     in_context,
     point_text,
     printed_value,
     verification_points,
 )
 from tripcount.analysis.results import Count, NestResult
-from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.engine import VerifyMismatch, WorkVerified
 from tripcount.options import Options
 
 MAX_POINTS = 60
 
 
-class WorkVerified(Diagnostic):
-    """--verify summary for the flop, load and store figures of one nest."""
-
-    code = "TC304"
-    severity = "note"
-    title = "work-verified"
-    template = ("verified {n} flop, load and store figures of this nest, as computed and as printed, "
-                "against weights times enumerated statement counts at {points} parameter points")
 
 
 def _figures(result: NestResult) -> list[tuple[str, Count, dict[int, int]]]:

@@ -9,46 +9,25 @@
 # build.py (callbacks that build the IR); cxx.py first rewrites the tokens of
 # a C++ file into the C that the rest reads. Nothing here raises on bad input:
 # what cannot be read becomes a diagnostic (codes TC100..TC189, see
-# frontend/diagnostics.py) and the rest of the file is read on.
+# tripcount/diagnostics/source.py) and the rest of the file is read on.
 
 from __future__ import annotations
 
 import gc
 
 from tripcount import ir
-from tripcount.diagnostics import Diagnostic, InvalidEncoding
+from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.internal import FrontEndError
+from tripcount.diagnostics.source import InvalidEncoding
 from tripcount.frontend.build import Context
 from tripcount.frontend.cxx import is_cxx_path, looks_cxx
 from tripcount.frontend.cxx import rewrite as rewrite_cxx
-from tripcount.frontend.diagnostics import (
-    BadDirective,
-    BadMacroCall,
-    ConditionNotEvaluated,
-    ErrorDirective,
-    ExpansionLimit,
-    FileTooLarge,
-    FrontEndError,
-    FunctionSkipped,
-    MacroRecursion,
-    NestingTooDeep,
-    OmpClauseProblem,
-    StrayDirective,
-    StrayPragma,
-    SyntaxProblem,
-    UnbalancedBraces,
-    UnterminatedComment,
-    UnterminatedConditional,
-)
 from tripcount.frontend.includes import Includes
 from tripcount.frontend.lexer import SourceMap
 from tripcount.frontend.parser import UnitParser, engine
 from tripcount.frontend.preprocess import preprocess as _preprocess
 
 __all__ = [
-    "BadDirective", "BadMacroCall", "ConditionNotEvaluated", "ErrorDirective",
-    "ExpansionLimit", "FileTooLarge", "FrontEndError", "FunctionSkipped", "MacroRecursion", "NestingTooDeep",
-    "OmpClauseProblem", "StrayDirective", "StrayPragma", "SyntaxProblem",
-    "UnbalancedBraces", "UnterminatedComment", "UnterminatedConditional",
     "Includes", "decode", "parse_file", "parse_text",
 ]
 

@@ -16,7 +16,7 @@ from lark import Token, Transformer
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.lexer import SourceMap, char_value, int_value
 from tripcount.frontend.scanner import resolve_typedef
 
@@ -174,7 +174,7 @@ class IRBuilder(Transformer):
             return replace(stmt, omp=omp)
         if self.ctx is not None:
             self.ctx.diags.append(d.StrayPragma(omp.span, directive=omp.directive,
-                                                where=d.where(omp.span.line, omp.span.column)))
+                                                where=ir.Span.point(omp.span.line, omp.span.column)))
         return stmt
 
     # ------------------------------------------------------------ declarations

@@ -10,7 +10,7 @@ import os
 from dataclasses import dataclass, field
 
 from tripcount import ir
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.lexer import Tok
 from tripcount.options import Includes  # noqa: F401 - where the front end's users find it
 from tripcount.sources import read_bytes

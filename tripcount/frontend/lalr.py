@@ -26,16 +26,17 @@ from lark import __version__ as lark_version
 from lark.exceptions import UnexpectedInput
 from lark.lexer import Lexer
 
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import Phrase
 from tripcount.frontend.build import IRBuilder
+from tripcount.ir import Span
 from tripcount.paths import cache_dir
 
 
 class ParseFailure(Exception):
     """A token range the grammar could not read; `reason` says why."""
 
-    def __init__(self, reason: str, token: Token | None = None) -> None:
-        super().__init__(reason)
+    def __init__(self, reason: str | Phrase, token: Token | None = None) -> None:
+        super().__init__(str(reason))
         self.reason = reason
         self.token = token
 
@@ -292,10 +293,10 @@ def engine() -> _Engine:
     return _ENGINE
 
 
-def _describe(tok: Token | None) -> str:
+def _describe(tok: Token | None) -> str | Phrase:
     if tok is None or tok.type == "$END":
         return "it ends before the statement is complete"
-    where = d.where(tok.line, tok.column)
+    where = Span.point(tok.line, tok.column)
     if tok.type == "BAD":
-        return f"unexpected character '{tok}' at {where}"
-    return f"unexpected '{tok}' at {where}"
+        return Phrase((f"unexpected character '{tok}' at ", where))
+    return Phrase((f"unexpected '{tok}' at ", where))

@@ -9,7 +9,7 @@ import re
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 
 
 class SourceMap:
@@ -159,7 +159,7 @@ def tokenize(text: str, diags: list[Diagnostic] | None = None,
             if diags is not None and smap is not None:
                 line, col = smap.position(sp.start(s) if mapped else s)
                 diags.append(d.UnterminatedComment(ir.Span(line, col, line, col + 2),
-                                                   where=d.where(line, col)))
+                                                   where=ir.Span.point(line, col)))
             break
         if mapped:
             s, e = sp.start(s), sp.end(e)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from tripcount import ir
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.lexer import Tok
 from tripcount.frontend.scanner import skip_parens, split_commas
 from tripcount.frontend.vocab import OMP_DIRECTIVES, SCHEDULE_KINDS
@@ -44,7 +44,7 @@ def omp_clauses(up: UnitParser, p: Tok) -> ir.OmpClauses | None:
             end = skip_parens(toks, k)
             args = toks[k + 1:end - 1]
             k = end
-        w = d.where(*up.smap.position(t.start))
+        w = ir.Span.point(*up.smap.position(t.start))
         if name == "schedule":
             parts = split_commas(args)
             kind_toks = parts[0] if parts else []

@@ -24,7 +24,7 @@ from lark import Token
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.build import PragmaToken, cover
 from tripcount.frontend.enums import enum_constants
 from tripcount.frontend.lalr import ParseFailure, engine
@@ -244,7 +244,7 @@ class UnitParser(Scanner, Recovery):
                     span = self.smap.span(toks[a].start, toks[c].end)
                     self.diags.append(d.FunctionSkipped(
                         span, name=name_before_paren(toks[a:b]),
-                        where=d.where(span.line, span.column),
+                        where=ir.Span.point(span.line, span.column),
                         reason=f"internal error ({type(exc).__name__}: {exc}); please report it"))
                     continue
                 if f is not None:
@@ -268,7 +268,7 @@ class UnitParser(Scanner, Recovery):
         if skipped:
             first = skipped[0]
             self.diags.append(d.FileTooLarge(
-                first.span, where=d.where(first.span.line, first.span.column),
+                first.span, where=ir.Span.point(first.span.line, first.span.column),
                 count=len(skipped), limit=GRAMMAR_TOKEN_BUDGET))
         return functions, globals_
 
@@ -316,7 +316,7 @@ class UnitParser(Scanner, Recovery):
         try:
             name, ret, params = self._header(header)
         except ParseFailure as exc:
-            w = d.where(fspan.line, fspan.column)
+            w = ir.Span.point(fspan.line, fspan.column)
             self.diags.append(d.FunctionSkipped(fspan, name="?", where=w, reason=exc.reason))
             return None
         body_toks = toks[o:c + 1]
@@ -328,7 +328,7 @@ class UnitParser(Scanner, Recovery):
             body = self.parse_body(self.to_lark(body_toks))
         except (RecursionError, ParseFailure) as exc:
             reason = "it nests too deeply" if isinstance(exc, RecursionError) else exc.reason
-            w = d.where(fspan.line, fspan.column)
+            w = ir.Span.point(fspan.line, fspan.column)
             self.diags.append(d.FunctionSkipped(fspan, name=name, where=w, reason=reason))
             return None
         return ir.Function(fspan, name, ret, params, body)
@@ -449,7 +449,7 @@ class UnitParser(Scanner, Recovery):
         try:
             body = self.parse_body(lt)
         except RecursionError:
-            self.diags.append(d.NestingTooDeep(span, where=d.where(span.line, span.column),
+            self.diags.append(d.NestingTooDeep(span, where=ir.Span.point(span.line, span.column),
                                                limit=MAX_RECOVERY_DEPTH))
             body = ir.Block(span, ())
         body = replace(body, span=span)

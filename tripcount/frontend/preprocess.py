@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 
 from tripcount import ir
 from tripcount.diagnostics import Diagnostic
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.includes import IncludeReader, Includes, IncludeState
 from tripcount.frontend.lexer import SourceMap, Tok, char_value, int_value, tokenize
 from tripcount.frontend.ppexpr import CondEvalError, CondEvaluator
@@ -136,9 +136,9 @@ class Preprocessor(IncludeReader):
     def _span(self, t: Tok) -> ir.Span:
         return self.smap.span(t.start, t.end)
 
-    def _where(self, t: Tok) -> str:
+    def _where(self, t: Tok) -> ir.Span:
         line, col = self.smap.position(t.start)
-        return d.where(line, col)
+        return ir.Span.point(line, col)
 
     # ------------------------------------------------------------------ driver
     def run(self) -> Preprocessed:
@@ -543,7 +543,7 @@ class Preprocessor(IncludeReader):
                         if depth >= MAX_ARG_DEPTH:
                             if not self.exhausted:
                                 self.diags.append(d.ExpansionLimit(
-                                    self.smap.span(start, end), where=d.where(*self.smap.position(start)),
+                                    self.smap.span(start, end), where=ir.Span.point(*self.smap.position(start)),
                                     reason="macro arguments nest too deeply"))
                             self.exhausted = True
                             expanded[idx] = list(args[idx])

@@ -10,7 +10,7 @@ from dataclasses import replace
 from lark import Token
 
 from tripcount import ir
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.build import cover
 from tripcount.frontend.lalr import ParseFailure
 from tripcount.frontend.scanner import match_brackets
@@ -50,7 +50,7 @@ class Recovery:
 
     def _unparsed(self, L: list[Token], i: int, e: int, reason: str) -> ir.Unparsed:
         span = cover(L[i], L[e - 1])
-        self.diags.append(d.SyntaxProblem(span, where=d.where(span.line, span.column),
+        self.diags.append(d.SyntaxProblem(span, where=ir.Span.point(span.line, span.column),
                                           reason=reason))
         return ir.Unparsed(span, self.smap.slice(span), reason)
 
@@ -74,7 +74,7 @@ class Recovery:
                 known = (at, reason) if at is not None else None
         if depth >= MAX_RECOVERY_DEPTH:
             span = cover(L[i], L[e - 1])
-            self.diags.append(d.NestingTooDeep(span, where=d.where(span.line, span.column),
+            self.diags.append(d.NestingTooDeep(span, where=ir.Span.point(span.line, span.column),
                                                limit=MAX_RECOVERY_DEPTH))
             return ir.Unparsed(span, self.smap.slice(span), "nested too deeply")
         m = self._match

@@ -6,9 +6,10 @@ from __future__ import annotations
 
 from lark import Token
 
-from tripcount.frontend import diagnostics as d
+from tripcount.diagnostics import source as d
 from tripcount.frontend.lexer import Tok
 from tripcount.frontend.vocab import DROP_WORDS, SKIP_WITH_PARENS, SPEC_WORDS
+from tripcount.ir import Span
 
 
 # ==================================================================== helpers
@@ -324,7 +325,7 @@ class Scanner:
                     if report:
                         line, col = self.smap.position(t.start)
                         self.diags.append(d.UnbalancedBraces(
-                            self.smap.span(t.start, t.end), where=d.where(line, col),
+                            self.smap.span(t.start, t.end), where=Span.point(line, col),
                             reason="this '{' is never closed; the rest of the file is skipped"))
                     break
                 head = _function_head(toks, chunk, i)
@@ -353,6 +354,6 @@ class Scanner:
             line, col = self.smap.position(t.start)
             more = f" (and {len(stray) - 1} more after it)" if len(stray) > 1 else ""
             self.diags.append(d.UnbalancedBraces(
-                self.smap.span(t.start, t.end), where=d.where(line, col),
+                self.smap.span(t.start, t.end), where=Span.point(line, col),
                 reason=f"this '}}' has no matching '{{'{more}; ignored"))
         return items

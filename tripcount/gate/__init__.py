@@ -4,5 +4,5 @@
 #   findings.py     findings_for: budgets, regressions, suppressions of one file
 #   suppress.py     `tripcount: allow` comments and loop header spans
 #   baseline.py     the baseline revision (git) and matching of nests
-#   diagnostics.py  TC6xx
 #   command.py      `tripcount check`
+# Its findings (TC6xx) are in tripcount/diagnostics/gate.py.

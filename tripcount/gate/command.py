@@ -26,6 +26,7 @@ from typing import Any, TextIO
 from tripcount.analysis.summary import NestSummary
 from tripcount.config import CommandLine, build_options, load_config
 from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.gate import BaselineUnavailable
 from tripcount.gate.baseline import (
     BaselineError,
     Git,
@@ -35,7 +36,6 @@ from tripcount.gate.baseline import (
     staged_sources,
 )
 from tripcount.gate.budgets import budgets_from, cache_levels, effective_table
-from tripcount.gate.diagnostics import BaselineUnavailable
 from tripcount.gate.findings import findings_for
 from tripcount.gate.readings import summaries_of
 from tripcount.ir import Span

@@ -20,9 +20,7 @@ from tripcount.analysis.summary import (
 )
 from tripcount.config import ConfigError, parse_bytes
 from tripcount.diagnostics import Diagnostic
-from tripcount.gate.budgets import Budgets, is_level, level_of, level_rank
-from tripcount.gate.diagnostics import KINDS as SUPPRESSION_KINDS
-from tripcount.gate.diagnostics import (
+from tripcount.diagnostics.gate import (
     BudgetUnchecked,
     DegreeBudget,
     DegreeRegression,
@@ -32,7 +30,9 @@ from tripcount.gate.diagnostics import (
     WorkingSetBudget,
     WorkingSetRegression,
 )
+from tripcount.gate.budgets import Budgets, is_level, level_of, level_rank
 from tripcount.gate.readings import has_working_sets, leading_ratio, worst_innermost
+from tripcount.gate.suppress import KINDS as SUPPRESSION_KINDS
 from tripcount.gate.suppress import Suppressions, loop_span
 from tripcount.ir import Span
 
@@ -94,7 +94,7 @@ def working_set_findings(nest: NestSummary, limit: str | int, options: Any, line
         size = ws.occupancy or 0
         return [WorkingSetBudget(loop_span(lp, lines), var=lp.var,
                                  size=("at least " if ws.estimate == LOWER else "") + fmt_bytes(size),
-                                 at=at_text(options.at), level=level_of(size, levels), budget=cap_text, where=where)]
+                                 at=at_text(options.at), level=level_of(size, levels), budget=cap_text, source=where)]
     unproven = [(lp, ws) for lp, ws in readings if not ws.proves_within(cap)]
     if unproven:
         lp, ws = unproven[0]
@@ -115,7 +115,7 @@ def budget_findings(nest: NestSummary, budgets: Budgets, options: Any, lines: li
                 out.append(BudgetUnchecked(nest_span, budget="max_degree", reason="no formula for its counts"))
         elif work.degree > budgets.max_degree:
             out.append(DegreeBudget(nest_span, degree=work.degree, what=work.who,
-                                    leading=" + ".join(work.leading) or "?", budget=budgets.max_degree, where=where))
+                                    leading=" + ".join(work.leading) or "?", budget=budgets.max_degree, source=where))
     if budgets.max_working_set is not None and nest.loops:
         out += working_set_findings(nest, budgets.max_working_set, options, lines, levels, where)
     if budgets.max_imbalance is not None:
@@ -127,7 +127,7 @@ def budget_findings(nest: NestSummary, budgets: Budgets, options: Any, lines: li
             t = bal.threads or threads
             out.append(ImbalanceBudget(loop_span(lp, lines), var=lp.var, imbalance=f"{float(bal.imbalance):.3g}",
                                        threads=f" with {t} threads" if t else "",
-                                       budget=f"{budgets.max_imbalance:g}", where=where))
+                                       budget=f"{budgets.max_imbalance:g}", source=where))
     return out
 
 
@@ -151,7 +151,7 @@ def regression_findings(old: NestSummary, new: NestSummary, budgets: Budgets, op
             if r is not None and r > budgets.max_leading_growth + 1e-12:
                 out.append(LeadingGrowth(span, ratio=f"{r:.3g}", rev=rev, old_leading=" + ".join(l_old),
                                          new_leading=" + ".join(l_new), allowed=f"{budgets.max_leading_growth:g}",
-                                         where=budgets.source))
+                                         source=budgets.source))
     wo, wn = worst_innermost(old), worst_innermost(new)
     if wo is not None and wn is not None and wo[1].estimate in (EXACT, UPPER) and wn[1].estimate in (EXACT, LOWER):
         so, sn = wo[1].occupancy or 0, wn[1].occupancy or 0

@@ -1,8 +1,9 @@
 # SARIF 2.1.0 reporter, for CI code scanning.
 #
 # One run, one rule per diagnostic class (our TC codes, from the diagnostics
-# REGISTRY: title as short description, message template as full
-# description), one result per diagnostic with a physical location: the file
+# catalogue: title as short description, the class's docstring as full
+# description), one result per diagnostic with a physical location and the
+# message's structured arguments as a property bag: the file
 # relative to the working directory (base id SRCROOT) and the region in our
 # own coordinates, which match SARIF's: 1-based lines and columns, exclusive
 # end column, columns counted in Unicode code points (said in `columnKind`).
@@ -12,41 +13,18 @@
 
 from __future__ import annotations
 
-import importlib
 import json
 import os
-import pkgutil
 from typing import Any
 from urllib.parse import quote
 
 from tripcount import __version__
-from tripcount.diagnostics import REGISTRY, Diagnostic
+from tripcount.diagnostics import Diagnostic, catalogue
 from tripcount.report.base import Reporter
 
 SARIF_VERSION = "2.1.0"
 SARIF_SCHEMA = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
 LEVELS = {"error": "error", "warning": "warning", "note": "note"}
-# Modules that are not analysis stages and need not be imported for their diagnostics.
-_SKIP_MODULES = ("tripcount.lsp", "tripcount.cli", "tripcount.__main__")
-
-
-def load_all_diagnostics() -> dict[str, type[Diagnostic]]:
-    """Import every tripcount module so that all diagnostic classes are registered.
-
-    Diagnostic classes live next to the stage that raises them; the rules
-    table must list all of them even when this run raised none. A module
-    that fails to import (an optional stage not yet installed) is skipped.
-    """
-    import tripcount
-
-    for info in pkgutil.walk_packages(tripcount.__path__, "tripcount."):
-        if info.name.startswith(_SKIP_MODULES):
-            continue
-        try:
-            importlib.import_module(info.name)
-        except Exception:  # a broken optional stage must not break the report
-            continue
-    return dict(REGISTRY)
 
 
 def rule_json(cls: type[Diagnostic]) -> dict[str, Any]:
@@ -55,7 +33,7 @@ def rule_json(cls: type[Diagnostic]) -> dict[str, Any]:
         "id": cls.code,
         "name": cls.title,
         "shortDescription": {"text": cls.title},
-        "fullDescription": {"text": cls.template},
+        "fullDescription": {"text": cls.description()},
         "defaultConfiguration": {"level": LEVELS.get(cls.severity, "warning")},
         "properties": {"severity": cls.severity},
     }
@@ -84,7 +62,7 @@ def region_json(d: dict[str, Any]) -> dict[str, int]:
 def sarif_from_json(report: dict[str, Any], root: str | None = None) -> dict[str, Any]:
     """The SARIF log for a JSON report (jsonout.report_json form)."""
     root = os.path.abspath(root or os.getcwd())
-    registry = load_all_diagnostics()
+    registry = {cls.code: cls for cls in catalogue()}
     codes = set(registry)
     for f in report.get("files", []):
         codes.update(d["code"] for d in f.get("diagnostics", []))
@@ -107,6 +85,7 @@ def sarif_from_json(report: dict[str, Any], root: str | None = None) -> dict[str
                 "level": LEVELS.get(d.get("severity", "warning"), "warning"),
                 "message": {"text": d.get("message", "")},
                 "locations": [{"physicalLocation": {"artifactLocation": dict(loc), "region": region_json(d)}}],
+                **({"properties": {"args": d["args"]}} if d.get("args") else {}),
             })
     root_uri = "file://" + quote(root.replace(os.sep, "/").rstrip("/") + "/")
     return {

@@ -9,7 +9,6 @@ from fractions import Fraction
 from typing import Any
 
 from tripcount.analysis.results import Count
-from tripcount.diagnostics import Diagnostic
 
 ASSUMPTIONS = "equal cost per unit of work, no scheduling overhead"
 
@@ -21,51 +20,14 @@ REVERSE = "run the loop backwards (heaviest iterations first)"
 # Diagnostics (TC5xx)
 
 
-class LoadImbalance(Diagnostic):
-    """A parallel loop whose threads get unequal work at the given sizes."""
-
-    code = "TC501"
-    severity = "warning"
-    title = "load-imbalance"
-    template = "{message}"
 
 
-class FlopsUnavailable(Diagnostic):
-    """--work flops asked for, but there are no flop counts for these statements."""
-
-    code = "TC502"
-    severity = "note"
-    title = "balance-work-fallback"
-    template = "parallel loop '{var}': no flop counts for {what}; balancing statement instances instead"
 
 
-class BalanceNotModelled(Diagnostic):
-    """A parallel loop whose balance could not be modelled (the reason is given)."""
-
-    code = "TC503"
-    severity = "note"
-    title = "balance-not-modelled"
-    template = "balance of parallel loop '{var}' not modelled: {reason}"
 
 
-class NestedParallel(Diagnostic):
-    """A parallel loop inside another one (nested parallelism is off by default)."""
-
-    code = "TC504"
-    severity = "note"
-    title = "nested-parallel-loop"
-    template = ("parallel loop '{var}' is inside parallel loop '{outer}' (line {line}); with nested "
-                "parallelism off (the default) it runs on the thread of the enclosing iteration, so "
-                "only the outer loop's balance is modelled")
 
 
-class BalancePartial(Diagnostic):
-    """Part of the balance result is missing or approximate (the reason is given)."""
-
-    code = "TC505"
-    severity = "note"
-    title = "balance-partial"
-    template = "parallel loop '{var}': {what}"
 
 
 # --------------------------------------------------------------------------

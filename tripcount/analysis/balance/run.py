@@ -25,11 +25,6 @@ from tripcount.analysis.balance.results import (
     ASSUMPTIONS,
     PAIR,
     Alternative,
-    BalanceNotModelled,
-    BalancePartial,
-    FlopsUnavailable,
-    LoadImbalance,
-    NestedParallel,
     ParallelBalance,
     schedule_text,
 )
@@ -44,7 +39,15 @@ from tripcount.analysis.balance.space import (
     targets,
 )
 from tripcount.analysis.results import Count, NestResult
-from tripcount.diagnostics import Diagnostic, InternalError
+from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.balance import (
+    BalanceNotModelled,
+    BalancePartial,
+    FlopsUnavailable,
+    LoadImbalance,
+    NestedParallel,
+)
+from tripcount.diagnostics.internal import InternalError
 from tripcount.model import Loop, Nest
 from tripcount.options import Options
 
@@ -130,7 +133,7 @@ def analyze(result: NestResult, options: Options) -> None:
         outer = next((a for a in _ancestors(nest, loop) if a.index in chosen), None)
         if outer is not None:
             result.diagnostics.append(NestedParallel(loop.span, var=loop.var, outer=outer.var,
-                                                     line=outer.header.line))
+                                                     outer_at=outer.header))
             continue
         cur = loop
         for _ in range(max(1, omp.collapse) - 1):
@@ -356,7 +359,6 @@ def _finish(bal: ParallelBalance, loop: Loop, options: Options, diags: list[Diag
         return
     best = choose(alts or [], current)
     bal.best = best
-    lead = f"parallel loop '{bal.var}' (line {bal.line}): "
     state = (f"{'model estimate: ' if bal.estimate else ''}{how} gives {bal.threads} threads imbalance "
              f"{float(imb):.2f} (efficiency {float(1 / imb):.0%}) at {bal.at}")
     if best is None or best.imbalance >= imb or ((best.schedule, best.chunk) == current and not best.rewrite):
@@ -377,5 +379,6 @@ def _finish(bal: ParallelBalance, loop: Loop, options: Options, diags: list[Diag
         clause = _pick([a for a in alts or [] if not a.rewrite], current)
         if best.rewrite and clause is not None and clause.imbalance < imb:
             bal.recommendation += (f"; without a rewrite, {clause.label} gives {float(clause.imbalance):.2f}")
-    diags.append(LoadImbalance(loop.span, message=lead + state + ("; " + advice if advice else "")))
+    diags.append(LoadImbalance(loop.span, var=bal.var, loop_at=loop.header, state=state,
+                               advice="; " + advice if advice else ""))
 

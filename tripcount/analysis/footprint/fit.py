@@ -19,10 +19,10 @@ from tripcount.analysis.footprint.results import (
     CACHE_MODEL_SHORT,
     Threshold,
     WorkingSet,
-    WorkingSetExceedsCache,
 )
 from tripcount.analysis.footprint.table import _fmt_at, _sources
 from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.memory import WorkingSetExceedsCache
 
 if TYPE_CHECKING:
     from tripcount.analysis.footprint.scopes import Analyzer
@@ -265,7 +265,7 @@ def flag(ws: WorkingSet, an: Analyzer, diags: list[Diagnostic]) -> None:
     if fp.fixed:
         at += " (largest over " + ", ".join(fp.fixed) + ")"
     diags.append(WorkingSetExceedsCache(
-        ws.loop.header, var=ws.loop.var, line=ws.loop.span.line,
+        ws.loop.header, var=ws.loop.var, loop_at=ws.loop.span,
         size=("at least " if fp.lower_bound else "") + fmt_bytes(ws.occupancy), at=at,
         level=largest.name, capacity=fmt_bytes(largest.size), outer=ws.outer_var, fits=fits_text, threshold=threshold,
         assumptions=CACHE_MODEL_SHORT + f", whole {an.caches.line_size} B lines; cache sizes {_sources(an.caches)}"))

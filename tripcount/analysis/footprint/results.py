@@ -15,7 +15,6 @@ from tripcount.analysis import flops as flops_mod
 from tripcount.analysis.caches import CacheHierarchy
 from tripcount.analysis.footprint.table import text_table
 from tripcount.analysis.results import Count
-from tripcount.diagnostics import Diagnostic
 from tripcount.model import Loop
 
 LAYOUT_NOTE = ("row-major C layout of the declared types, arrays do not overlap and each starts on a cache-line "
@@ -38,47 +37,12 @@ INTENSITY_ASSUMPTIONS = ("model estimate: flops divided by compulsory traffic --
 # Diagnostics
 
 
-class WorkingSetExceedsCache(Diagnostic):
-    """A loop's working set at the --at sizes is larger than a cache level that the enclosing loop needs.
-
-    Flagged only when the enclosing loop touches this loop's data (cache lines)
-    again in a later iteration: that reuse then finds the data evicted.
-    """
-
-    code = "TC401"
-    severity = "note"
-    title = "working-set-exceeds-cache"
-    template = ("working set of loop '{var}' (line {line}) is {size} at {at}, more than {level} ({capacity}): "
-                "lines that loop '{outer}' uses again in its next iteration are evicted first{fits}{threshold} "
-                "({assumptions})")
 
 
-class FootprintLimit(Diagnostic):
-    """The engine could not give a footprint formula; values at the --at sizes are still exact."""
-
-    code = "TC402"
-    severity = "note"
-    title = "footprint-formula-limit"
-    template = "no footprint formula for {what}: {reason}; {fallback}"
 
 
-class ElementSizeUnknown(Diagnostic):
-    """Arrays whose element type is not declared: bytes and cache lines cannot be given."""
-
-    code = "TC403"
-    severity = "note"
-    title = "element-size-unknown"
-    template = ("element size unknown for {arrays}: working sets in bytes and cache lines are not computed "
-                "(declare the arrays or give --elem-size BYTES)")
 
 
-class FootprintRefused(Diagnostic):
-    """Statements of a loop, or an array's references, could not be modelled, so their footprint is unknown."""
-
-    code = "TC404"
-    severity = "note"
-    title = "footprint-unknown"
-    template = "working sets of {what} unknown: {reason}"
 
 
 # --------------------------------------------------------------------------

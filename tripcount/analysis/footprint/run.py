@@ -12,14 +12,13 @@ from tripcount.analysis.footprint.intensity import intensity
 from tripcount.analysis.footprint.results import (
     CACHE_ASSUMPTIONS,
     LAYOUT_NOTE,
-    ElementSizeUnknown,
-    FootprintLimit,
-    FootprintRefused,
     NestFootprint,
     WorkingSet,
 )
 from tripcount.analysis.footprint.scopes import Analyzer
 from tripcount.analysis.results import LoopResult, NestResult
+from tripcount.diagnostics import Phrase
+from tripcount.diagnostics.memory import ElementSizeUnknown, FootprintLimit, FootprintRefused
 from tripcount.model import Loop
 from tripcount.options import Options
 
@@ -38,10 +37,10 @@ def analyze(result: NestResult, options: Options) -> None:
         k, m = first.map.dim(isl.dim_type.out), other.map.dim(isl.dim_type.out)
         diags.append(FootprintRefused(
             other.span, what=f"array '{name}'",
-            reason=(f"it is used with {m} subscript{'s' if m != 1 else ''} here and with {k} "
-                    f"subscript{'s' if k != 1 else ''} at {first.span.line}:{first.span.column}, so its elements "
-                    "have no single index space; its references are left out and the working sets that contain "
-                    "them are lower bounds")))
+            reason=Phrase((f"it is used with {m} subscript{'s' if m != 1 else ''} here and with {k} "
+                           f"subscript{'s' if k != 1 else ''} at ", first.span, ", so its elements have no single "
+                           "index space; its references are left out and the working sets that contain them are "
+                           "lower bounds"))))
     assumptions = LAYOUT_NOTE + "; cache fit: " + CACHE_ASSUMPTIONS
     levels: list[WorkingSet] = []
     by_index: dict[int, LoopResult] = {lr.loop.index: lr for lr in result.loops}
@@ -100,7 +99,7 @@ def analyze(result: NestResult, options: Options) -> None:
             fallback = f"give --at sizes (for {', '.join(missing)}) for exact values"
         reason = limit_notes[0][len("formula not available ("):].rsplit("):", 1)[0]
         diags.append(FootprintLimit(nest.span, what="some working sets of this nest", reason=reason,
-                                    fallback=fallback))
+                                    fallback=fallback, time_bound="time" in reason))
     nf = NestFootprint(nest_fp, levels, an.caches, dict(an.at) if an.has_at else {}, total_flops,
                        sized=an.has_at or not nest.params)
     nf.intensity = intensity(total_flops, nest_fp, nest, options)

@@ -1,13 +1,10 @@
-# Diagnostics of the gate (TC6xx): budget findings, baseline regressions,
-# suppression comments and an unusable baseline; and which suppression kind
-# silences which finding.
+# Diagnostics of the gate, `tripcount check` (TC6xx): budget findings, baseline
+# regressions, suppression comments and an unusable baseline. `kind` is the
+# suppression kind (`tripcount: allow KIND`) that silences a finding.
 
 from __future__ import annotations
 
-from tripcount.diagnostics import Diagnostic
-
-# --------------------------------------------------------------------------
-# Diagnostics (TC6xx)
+from tripcount.diagnostics.base import Diagnostic
 
 
 class DegreeBudget(Diagnostic):
@@ -17,7 +14,7 @@ class DegreeBudget(Diagnostic):
     severity = "error"
     title = "degree-budget"
     template = ("work of this nest has degree {degree} in the sizes ({what} ~ {leading}); "
-                "the budget is degree {budget} (max_degree{where})")
+                "the budget is degree {budget} (max_degree{source})")
 
 
 class WorkingSetBudget(Diagnostic):
@@ -27,7 +24,7 @@ class WorkingSetBudget(Diagnostic):
     severity = "error"
     title = "working-set-budget"
     template = ("innermost working set of loop '{var}' is {size} at {at}, which needs {level}; "
-                "the budget is {budget} (max_working_set{where})")
+                "the budget is {budget} (max_working_set{source})")
 
 
 class ImbalanceBudget(Diagnostic):
@@ -37,7 +34,7 @@ class ImbalanceBudget(Diagnostic):
     severity = "error"
     title = "imbalance-budget"
     template = ("parallel loop '{var}' has imbalance {imbalance} (busiest thread / mean){threads}; "
-                "the budget is {budget} (max_imbalance{where})")
+                "the budget is {budget} (max_imbalance{source})")
 
 
 class BudgetUnchecked(Diagnostic):
@@ -47,6 +44,16 @@ class BudgetUnchecked(Diagnostic):
     severity = "note"
     title = "budget-unchecked"
     template = "{budget} not checked for this nest: {reason}"
+
+
+class BudgetsUnusable(Diagnostic):
+    """The configured budgets cannot be applied at all (e.g. a budget names a cache level that the
+    machine lacks); no budget of the file is checked."""
+
+    code = "TC605"
+    severity = "warning"
+    title = "budgets-unusable"
+    template = "budgets not checked: {reason}"
 
 
 class DegreeRegression(Diagnostic):
@@ -65,7 +72,7 @@ class LeadingGrowth(Diagnostic):
     severity = "error"
     title = "leading-term-growth"
     template = ("leading term of the work grew {ratio}x since {rev} (was ~ {old_leading}, now ~ {new_leading}); "
-                "allowed {allowed}x (max_leading_growth{where})")
+                "allowed {allowed}x (max_leading_growth{source})")
 
 
 class WorkingSetRegression(Diagnostic):
@@ -94,12 +101,3 @@ class BaselineUnavailable(Diagnostic):
     severity = "warning"
     title = "baseline-unavailable"
     template = "no baseline comparison for this file: {reason}"
-
-
-# Which suppression kind silences which finding.
-SUPPRESSES = {
-    "TC601": "degree", "TC610": "degree", "TC611": "growth",
-    "TC602": "working-set", "TC612": "working-set", "TC603": "imbalance",
-}
-KINDS = ("degree", "growth", "working-set", "imbalance", "all")
-

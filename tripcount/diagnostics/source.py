@@ -1,15 +1,15 @@
-# Diagnostics of the front end (codes TC100..TC189): what the preprocessor and
-# the parser could not read, and what they skipped because of it. Every
-# message names the file-relative line:column it is about (`where`) and the
-# reason, so that it reads well even without the `path:line:col:` prefix.
+# Diagnostics of reading the source (TC1xx): what the preprocessor and the
+# parser could not read and what they skipped because of it (TC100..TC189),
+# then the file's bytes and build flags (TC190..). Positions named in a
+# message are Span arguments, rendered `line:column` when shown.
 
 from __future__ import annotations
 
-from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.base import Diagnostic
 
 
 class SyntaxProblem(Diagnostic):
-    """A statement or declaration the grammar cannot read; it becomes ir.Unparsed."""
+    """A statement or declaration the grammar cannot read; it is skipped."""
 
     code = "TC101"
     severity = "warning"
@@ -193,15 +193,29 @@ class IncludeLimit(Diagnostic):
     template = "header {header} at {where} is not read: {reason}"
 
 
-class FrontEndError(Diagnostic):
-    """An unexpected failure of the front end on one file; the other files are unaffected."""
+class InvalidEncoding(Diagnostic):
+    """Bytes that are not UTF-8; they are replaced and the file is read anyway."""
 
-    code = "TC199"
-    severity = "error"
-    title = "front-end-error"
-    template = "internal error while reading this file ({what}); please report it"
+    code = "TC190"
+    severity = "warning"
+    title = "invalid-encoding"
+    template = "byte {byte} is not valid UTF-8; read as U+FFFD"
 
 
-def where(line: int, column: int) -> str:
-    """The `line:column` text used inside messages."""
-    return f"{line}:{column}"
+class BuildFlagsUnreadable(Diagnostic):
+    """A compilation database that applies to the file cannot be read; the file is read without it."""
+
+    code = "TC191"
+    severity = "warning"
+    title = "compile-commands-unreadable"
+    template = "cannot use {reason}; this file is read without its build flags"
+
+
+class LiveAnalysisSkipped(Diagnostic):
+    """A document too large to analyze while it is being edited (language server); the command line
+    analyzes it."""
+
+    code = "TC192"
+    severity = "note"
+    title = "live-analysis-skipped"
+    template = "document too large for live analysis ({kib} KiB); run `tripcount analyze` on it"

@@ -1,12 +1,11 @@
-# Affine stage: its diagnostics (TC2xx).
+# Diagnostics of the loop-nest model (TC2xx). Refusals are warnings: the file
+# is fine, the tool only declines to count that part. Notes explain modelling
+# choices. A loop named in a message is a LoopRef argument, a statement's
+# position a Span, both rendered when the message is shown.
 
 from __future__ import annotations
 
-from tripcount.diagnostics import Diagnostic
-
-# --------------------------------------------------------------------------
-# Diagnostics of this stage (TC2xx). Refusals are warnings: the file is fine,
-# the tool only declines to count that part. Notes explain modelling choices.
+from tripcount.diagnostics.base import Diagnostic
 
 
 class NonConstantStep(Diagnostic):
@@ -191,7 +190,8 @@ class ExpressionTooDeep(Diagnostic):
 
 
 class UnsignedComparison(Diagnostic):
-    """A loop bound compared in unsigned arithmetic: a negative value wraps, modelled as C does."""
+    """A loop bound compared in unsigned arithmetic: where it is negative it wraps (E + 2^32 or E + 2^64),
+    counted as C does."""
 
     code = "TC221"
     severity = "note"
@@ -201,7 +201,8 @@ class UnsignedComparison(Diagnostic):
 
 
 class IntegerWrap(Diagnostic):
-    """The loop variable can leave the range of its C type; counted assuming it does not."""
+    """The loop variable can step past the range of its C type (it wraps or overflows) when the stated
+    condition holds; counted assuming it does not."""
 
     code = "TC222"
     severity = "warning"
@@ -210,7 +211,8 @@ class IntegerWrap(Diagnostic):
 
 
 class UncountedWhile(Diagnostic):
-    """A `while`/`do` loop outside every nest whose iteration count is not known."""
+    """A `while`/`do` loop outside every nest whose iteration count is not known (it is not a counted
+    loop in disguise); named with the reason."""
 
     code = "TC223"
     severity = "warning"
@@ -225,5 +227,5 @@ class PerWhileIteration(Diagnostic):
     code = "TC224"
     severity = "note"
     title = "per-while-iteration"
-    template = ("this nest is counted per iteration of the '{kind}' loop at line {line}, whose number of "
+    template = ("this nest is counted per iteration of the '{kind}' loop at line {while_at:line}, whose number of "
                 "iterations is not known")
