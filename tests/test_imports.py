@@ -146,5 +146,15 @@ def test_no_stage_imports_a_later_one():
     assert not back, f"imports of a later stage: {back}"
 
 
+def test_the_diagnostics_catalogue_stays_light():
+    # reporters (SARIF from cached results) and the cache load the whole catalogue: its
+    # modules may use only the IR's spans and each other, never a stage that loads the engine
+    g = graph()
+    catalogue = {m for m in g if m == "tripcount.diagnostics" or m.startswith("tripcount.diagnostics.")}
+    assert {"tripcount.diagnostics.base", "tripcount.diagnostics.source", "tripcount.diagnostics.internal"} <= catalogue
+    outside = sorted(f"{a} -> {b}" for a in catalogue for b in g[a] if b not in catalogue | {"tripcount.ir"})
+    assert not outside, outside
+
+
 def test_stage_check_can_fail():
     assert rank("tripcount.report.text") > rank("tripcount.analysis.counts") > rank("tripcount.ir")

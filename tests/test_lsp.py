@@ -258,7 +258,7 @@ async def test_server_survives_out_of_order_and_huge_input(client: LanguageClien
     huge = "/* tide table */\n" + ("int t%d;\n" * 1) * 0 + "x" * (lsp.MAX_LIVE_CHARS + 10)
     huge_uri = await _open(client, "huge.c", huge)
     notes = client.diagnostics[huge_uri]
-    assert len(notes) == 1 and "too large" in notes[0].message
+    assert len(notes) == 1 and "too large" in notes[0].message and notes[0].code == "TC192"
     # the server still answers
     h = await client.text_document_hover_async(types.HoverParams(
         text_document=types.TextDocumentIdentifier(uri=uri), position=types.Position(line=3, character=5)))
@@ -332,6 +332,25 @@ def test_the_editor_reports_unknown_suppression_kinds_like_the_gate(tmp_path, pr
     (tmp_path / "f.c").write_text(text)
     a = lsp.analyze_document(str(tmp_path / "f.c"), text)
     assert [(f["code"], f["line"]) for f in a.findings] == [("TC620", 2)]
+
+
+@needs_pipeline
+def test_unusable_budgets_and_a_failed_document_are_catalogue_diagnostics(tmp_path, private_cache, monkeypatch):
+    text = "void f(int n, double *a) {\n  for (int i = 0; i < n; i++)\n    a[i] = 0;\n}\n"
+    (tmp_path / "f.c").write_text(text)
+    (tmp_path / "pyproject.toml").write_text('[tool.tripcount]\nmax_working_set = "L7"\n')
+    a = lsp.analyze_document(str(tmp_path / "f.c"), text)
+    assert [(f["code"], f["severity"]) for f in a.findings] == [("TC605", "warning")]
+    assert a.findings[0]["message"].startswith("budgets not checked: ") and "reason" in a.findings[0]["args"]
+
+    def broken(path, text, use_cache=True):
+        raise RuntimeError("tide table missing")
+
+    monkeypatch.setattr(lsp, "analyze_document", broken)
+    failed = lsp._safe_analyze(str(tmp_path / "f.c"), text)
+    [d] = failed.result["diagnostics"]
+    assert d["code"] == "TC904" and d["message"] == ("tripcount could not analyze this file: "
+                                                     "RuntimeError: tide table missing")
 
 
 HARD5 = Path(__file__).parent / "inputs" / "robustness" / "hard5_strides.c"
