@@ -49,6 +49,31 @@ def test_other_shapes_are_refused():
     assert not valid_diagnostic({"line": 1, "column": 1, "severity": "note", "code": "X", "message": ""})
 
 
+def test_diagnostics_round_trip_their_structured_args():
+    from tripcount.diagnostics import LoopRef, Phrase
+    from tripcount.diagnostics.model import EarlyBreak
+    from tripcount.diagnostics.source import SyntaxProblem
+    from tripcount.ir import Span
+
+    brk = EarlyBreak(Span(5, 13, 5, 19), pos=Span(5, 13, 5, 19), loop=LoopRef("i", Span(3, 5, 3, 32))).to_dict()
+    syn = SyntaxProblem(Span.point(4, 9), where=Span.point(4, 9),
+                        reason=Phrase(("unexpected '@' at ", Span.point(4, 16)))).to_dict()
+    assert valid_diagnostic(brk) and valid_diagnostic(syn)
+    span_arg = brk["args"]["pos"]
+    for bad in (
+        {k: v for k, v in brk.items() if k != "args"},  # written before arguments were stored
+        {**brk, "message": "'break' somewhere else"},  # a message its arguments do not give
+        {**brk, "args": {**brk["args"], "pos": {**span_arg, "line": 0}}},
+        {**brk, "args": {**brk["args"], "pos": {**span_arg, "file": "x.c"}}},
+        {**brk, "args": {**brk["args"], "loop": {**brk["args"]["loop"], "loop": 7}}},
+        {**brk, "args": {**brk["args"], "pos": {"x": 1}}},
+        {**brk, "args": [1]},
+        {**brk, "code": "TC999"},  # not in the catalogue
+        {**syn, "code": "TC199"},  # a retired code
+    ):
+        assert not valid_diagnostic(bad), bad
+
+
 def test_depth_and_size_are_bounded_without_recursion():
     deep: list = []
     for _ in range(100_000):

@@ -59,11 +59,27 @@ def valid_diagnostic(d: Any) -> bool:
             and _CODE.match(d["code"]) is not None and isinstance(d.get("message"), str)
             and isinstance(d.get("args"), dict)):
         return False
+    if not _valid_args(d["args"]):
+        return False
     try:
         diag = from_dict(d)
         return diag is not None and diag.to_dict() == d
     except (TypeError, ValueError, AttributeError, KeyError):
         return False
+
+
+def _valid_arg(v: Any) -> bool:
+    # a plain value, a span (with `loop` when it names a loop), or a phrase of those
+    if v is None or isinstance(v, (str, int, float, bool)):
+        return True
+    if isinstance(v, list):
+        return all(_valid_arg(x) for x in v)
+    return (isinstance(v, dict) and all(_pos(v.get(k)) for k in _SPAN_KEYS)
+            and set(v) <= {*_SPAN_KEYS, "loop"} and isinstance(v.get("loop", ""), str))
+
+
+def _valid_args(args: dict[str, Any]) -> bool:
+    return all(isinstance(k, str) and _valid_arg(v) for k, v in args.items())
 
 
 def valid_diagnostics(ds: Any) -> bool:
