@@ -19,6 +19,8 @@
 
 from __future__ import annotations
 
+from typing import Any
+
 from tripcount.diagnostics import balance, engine, gate, internal, memory, model, source
 from tripcount.diagnostics.base import (
     REGISTRY,
@@ -30,6 +32,7 @@ from tripcount.diagnostics.base import (
     arg_json,
     sort_key,
 )
+from tripcount.ir import Span
 
 FAMILIES = (source, model, engine, memory, balance, gate, internal)
 
@@ -51,10 +54,8 @@ def by_code(code: str) -> type[Diagnostic] | None:
     return REGISTRY.get(code)
 
 
-def from_dict(d: dict) -> Diagnostic | None:
+def from_dict(d: dict[str, Any]) -> Diagnostic | None:
     """The diagnostic a JSON form (Diagnostic.to_dict) stands for, or None for an unknown code."""
-    from tripcount.ir import Span
-
     cls = by_code(str(d.get("code", "")))
     if cls is None:
         return None
@@ -64,11 +65,11 @@ def from_dict(d: dict) -> Diagnostic | None:
     return cls(span, **{str(k): arg_from_json(v) for k, v in (args if isinstance(args, dict) else {}).items()})
 
 
-def rerendered(d: dict) -> dict:
+def rerendered(d: dict[str, Any]) -> dict[str, Any]:
     """A JSON diagnostic with its message rendered again from its arguments (after
-    its positions were moved); one of an unknown code is returned unchanged."""
+    its positions were moved); one of an unknown or retired code is returned unchanged."""
     diag = from_dict(d)
-    return d if diag is None else {**d, "message": diag.message}
+    return d if diag is None or diag.code != d.get("code") else {**d, "message": diag.message}
 
 
 __all__ = [
