@@ -248,8 +248,6 @@ def _not_c(results: list) -> bool:
     return True
 
 
-
-
 def unknown_sizes(at: dict[str, int], known: set[str]) -> tuple[str, bool]:
     """Names given sizes that no nest has as a parameter ('N (did you mean n?)'),
     and whether none of the given names is used at all (only when some nest

@@ -78,12 +78,6 @@ class EnumerationLimit(EngineLimit):
     """An exact enumeration that cannot finish within the nest's remaining time."""
 
 
-
-
-
-
-
-
 @dataclass
 class Budget:
     """The budgets of one nest."""

@@ -15,13 +15,14 @@
 # the statements under it. Loop-invariant values that are not affine (a call
 # `len(s)`, a member `s->n`) become named size parameters with a note.
 #
-# Modules, in the order they build on each other: diagnostics (TC2xx), lin
-# (the affine language), ctext (C text and isl-safe names), nests (the
-# output), convert (IR expressions -> affine), depth (cutting code nested too
-# deeply), writes (scans of the IR), decls (declarations in scope), walkctx
-# and loops (the walk's state, loop headers; inttypes: C's integer types in
-# them), flatten (flattened subscripts), whiles (while loops that are counted
-# loops, and the others), build (one nest; the entry).
+# Modules, in the order they build on each other (the TC2xx diagnostics are
+# in tripcount/diagnostics/model.py): lin (the affine language), ctext (C
+# text and isl-safe names), nests (the output), convert (IR expressions ->
+# affine), depth (cutting code nested too deeply), writes (scans of the IR),
+# decls (declarations in scope), walkctx and loops (the walk's state, loop
+# headers; inttypes: C's integer types in them), flatten (flattened
+# subscripts), whiles (while loops that are counted loops, and the others),
+# build (one nest; the entry).
 
 from tripcount.affine.build import _NestBuilder, extract_nests, outermost_fors
 from tripcount.affine.convert import Converter, NotAffine

@@ -29,8 +29,6 @@ from tripcount.options import Options
 MAX_POINTS = 60
 
 
-
-
 def _figures(result: NestResult) -> list[tuple[str, Count, dict[int, int]]]:
     """(name, printed count, weight per execution of each statement) of every work figure."""
     out: list[tuple[str, Count, dict[int, int]]] = []

@@ -44,8 +44,7 @@ from tripcount.analysis.balance.space import (
 )
 
 __all__ = [
-    "ASSUMPTIONS", "PAIR", "REVERSE", "Alternative",
-    "ParallelBalance", "Profiles", "Space",
+    "ASSUMPTIONS", "PAIR", "REVERSE", "Alternative", "ParallelBalance", "Profiles", "Space",
     "_space", "alternatives", "analyze", "analyze_loop", "bar_chart", "choose", "const_value",
     "fix_params", "profiles", "schedule_text", "sizes_of", "space_at", "static_per_thread_exact",
     "targets", "thread_formula", "work_formula",

@@ -1,6 +1,6 @@
 # Balance results: the per-loop balance object (the loop extra "parallel"),
-# the what-if alternatives, their JSON and text forms, and the TC5xx
-# diagnostics.
+# the what-if alternatives, their JSON and text forms (the TC5xx diagnostics
+# are in tripcount/diagnostics/balance.py).
 
 from __future__ import annotations
 
@@ -14,20 +14,6 @@ ASSUMPTIONS = "equal cost per unit of work, no scheduling overhead"
 
 PAIR = "pair iteration k with iteration n-1-k"
 REVERSE = "run the loop backwards (heaviest iterations first)"
-
-
-# --------------------------------------------------------------------------
-# Diagnostics (TC5xx)
-
-
-
-
-
-
-
-
-
-
 
 
 # --------------------------------------------------------------------------

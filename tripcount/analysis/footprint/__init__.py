@@ -74,8 +74,7 @@ from tripcount.analysis.footprint.worst import aff_qpoly
 
 __all__ = [
     "CACHE_ASSUMPTIONS", "CACHE_MODEL_SHORT", "INTENSITY_ASSUMPTIONS", "LAYOUT_NOTE", "_SIMPLIFY_MAX_BASIC",
-    "ArrayFootprint", "FCount", "Footprint",
-    "Intensity", "NestFootprint", "Threshold", "WorkingSet", "Worst",
+    "ArrayFootprint", "FCount", "Footprint", "Intensity", "NestFootprint", "Threshold", "WorkingSet", "Worst",
     "access_image", "aff_qpoly", "analyze", "asymptotic_ratio", "enum_count", "fix_params", "intensity",
     "line_map", "max_over", "points", "simplify", "text_table",
 ]

@@ -1,6 +1,7 @@
 # Footprint results: the objects the footprint analysis attaches to a nest's
 # result (working sets, worst cases, cache-fit thresholds, intensity), their
-# JSON shapes, the stated model assumptions, and the TC4xx diagnostics.
+# JSON shapes and the stated model assumptions (the TC4xx diagnostics are in
+# tripcount/diagnostics/memory.py).
 
 from __future__ import annotations
 
@@ -31,18 +32,6 @@ CACHE_MODEL_SHORT = ("model estimate: fully associative capacity-only caches, no
                      "row-major layout")
 INTENSITY_ASSUMPTIONS = ("model estimate: flops divided by compulsory traffic -- every byte of the whole-nest "
                          "footprint moved from memory exactly once, nothing else")
-
-
-# --------------------------------------------------------------------------
-# Diagnostics
-
-
-
-
-
-
-
-
 
 
 # --------------------------------------------------------------------------
