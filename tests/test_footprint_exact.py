@@ -58,11 +58,12 @@ def _unhurried(monkeypatch):
     from tripcount.analysis.footprint import scopes
     monkeypatch.setattr(ex, "EXACT_BUDGET_S", 60.0)
     monkeypatch.setattr(scopes, "CHECK_BUDGET_S", 20.0)
+    monkeypatch.setattr(scopes, "BUDGET_S", 60.0)
 
 
 @functools.lru_cache(maxsize=4)
 def _analysed(key: tuple) -> dict:
-    fr = pipeline.analyze_file(KERNELS, Options(at=dict(key), line_size=LINE, caches=dict(CACHES)))
+    fr = pipeline.analyze_file(KERNELS, Options(at=dict(key), line_size=LINE, caches=dict(CACHES), time_limit=300))
     diags = fr.all_diagnostics()
     assert not [d for d in diags if d.code.startswith("TC9")], [d.render() for d in diags]
     return {nr.nest.function: nr for nr in fr.nests}
@@ -220,7 +221,7 @@ def test_two_rows_at_1000_are_exact():
     src = SRC[SRC.index("void tide_pairs"):]
     src = src[:src.index("\n}\n") + 3]
     fr = pipeline.analyze_text(src, "tide_pairs.c", Options(at={"n": 1000, "m": 1000}, line_size=LINE,
-                                                            caches=dict(CACHES)))
+                                                            caches=dict(CACHES), time_limit=300))
     (nr,) = fr.nests
     ws = {lr.loop.var: lr.extras["working_set"] for lr in nr.loops}
     assert (ws["k"].whole.lines.value, ws["k"].whole.lines.bound) == (250, False)
