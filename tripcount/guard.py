@@ -43,6 +43,7 @@ from typing import Any
 import islpy as isl
 
 from tripcount.engine import EngineLimit
+from tripcount.engine.islconv import val_int
 from tripcount.options import Options
 
 # Calibrated on this project's 2-core machine (bench/guard_calibrate.py):
@@ -373,7 +374,7 @@ def scan_estimate(s: isl.Set | isl.BasicSet) -> int | None:
                 c = aff.get_constant_val()
                 if not c.is_int():
                     return -1
-                vs.append(int(c.to_python()))
+                vs.append(val_int(c))
             if not vs:
                 return 0  # empty set
             vals.append(vs)
@@ -422,7 +423,7 @@ def count_points(s: isl.Set | isl.BasicSet) -> int:
     instead of relying on the count_val patch (tests/test_guard.py lists the
     direct calls still left).
     """
-    return int(bounded_count_val(s).to_python())
+    return val_int(bounded_count_val(s))
 
 
 def _count_in_child(s: Any, original: Callable[..., Any], b: Budget) -> isl.Val:

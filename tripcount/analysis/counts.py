@@ -21,6 +21,7 @@ from tripcount import engine, guard
 from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
 from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics.engine import FormulaLimit, VerifyMismatch, VerifyPassed
+from tripcount.engine.islconv import val_int
 from tripcount.formula import piecewise_value
 from tripcount.ir import Span
 from tripcount.model import Nest
@@ -129,8 +130,8 @@ def middle_point(reach: isl.Set, n_outer: int, options: Options) -> dict[str, in
             lo, hi = t.lexmin(), t.lexmax()
             if lo.is_empty():
                 return None
-            a = int(lo.sample_point().get_coordinate_val(isl.dim_type.set, 0).to_python())
-            b = int(hi.sample_point().get_coordinate_val(isl.dim_type.set, 0).to_python())
+            a = val_int(lo.sample_point().get_coordinate_val(isl.dim_type.set, 0))
+            b = val_int(hi.sample_point().get_coordinate_val(isl.dim_type.set, 0))
         except Exception:  # unbounded or too hard: fall back to the generic piece
             return None
         mid = (a + b) // 2
@@ -211,7 +212,7 @@ def verification_points(formula: engine.Piecewise, s: isl.Set, limit: int = 40) 
                 if pt.is_void():
                     continue
                 kind = isl.dim_type.param if pt.get_space().dim(isl.dim_type.set) == 0 else isl.dim_type.set
-                points.append({n: int(pt.get_coordinate_val(kind, i).to_python())
+                points.append({n: val_int(pt.get_coordinate_val(kind, i))
                                for i, n in enumerate(names)})
         except Exception:  # a piece without a small sample is covered by the grid
             continue

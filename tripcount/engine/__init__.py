@@ -14,6 +14,7 @@ from collections.abc import Mapping
 
 import islpy as isl
 
+from tripcount.engine.islconv import val_int
 from tripcount.engine.memo import Memo, clear_all
 from tripcount.engine.piecewise import Piece, PieceList, Piecewise, add_all, build, qpoly_identical
 from tripcount.engine.qpoly import Floor, QPoly
@@ -129,4 +130,4 @@ def enumerate_count(s: isl.Set, values: Mapping[str, int]) -> int:
     for i in range(s.dim(_dt.param)):
         name = sp.get_dim_name(_dt.param, i)
         s = s.fix_val(_dt.param, i, isl.Val.read_from_str(ctx, str(int(values[name]))))
-    return s.count_val().to_python()
+    return val_int(s.count_val())

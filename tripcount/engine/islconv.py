@@ -21,10 +21,29 @@ _dt = isl.dim_type
 # the values met almost always (coefficients and small constants), ready made:
 # reading a Fraction from text is the costly part of converting constraints
 _SMALL = {str(i): Fraction(i) for i in range(-256, 257)}
+_SMALL_INT = {i: Fraction(i) for i in range(-256, 257)}
+
+
+def val_int(v: isl.Val) -> int:
+    """Exact value of an integer isl Val (ValueError for a fraction or infinity).
+
+    Read with get_num_si when it fits: islpy's to_python() and to_str() leak the
+    C string isl returns (about 32 bytes a call, measured with islpy 2026.2.2),
+    which point scans call once per coordinate -- hundreds of MB over a large run.
+    """
+    if not v.is_int():
+        raise ValueError(f"not an integer: {v}")
+    if v.n_abs_num_chunks(4) <= 1:  # |v| < 2^32 (chunks of 4 bytes): exact in a C long
+        return v.get_num_si()
+    return int(v.to_str())
 
 
 def val_frac(v: isl.Val) -> Fraction:
     """Exact rational value of an isl Val."""
+    if v.is_int() and v.n_abs_num_chunks(4) <= 1:
+        n = v.get_num_si()
+        small = _SMALL_INT.get(n)
+        return small if small is not None else Fraction(n)
     s = v.to_str()
     f = _SMALL.get(s)
     if f is None:

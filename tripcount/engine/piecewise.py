@@ -21,7 +21,7 @@ from math import comb, lcm
 import islpy as isl
 
 from tripcount.engine.fmt import format_conditions
-from tripcount.engine.islconv import bset_constraints, exceeds, lin_isl, params_set
+from tripcount.engine.islconv import bset_constraints, exceeds, lin_isl, params_set, val_int
 from tripcount.engine.memo import Memo
 from tripcount.engine.qpoly import Floor, Lin, QPoly, atom_period, atom_value, compile_conditions
 from tripcount.engine.summation import EngineLimit, _State
@@ -245,7 +245,7 @@ def _sample_env(d: isl.Set) -> dict[str, int] | None:
         return None
     pt = d.sample_point()
     sp = d.get_space()
-    return {sp.get_dim_name(_dt.param, i): pt.get_coordinate_val(_dt.param, i).to_python()
+    return {sp.get_dim_name(_dt.param, i): val_int(pt.get_coordinate_val(_dt.param, i))
             for i in range(d.dim(_dt.param))}
 
 
@@ -303,7 +303,7 @@ def _combine(terms: list[tuple[isl.Set, QPoly]], st: _State | None) -> list[list
     acc = level[0]
     by_mask: dict[int, isl.Set] = {}
     for dom, aff in acc.get_pieces():
-        mask = int(aff.get_constant_val().to_python())
+        mask = val_int(aff.get_constant_val())
         if mask in by_mask:
             by_mask[mask] = by_mask[mask].union(dom)
         else:
@@ -386,12 +386,12 @@ def _param_points(r: isl.Set, limit: int) -> list[dict[str, int]] | None:
     s = r.move_dims(_dt.set, 0, _dt.param, 0, n)
     if not s.is_bounded():
         return None
-    if s.count_val().to_python() > limit:
+    if val_int(s.count_val()) > limit:
         return None
     pts: list[dict[str, int]] = []
 
     def cb(p):
-        pts.append({nm: p.get_coordinate_val(_dt.set, i).to_python() for i, nm in enumerate(names)})
+        pts.append({nm: val_int(p.get_coordinate_val(_dt.set, i)) for i, nm in enumerate(names)})
 
     s.foreach_point(cb)
     return pts
@@ -525,7 +525,7 @@ def _simplify_on_residues(r: isl.Set, f: QPoly, params: tuple[str, ...]) -> QPol
         if r.is_empty():
             return f
         pt = r.sample_point()
-        c = pt.get_coordinate_val(_dt.param, params.index(p)).to_python() % period
+        c = val_int(pt.get_coordinate_val(_dt.param, params.index(p))) % period
         cls = params_set(r.get_ctx(), params, f"exists q : {p} = {period}*q + {c}")
         if r.is_subset(cls):
             k = QPoly.var("_k_")
@@ -549,7 +549,7 @@ def _fix_constant_floors(r: isl.Set, f: QPoly, params: tuple[str, ...], st: _Sta
     if r.is_empty():
         return f
     pt = r.sample_point()
-    env = {p: pt.get_coordinate_val(_dt.param, i).to_python() for i, p in enumerate(params)}
+    env = {p: val_int(pt.get_coordinate_val(_dt.param, i)) for i, p in enumerate(params)}
     fixed: dict = {}
     for a in fl:
         q = atom_value(a, env, {})

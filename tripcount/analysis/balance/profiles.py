@@ -24,6 +24,7 @@ from tripcount.analysis.balance.space import (
     counter,
     static_slice,
 )
+from tripcount.engine.islconv import val_int
 
 POINT_CAP = 20_000  # iterations weighed one by one per loop (about 17 us each with isl)
 ENTRY_CAP = 4_096  # entries of an inner parallel loop enumerated one by one
@@ -51,7 +52,7 @@ def _work_at(sp: Space, point: tuple[int, ...]) -> int | Fraction:
     """Work of one iteration (outer and collapsed variables fixed) by enumeration."""
     total: int | Fraction = 0
     for s, w in sp.stmts:
-        total += w * _fix(s, point).count_val().to_python()
+        total += w * val_int(_fix(s, point).count_val())
     return total
 
 
@@ -72,7 +73,7 @@ def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None) -> tup
         n_entries = 1
     else:
         outer = dom.project_out(SET, d, c)
-        n_entries = int(outer.count_val().to_python())
+        n_entries = val_int(outer.count_val())
         same = not _depends(dom, dom, 0, d) and not any(_depends(s, dom, 0, d) for s, _ in sp.stmts)
         if n_entries == 0:
             entries = []
@@ -88,7 +89,7 @@ def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None) -> tup
     kn = None
     for times, o in entries:
         v = _fix(dom, o)
-        n = int(v.count_val().to_python())
+        n = val_int(v.count_val())
         if n == 0:
             continue
         if const:
@@ -121,7 +122,7 @@ def _block_profile(sp: Space, k: isl.PwAff, o: tuple[int, ...], n: int) -> sch.B
         sl = _fix(k.ge_set(lo).intersect(k.lt_set(hi)), o)
         total: int | Fraction = 0
         for s, w in sp.stmts:
-            total += w * _on_stmt(sl, s, sp.depth + sp.width).count_val().to_python()
+            total += w * val_int(_on_stmt(sl, s, sp.depth + sp.width).count_val())
         work.append(total)
     return sch.BlockProfile(n, size, work)
 
@@ -143,7 +144,7 @@ def static_per_thread_exact(sp: Space, threads: int, chunk: int | None) -> list[
             sl = sl.project_out(PARAM, 0, sl.dim(PARAM))
         total: int | Fraction = 0
         for s, w in sp.stmts:
-            total += w * _on_stmt(sl, s, prefix).count_val().to_python()
+            total += w * val_int(_on_stmt(sl, s, prefix).count_val())
         out.append(total)
     return out
 

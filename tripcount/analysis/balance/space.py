@@ -11,6 +11,7 @@ from fractions import Fraction
 import islpy as isl
 
 from tripcount import ir
+from tripcount.engine.islconv import val_int
 from tripcount.model import Loop, Nest
 from tripcount.options import Options
 
@@ -251,7 +252,7 @@ def _fix(s: isl.Set, values: tuple[int, ...], offset: int = 0) -> isl.Set:
 def _points(s: isl.Set) -> list[tuple[int, ...]]:
     n = s.dim(SET)
     out: list[tuple[int, ...]] = []
-    s.foreach_point(lambda p: out.append(tuple(p.get_coordinate_val(SET, i).to_python() for i in range(n))))
+    s.foreach_point(lambda p: out.append(tuple(val_int(p.get_coordinate_val(SET, i)) for i in range(n))))
     return out
 
 
@@ -259,7 +260,7 @@ def _sample(s: isl.Set) -> tuple[int, ...] | None:
     p = s.sample_point()
     if p.is_void():
         return None
-    return tuple(p.get_coordinate_val(SET, i).to_python() for i in range(s.dim(SET)))
+    return tuple(val_int(p.get_coordinate_val(SET, i)) for i in range(s.dim(SET)))
 
 
 def _depends(s: isl.Set, context: isl.Set, first: int, count: int) -> bool:

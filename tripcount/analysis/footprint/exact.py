@@ -35,6 +35,7 @@ import islpy as isl
 
 from tripcount.affine import mangle
 from tripcount.analysis.footprint.isets import points
+from tripcount.engine.islconv import val_int
 from tripcount.formula import FormulaError, parse_expr
 from tripcount.guard import count_points
 from tripcount.model import Access
@@ -141,7 +142,7 @@ def _first(s: isl.Set, names: Sequence[str]) -> dict[str, int] | None:
     if s.is_empty():
         return None
     p = s.sample_point()
-    return {nm: int(p.get_coordinate_val(_dt.set, k).to_python()) for k, nm in enumerate(names)}
+    return {nm: val_int(p.get_coordinate_val(_dt.set, k)) for k, nm in enumerate(names)}
 
 
 def _relation(s: isl.Set, fixed: Sequence[str]) -> isl.Map:
@@ -438,7 +439,7 @@ def _classes(m: isl.Map, k: int, left: list[int]) -> list[isl.Map]:
     if not top.is_int():
         raise _TooHard
     out: list[isl.Map] = []
-    for v in range(int(top.to_python()) + 1):
+    for v in range(val_int(top) + 1):
         sub = m.fix_val(_dt.out, k, _val(m.get_ctx(), v))
         if not sub.is_empty():
             out.extend(_classes(sub, k + 1, left))

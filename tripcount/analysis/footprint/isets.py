@@ -12,7 +12,7 @@ from typing import Any
 import islpy as isl
 
 from tripcount import engine
-from tripcount.engine.islconv import exceeds
+from tripcount.engine.islconv import exceeds, val_int
 from tripcount.engine.piecewise import Piece, Piecewise
 from tripcount.model import Access, Statement
 
@@ -35,7 +35,7 @@ def enum_count(s: isl.Set, values: Mapping[str, int]) -> int | None:
     f = fix_params(s, values)
     if f is None:
         return None
-    return int(f.count_val().to_python())
+    return val_int(f.count_val())
 
 
 def points(s: isl.Set, names: Sequence[str], cap: int) -> list[dict[str, int]] | None:
@@ -47,7 +47,7 @@ def points(s: isl.Set, names: Sequence[str], cap: int) -> list[dict[str, int]] |
     out: list[dict[str, int]] = []
 
     def visit(p: isl.Point) -> Any:
-        out.append({nm: int(p.get_coordinate_val(isl.dim_type.set, k).to_python()) for k, nm in enumerate(names)})
+        out.append({nm: val_int(p.get_coordinate_val(isl.dim_type.set, k)) for k, nm in enumerate(names)})
         return isl.stat.error if len(out) > cap else None
 
     try:
@@ -218,7 +218,7 @@ def _fix_dims(s: isl.Set, names: Sequence[str], values: Mapping[str, int]) -> is
 
 def _first_point(s: isl.Set, names: Sequence[str]) -> dict[str, int]:
     p = s.sample_point()
-    return {nm: int(p.get_coordinate_val(isl.dim_type.set, k).to_python()) for k, nm in enumerate(names)}
+    return {nm: val_int(p.get_coordinate_val(isl.dim_type.set, k)) for k, nm in enumerate(names)}
 
 
 
@@ -248,7 +248,7 @@ def _context_min(context: isl.Set, param: str, others: Mapping[str, int]) -> int
         if lex.is_empty():
             return None
         pt = lex.sample_point()
-        v = int(pt.get_coordinate_val(isl.dim_type.set, 0).to_python())
+        v = val_int(pt.get_coordinate_val(isl.dim_type.set, 0))
         return max(v, 0)
     except isl.Error:
         return None
@@ -263,7 +263,7 @@ def _sample(context: isl.Set, params: list[str], lo: int, hi: int) -> dict[str, 
     if pt.is_void():
         return None
     names = _params(s)
-    return {n: int(pt.get_coordinate_val(isl.dim_type.param, i).to_python()) for i, n in enumerate(names)}
+    return {n: val_int(pt.get_coordinate_val(isl.dim_type.param, i)) for i, n in enumerate(names)}
 
 
 # --------------------------------------------------------------------------

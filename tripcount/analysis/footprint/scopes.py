@@ -47,6 +47,7 @@ from tripcount.analysis.footprint.quantities import (
 from tripcount.analysis.footprint.results import ArrayFootprint, FCount, Footprint
 from tripcount.analysis.footprint.worst import worst_case
 from tripcount.analysis.results import NestResult
+from tripcount.engine.islconv import val_int
 from tripcount.model import Access, Loop, Nest, Statement
 from tripcount.options import Options
 
@@ -439,7 +440,7 @@ class Analyzer:
             d = _outer_part(piece.domain, fixed, self.at)
             if d is None:
                 return None
-            n = int(d.intersect(o).count_val().to_python())
+            n = val_int(d.intersect(o).count_val())
             holds = worst_at is not None and piece.contains({**self.at, **worst_at})
             if n > best_n or (n == best_n and holds):
                 best, best_n = k, n
