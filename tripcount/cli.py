@@ -27,7 +27,7 @@ from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics.balance import UnmatchedParallel
 from tripcount.ir import Span
 from tripcount.options import Options
-from tripcount.sources import collect_paths, refusal
+from tripcount.sources import MAX_SOURCE_BYTES, collect_paths, refusal
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 
@@ -149,7 +149,10 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
         sources.append(("<code>", args.code))
     for p in args.paths:
         if p == "-":
-            sources.append(("<stdin>", stdin.read()))
+            text = stdin.read(MAX_SOURCE_BYTES + 1)  # bounded: stdin may be /dev/zero
+            if len(text) > MAX_SOURCE_BYTES:
+                raise UsageError(f"standard input is larger than {MAX_SOURCE_BYTES >> 20} MiB; not read")
+            sources.append(("<stdin>", text))
     files = [p for p in args.paths if p != "-"]
     if not sources and not files:
         raise UsageError("nothing to analyze: give C files or directories, '-' for stdin, or --code 'C text'")

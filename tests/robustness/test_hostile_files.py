@@ -90,3 +90,64 @@ def test_cache_directory_inside_the_analysed_tree_is_refused(tmp_path, monkeypat
     (lone / "k.c").write_bytes(src.read_bytes())
     monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(lone / "cache"))
     assert run_cli(command, "--format", "json", str(lone / "k.c"))[0] == 0
+
+
+@pytest.mark.parametrize("kind", ["fifo", "device"])
+def test_the_gate_refuses_what_is_not_a_regular_file(tmp_path, monkeypatch, run_cli, kind):
+    monkeypatch.setenv("TRIPCOUNT_CACHE_DIR", str(tmp_path / "cache"))
+    tree = tmp_path / "quay"
+    tree.mkdir()
+    bad = tree / "gauge.c"
+    if kind == "fifo":
+        os.mkfifo(bad)
+    else:
+        os.symlink("/dev/zero", bad)
+    for target in (str(bad), str(tree)):  # given, or met in a directory walk
+        status, out, err = run_cli("check", target)
+        assert status == 2 and "not a regular file" in err
+        assert "TC900" not in out + err and "internal error" not in err
+
+
+def test_standard_input_is_read_up_to_the_cap(run_cli):
+    endless = "\0" * (MAX_SOURCE_BYTES + 10)  # as from /dev/zero
+    status, _, err = run_cli("analyze", "-", stdin=endless)
+    assert status == 2 and "standard input is larger than" in err
+
+
+def test_parse_file_reads_only_regular_files(tmp_path):
+    from tripcount.frontend import parse_file
+
+    fifo = tmp_path / "tide.c"
+    os.mkfifo(fifo)
+    with pytest.raises(OSError, match="not a regular file"):
+        parse_file(str(fifo))
+
+
+def _codes(out: str) -> list[str]:
+    return [line.rsplit("[", 1)[1].rstrip("]") for line in out.splitlines() if line.endswith("]") and "[TC" in line]
+
+
+def test_a_trigraph_file_is_named_not_silently_empty(run_cli):
+    # C99 5.2.1.1 trigraphs; C23 removed them and gcc ignores them unless -trigraphs:
+    # read as written, with an error naming the first one (the file gives no nest)
+    path = os.path.join(INPUTS, "robustness", "trigraph_quay.c")
+    for command in ("analyze", "check"):
+        status, out, err = run_cli(command, "--no-cache", path)
+        assert f"{path}:1:1: error: trigraph '??=' at 1:1" in out + err, out + err
+        assert not any(c.startswith("TC9") for c in _codes(out + err))
+    # trigraph spellings inside literals and comments are no trigraphs to warn about
+    status, out, _ = run_cli("analyze", "--no-cache", "--code",
+                             'void f(double *a) { const char *s = "??="; /* ??< */\n'
+                             "  for (int i = 0; i < 4; i++) a[i] = 0; }")
+    assert status == 0 and "TC122" not in out and "1 nest(s)" in out
+
+
+def test_an_old_style_definition_is_named_not_silently_skipped(run_cli):
+    path = os.path.join(INPUTS, "robustness", "old_style_tide.c")
+    for command in ("analyze", "check"):
+        status, out, err = run_cli(command, "--no-cache", path)
+        text = out + err
+        assert f"{path}:3:1: error: function 'tide_table' at 3:1 is skipped: an old-style (K&R) definition" in text
+        assert not any(c.startswith("TC9") for c in _codes(text))
+    status, out, _ = run_cli("analyze", "--no-cache", path)
+    assert "nest in ebb()" in out and "1 nest(s)" in out  # the next function is read as usual

@@ -193,6 +193,16 @@ class IncludeLimit(Diagnostic):
     template = "header {header} at {where} is not read: {reason}"
 
 
+class TrigraphIgnored(Diagnostic):
+    """A trigraph (??< for '{' and the like), read as written: as in C23 and gcc without -trigraphs."""
+
+    code = "TC122"
+    severity = "error"  # the code around it is misread: the gate must not pass such a file silently
+    title = "trigraph-ignored"
+    template = ("trigraph '{spelling}' at {where} is read as written, not as '{meaning}' (as in C23 and gcc "
+                "without -trigraphs); code written with trigraphs is not read as C99 would read it")
+
+
 class InvalidEncoding(Diagnostic):
     """Bytes that are not UTF-8; they are replaced and the file is read anyway."""
 

@@ -26,6 +26,7 @@ from tripcount.frontend.includes import Includes
 from tripcount.frontend.lexer import SourceMap
 from tripcount.frontend.parser import UnitParser, engine
 from tripcount.frontend.preprocess import preprocess as _preprocess
+from tripcount.sources import read_bytes
 
 __all__ = [
     "Includes", "decode", "parse_file", "parse_text",
@@ -107,8 +108,7 @@ def decode(data: bytes) -> tuple[str, Diagnostic | None]:
 
 def parse_file(path: str, lang: str | None = None) -> tuple[ir.TranslationUnit, list[Diagnostic]]:
     """Read a C or C++ file into IR (OSError propagates; bad bytes are a diagnostic)."""
-    with open(path, "rb") as f:
-        data = f.read()
+    data = read_bytes(path)  # regular files under the size cap only: a FIFO or /dev/zero is an OSError
     text, bad = decode(data)
     tu, diags = parse_text(text, path=path, lang=lang)
     if bad is not None:

@@ -135,6 +135,13 @@ class _Splices:
         return s + (self.removed[k - 1] if k else 0)
 
 
+# Trigraphs (C99 5.2.1.1) are not replaced, as in C23 and gcc's default mode; the
+# first one outside comments and literals is named, since the code around it then
+# reads differently from what a strict C99 compiler sees.
+_TRIGRAPHS = {"=": "#", "(": "[", "/": "\\", ")": "]", "'": "^", "<": "{", "!": "|", ">": "}", "-": "~"}
+_TRIGRAPH_ENDS = frozenset(_TRIGRAPHS)
+
+
 def tokenize(text: str, diags: list[Diagnostic] | None = None,
              smap: SourceMap | None = None) -> list[Tok]:
     """Split source text into preprocessing tokens (comments and whitespace dropped)."""
@@ -145,6 +152,7 @@ def tokenize(text: str, diags: list[Diagnostic] | None = None,
     append = out.append
     bol = True
     space = False
+    warned_trigraph = False
     for m in _TOKEN_RE.finditer(spliced):
         kind = m.lastgroup
         if kind == "nl":
@@ -161,6 +169,12 @@ def tokenize(text: str, diags: list[Diagnostic] | None = None,
                 diags.append(d.UnterminatedComment(ir.Span(line, col, line, col + 2),
                                                    where=ir.Span.point(line, col)))
             break
+        if (kind == "punct" and m.group() == "?" and not warned_trigraph and diags is not None
+                and smap is not None and spliced[e:e + 1] == "?" and spliced[e + 1:e + 2] in _TRIGRAPH_ENDS):
+            warned_trigraph = True
+            line, col = smap.position(sp.start(s) if mapped else s)
+            diags.append(d.TrigraphIgnored(ir.Span(line, col, line, col + 3), where=ir.Span.point(line, col),
+                                           spelling=spliced[s:e + 2], meaning=_TRIGRAPHS[spliced[e + 1]]))
         if mapped:
             s, e = sp.start(s), sp.end(e)
         append(Tok(kind, m.group(), s, e, bol, space))

@@ -155,6 +155,23 @@ def _open_paren_back(toks: list[Tok], j: int, lo: int) -> int | None:
     return None
 
 
+def _old_style_head(toks: list[Tok], items: list[tuple[str, int, int, int]]) -> tuple[int, str] | None:
+    """(index in `items`, function name) of an old-style (K&R) definition head among the
+    declarations just before a '{' that starts a chunk: `name ( idents ) decl; ... decl;`."""
+    k = len(items)
+    while k > 0 and items[k - 1][0] == "decl" and len(items) - k < 32:
+        k -= 1
+        _, a, b, _ = items[k]
+        if k + 1 < len(items) and items[k + 1][1] != b:
+            return None  # not contiguous
+        for r in range(a, b - 2):
+            if toks[r].kind == "punct" and toks[r].value == ")" and toks[r + 1].kind == "id":
+                head = _function_head(toks, a, r + 1)
+                if head is not None:
+                    return k, name_before_paren(toks[head:r + 1])
+    return None
+
+
 def _function_head(toks: list[Tok], a: int, b: int) -> int | None:
     """Where the head of a function definition starts, if toks[a:b] (the text before a
     '{' at depth 0) ends with one: `type words name ( params ) [qualifiers]`."""
@@ -332,6 +349,21 @@ class Scanner:
                 if head is not None:
                     # text before the head (an unexpanded macro call, say) is not part of it
                     items.append(("func", head, i, j))
+                    chunk = j + 1
+                    i = j + 1
+                    continue
+                kr = _old_style_head(toks, items) if i == chunk else None
+                if kr is not None:
+                    # `f(a, b) int a; double *b; { ... }`: the parameter declarations were
+                    # cut off as declarations; one diagnostic instead of a silent skip
+                    if report:
+                        k, name = kr
+                        span = self.smap.span(toks[items[k][1]].start, toks[j].end)
+                        self.diags.append(d.FunctionSkipped(
+                            span, name=name, where=d.where(span.line, span.column),
+                            reason="an old-style (K&R) definition, with the parameter types declared "
+                                   "between ')' and '{', is not read; declare them inside the parentheses"))
+                    del items[k:]
                     chunk = j + 1
                     i = j + 1
                     continue
