@@ -28,6 +28,7 @@ import islpy as isl
 from hypothesis import HealthCheck, settings
 from hypothesis import strategies as st
 
+from tripcount.formula import piecewise_value
 from tripcount.options import Options
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -283,9 +284,16 @@ def _cond(draw: Any, names: Sequence[str], depth: int = 0) -> Cond:
     return Cond("and" if k == 4 else "or", args=tuple(_cond(draw, names, depth + 1) for _ in range(2)))
 
 
+def _mod_cond(draw: Any, names: Sequence[str]) -> Cond:
+    m = draw(st.integers(2, 7))
+    return Cond("mod", op=draw(st.sampled_from(["==", "!=", "<"])), left=_aff(draw, names),
+                modulus=m, residue=draw(st.integers(0, m - 1)))
+
+
 @st.composite
-def affine_nests(draw: Any, max_depth: int = 4) -> GenNest:
-    """(a) A random valid affine nest: depth 1..max_depth, parameters among N, M, K."""
+def affine_nests(draw: Any, max_depth: int = 4, mod_guard: bool = False) -> GenNest:
+    """(a) A random valid affine nest: depth 1..max_depth, parameters among N, M, K;
+    with `mod_guard`, the innermost statement always sits under a C `%` guard."""
     params = tuple(sorted(draw(st.lists(st.sampled_from(PARAMS), min_size=1, max_size=3, unique=True))))
     depth = draw(st.integers(1, max_depth))
     counter = [0]
@@ -310,7 +318,9 @@ def affine_nests(draw: Any, max_depth: int = 4) -> GenNest:
                 body.append(stmt(inner_vars))
         else:
             s: Any = stmt(inner_vars)
-            if draw(st.integers(0, 2)) == 0:
+            if mod_guard:
+                s = If(_mod_cond(draw, list(params) + inner_vars), (s,))
+            elif draw(st.integers(0, 2)) == 0:
                 s = If(_cond(draw, list(params) + inner_vars), (s,))
             body.append(s)
             if draw(st.integers(0, 4)) == 0:
@@ -466,6 +476,23 @@ class NestOutcome:
     skipped_points: int = 0
 
 
+def printed_forms(formula: Any) -> list[tuple[str, list[dict[str, str]]]]:
+    """Every text form a report prints for a formula: the gate's (plain_forms: factored
+    when short, else expanded), the readable form (JSON pieces, text report, hover),
+    and both plain printers whole."""
+    from tripcount.engine.fmt import format_expanded, format_qpoly
+    from tripcount.engine.readable import format_grouped, plain_forms
+
+    with plain_forms():
+        gate = [{"when": p.when, "expr": p.poly.to_expr()} for p in formula.pieces]
+    return [
+        ("gate", gate),
+        ("readable", [{"when": p.when, "expr": p.poly.to_expr()} for p in formula.pieces]),
+        ("grouped", [{"when": p.when, "expr": format_grouped(p.poly, format_qpoly)} for p in formula.pieces]),
+        ("expanded", [{"when": p.when, "expr": format_expanded(p.poly)} for p in formula.pieces]),
+    ]
+
+
 def check_generated(gen: GenNest, rng: random.Random, n_points: int = 4) -> NestOutcome:
     """(a) Analyze a generated nest; its counts must equal direct execution (the independent
     reference) at the --at point and at random small sizes, and isl enumeration too."""
@@ -518,6 +545,12 @@ def check_generated(gen: GenNest, rng: random.Random, n_points: int = 4) -> Nest
             got = cnt.formula.evaluate(pt)
             # reference: direct execution of the same nest in Python with C semantics
             assert got == counts[line], f"line {line}: formula gives {got} at {pt}, direct execution {counts[line]}\n{text}"
+            for form, pieces in printed_forms(cnt.formula):
+                # the text as printed (JSON pieces and the report; the gate's forms), read
+                # back with tripcount.formula under C semantics
+                shown = piecewise_value(pieces, pt)
+                assert shown == counts[line], \
+                    f"line {line}: printed {form} form {pieces} gives {shown} at {pt}, direct execution {counts[line]}\n{text}"
             if dom is not None:
                 # reference: isl enumeration (Set.count_val)
                 want = enumerate_count(dom, pt)
