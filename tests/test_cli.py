@@ -233,3 +233,51 @@ def test_at_names_that_no_nest_has(run_cli):
     assert status == 0 and "warning" in err and "= 5" in out
     status, _, err = run_cli("analyze", "--code", code, "--at", "*=7")
     assert status == 0 and err == ""
+
+
+def test_many_files_stream_with_a_status_line_on_a_terminal_only(tmp_path):
+    # a run over many files writes each file's report as it is analysed (its results
+    # are then dropped); the status line goes to a terminal's stderr, never to a pipe
+    import io
+
+    from tripcount.cli import main
+    from tripcount.report.progress import MIN_FILES
+
+    text = open(FLUSH, encoding="utf-8").read()
+    for k in range(MIN_FILES + 1):
+        (tmp_path / f"basin{k:02d}.c").write_text(text)
+
+    class Terminal(io.StringIO):
+        def isatty(self) -> bool:
+            return True
+
+    import itertools
+
+    import tripcount.pipeline as pipeline
+
+    out = io.StringIO()
+    seen: list[int] = []  # how much had been written when each file was read
+    real = pipeline.analyze_file
+
+    def spy(path, options):
+        seen.append(len(out.getvalue()))
+        return real(path, options)
+
+    pipeline.analyze_file = spy
+    try:
+        err = Terminal()
+        status = main(["analyze", "--no-cache", str(tmp_path)], stdin=io.StringIO(), stdout=out, stderr=err)
+    finally:
+        pipeline.analyze_file = real
+    assert status == 0
+    assert seen[0] == 0 and all(b > a for a, b in itertools.pairwise(seen))  # streamed
+    assert f"/{MIN_FILES + 1} " in err.getvalue() and err.getvalue().endswith("\r\x1b[K")
+    assert "\x1b" not in out.getvalue()
+    assert out.getvalue().endswith(f"{MIN_FILES + 1} file(s), {2 * (MIN_FILES + 1)} nest(s), "
+                                   f"{MIN_FILES + 1} diagnostic(s); give --at n=... (or --at '*=1000') for values\n")
+    # not a terminal: no status line; an --at naming no parameter still gives no report
+    err = io.StringIO()
+    out2 = io.StringIO()
+    assert main(["analyze", "--no-cache", "--at", "zz=3", str(tmp_path)], stdin=io.StringIO(),
+                stdout=out2, stderr=err) == 2
+    assert out2.getvalue() == "" and err.getvalue() == "tripcount: error: --at names no parameter of any nest: zz\n"

@@ -327,3 +327,24 @@ def test_git_runs_only_for_a_baseline_and_never_runs_repository_hooks(stub, monk
     assert run(["check", "wave.c"], cwd=stub)[0] == 0
     assert run(["check"], cwd=stub)[0] == 0
     assert not marker.exists()
+
+
+def test_the_gate_shows_a_status_line_on_a_terminal_only(tmp_path, private_cache):
+    import io
+
+    from tripcount.cli import main
+    from tripcount.report.progress import MIN_FILES
+
+    for k in range(MIN_FILES):
+        shutil.copy(INPUTS / "harbour_square.c", tmp_path / f"square{k}.c")
+
+    class Terminal(io.StringIO):
+        def isatty(self) -> bool:
+            return True
+
+    err = Terminal()
+    assert main(["check", str(tmp_path)], stdin=io.StringIO(), stdout=io.StringIO(), stderr=err) == 0
+    assert f"0/{MIN_FILES} " in err.getvalue() and "\r\x1b[Ktripcount check: " in err.getvalue()
+    err = io.StringIO()
+    assert main(["check", str(tmp_path)], stdin=io.StringIO(), stdout=io.StringIO(), stderr=err) == 0
+    assert "\r" not in err.getvalue()

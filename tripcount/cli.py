@@ -11,7 +11,7 @@ import argparse
 import os
 import sys
 from collections.abc import Sequence
-from typing import TextIO
+from typing import Any, TextIO
 
 from tripcount import __version__
 from tripcount.config import (
@@ -177,15 +177,22 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     # The JSON and SARIF reports are renderings of the file JSON, which the result
     # cache keeps per nest; the text report and the plot need the live formulas,
     # and --verify is a fresh check by definition.
+    if args.format == "text" and not args.plot and not options.parallel_lines and len(paths) > 1:
+        return stream_text(results, len(sources), paths, options, args, stdout, stderr)
+    from tripcount.report.progress import Progress
+
     cached = args.format in ("json", "sarif") and not args.plot and not options.verify
     file_json: list[dict] = []
-    for path in paths:
+    progress = Progress(stderr, len(paths))
+    for k, path in enumerate(paths):
+        progress.step(k, path)
         if cached:
             from tripcount.cache import analyze_path_cached
 
             file_json.append(analyze_path_cached(path, options, use_cache=not args.no_cache))
         else:
             results.append(analyze_file(path, options))
+    progress.clear()
     loop_lines = {lr.loop.span.line for fr in results for nr in fr.nests for lr in nr.loops}
     loop_lines |= {lp["line"] for f in file_json for n in f["nests"] for lp in n["loops"]}
     unmatched = unmatched_parallel(loop_lines, options, (results[0].path if results else file_json[0]["path"])
@@ -197,15 +204,8 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
                                              key=lambda d: (d["line"], d["column"], d["code"]))
     known = {p for fr in results for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names)}
     known |= {p for f in file_json for n in f["nests"] for p in (*n.get("parameters", []), *n.get("symbolic", {}))}
-    given_at: dict[str, int] = {}  # only the command line's names: a project's configuration
-    for text in args.at:  # may well list sizes of kernels that this run does not read
-        given_at.update(parse_sizes(text))
-    unknown, none_used = unknown_sizes(given_at, known)
-    if unknown:
-        kind = "error" if none_used else "warning"
-        stderr.write(f"tripcount: {kind}: --at names no parameter of any nest: {unknown}\n")
-        if none_used:
-            return EXIT_USAGE
+    if at_unused(given_sizes(args), known, stderr):
+        return EXIT_USAGE
     report = Report(files=results, at=options.at, settings=settings_of(options))
     out = open_output(args.output) if args.output else stdout
     try:
@@ -237,6 +237,88 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
         elif code == "TC302" and status == EXIT_OK:
             status = EXIT_FINDINGS
     if sources and all(not fr.nests for fr in results[: len(sources)]) and _not_c(results[: len(sources)]):
+        stderr.write("tripcount: error: the snippet could not be read as C (see the diagnostics above)\n")
+        status = EXIT_USAGE
+    return status
+
+
+def given_sizes(args: argparse.Namespace) -> dict[str, int]:
+    """The --at sizes of the command line only: a project's configuration may well
+    list sizes of kernels that this run does not read."""
+    given: dict[str, int] = {}
+    for text in args.at:
+        given.update(parse_sizes(text))
+    return given
+
+
+def at_unused(given: dict[str, int], known: set[str], stderr: TextIO) -> bool:
+    """Warn about --at names of no nest; True (a usage error) when none is used."""
+    unknown, none_used = unknown_sizes(given, known)
+    if unknown:
+        kind = "error" if none_used else "warning"
+        stderr.write(f"tripcount: {kind}: --at names no parameter of any nest: {unknown}\n")
+    return bool(unknown) and none_used
+
+
+def stream_text(snippets: list, n_sources: int, paths: list[str], options: Options, args: argparse.Namespace,
+                stdout: TextIO, stderr: TextIO) -> int:
+    """The text report of several files, written file by file as each is analysed
+    (its results dropped once written, so memory does not grow with the number
+    of files), with a status line on a terminal. Until an --at name is known to
+    be used, the rendered text is held back: --at naming no parameter of any
+    nest is still a usage error with no report."""
+    import io
+
+    from tripcount.pipeline import analyze_file
+    from tripcount.report.progress import Progress
+    from tripcount.report.text import TextReporter
+
+    given_at = given_sizes(args)
+    at_text = ", ".join(f"{k}={v}" for k, v in options.at.items())
+    held: io.StringIO | None = io.StringIO() if given_at else None
+    out: TextIO | None = None if held is not None else (open_output(args.output) if args.output else stdout)
+    reporter = TextReporter(held if held is not None else out)
+    known: set[str] = set()
+    params: set[str] = set()
+    codes: set[str] = set()
+    n_nests = n_diag = 0
+    progress = Progress(stderr, len(paths))
+
+    def write(fr: Any) -> None:
+        nonlocal n_nests, n_diag, held, out
+        diags = fr.all_diagnostics()
+        n_nests += len(fr.nests)
+        n_diag += len(diags)
+        codes.update(d.code for d in diags)
+        params.update(p for nr in fr.nests for p in nr.nest.params)
+        known.update(p for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names))
+        reporter.write_file(fr, at_text)
+        if held is not None and not unknown_sizes(given_at, known)[1]:
+            out = open_output(args.output) if args.output else stdout
+            out.write(held.getvalue())
+            reporter.stream = out
+            held = None
+
+    try:
+        for fr in snippets:
+            write(fr)
+        not_c = bool(snippets) and all(not fr.nests for fr in snippets[:n_sources]) and _not_c(snippets[:n_sources])
+        del snippets[:]
+        for k, path in enumerate(paths):
+            progress.step(k, path)
+            fr = analyze_file(path, options)
+            progress.clear()
+            write(fr)
+            del fr
+        if at_unused(given_at, known, stderr):
+            return EXIT_USAGE
+        reporter.write_totals(n_sources + len(paths), n_nests, n_diag, params, options.at)
+    finally:
+        progress.clear()
+        if args.output and out is not None:
+            out.close()
+    status = EXIT_USAGE if "TC901" in codes else EXIT_FINDINGS if "TC302" in codes else EXIT_OK
+    if not_c:
         stderr.write("tripcount: error: the snippet could not be read as C (see the diagnostics above)\n")
         status = EXIT_USAGE
     return status

@@ -107,17 +107,24 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
     if refused:
         stderr.write(f"tripcount: error: {refused}\n")
         return EXIT_USAGE
+    from tripcount.report.progress import Progress
+
     checks: list[FileCheck] = []
     status = EXIT_OK
-    for path in files:
+    progress = Progress(stderr, len(files), "tripcount check")
+    for k, path in enumerate(files):
+        progress.step(k, path)
         try:
             checks.append(check_file(path, given, git, use_cache, getattr(args, "baseline", None), staged))
         except OSError as exc:
+            progress.clear()
             stderr.write(f"tripcount: error: cannot read {path}: {exc.strerror or exc}\n")
             status = EXIT_USAGE
         except BaselineError as exc:
+            progress.clear()
             stderr.write(f"tripcount: error: {exc}\n")
             return EXIT_USAGE
+    progress.clear()
     n_find = sum(1 for c in checks for d in c.findings if d.severity == "error")
     if n_find and status == EXIT_OK:
         status = EXIT_FINDINGS

@@ -72,12 +72,18 @@ class TextReporter(Reporter):
             n_nests += len(fr.nests)
             self.write_file(fr, at)
         n_diag = sum(len(f.all_diagnostics()) for f in report.files)
+        params = {p for fr in report.files for nr in fr.nests for p in nr.nest.params}
+        self.write_totals(len(report.files), n_nests, n_diag, params, report.at)
+
+    def write_totals(self, n_files: int, n_nests: int, n_diag: int, params: set[str], at_values: dict) -> None:
+        """The closing line: files, nests, diagnostics, and where the values are taken."""
+        at = ", ".join(f"{k}={v}" for k, v in at_values.items())
         at = at.replace("*=", "every other size=") if "*=" in at and at.count("=") > 1 else at.replace("*=", "every size=")
-        params = sorted({p for fr in report.files for nr in fr.nests for p in nr.nest.params})
-        example = ",".join(f"{p}=..." for p in params[:3]) + (",..." if len(params) > 3 else "")
+        names = sorted(params)
+        example = ",".join(f"{p}=..." for p in names[:3]) + (",..." if len(names) > 3 else "")
         hint = f"; values at {at}" if at else (
-            f"; give --at {example} (or --at '*=1000') for values" if params else "")
-        self.stream.write(f"{len(report.files)} file(s), {n_nests} nest(s), {n_diag} diagnostic(s){hint}\n")
+            f"; give --at {example} (or --at '*=1000') for values" if names else "")
+        self.stream.write(f"{n_files} file(s), {n_nests} nest(s), {n_diag} diagnostic(s){hint}\n")
 
     def write_file(self, fr: FileResult, at: str) -> None:
         """One file: its nests and diagnostics."""
