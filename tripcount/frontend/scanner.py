@@ -360,7 +360,7 @@ class Scanner:
                         k, name = kr
                         span = self.smap.span(toks[items[k][1]].start, toks[j].end)
                         self.diags.append(d.FunctionSkipped(
-                            span, name=name, where=d.where(span.line, span.column),
+                            span, name=name, where=ir.Span.point(span.line, span.column),
                             reason="an old-style (K&R) definition, with the parameter types declared "
                                    "between ')' and '{', is not read; declare them inside the parentheses"))
                     del items[k:]
