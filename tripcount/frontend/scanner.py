@@ -6,6 +6,7 @@ from __future__ import annotations
 
 from lark import Token
 
+from tripcount import ir
 from tripcount.diagnostics import source as d
 from tripcount.frontend.lexer import Tok
 from tripcount.frontend.vocab import DROP_WORDS, SKIP_WITH_PARENS, SPEC_WORDS
