@@ -158,3 +158,6 @@ def test_the_diagnostics_catalogue_stays_light():
 
 def test_stage_check_can_fail():
     assert rank("tripcount.report.text") > rank("tripcount.analysis.counts") > rank("tripcount.ir")
+    # the --verify checkers are analyses: they read results, never reporters or the driver
+    for name in ("verify_enum", "verify_memory", "verify_threads"):
+        assert rank(f"tripcount.analysis.{name}") == rank("tripcount.analysis.footprint") < rank("tripcount.pipeline")

@@ -234,7 +234,7 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     for code in codes:
         if code == "TC901":
             status = EXIT_USAGE
-        elif code == "TC302" and status == EXIT_OK:
+        elif code in ("TC302", "TC305") and status == EXIT_OK:
             status = EXIT_FINDINGS
     if sources and all(not fr.nests for fr in results[: len(sources)]) and _not_c(results[: len(sources)]):
         stderr.write("tripcount: error: the snippet could not be read as C (see the diagnostics above)\n")

@@ -1,5 +1,7 @@
 # Analysis: --verify for the work figures (flops by kind and by call, loads,
-# stores), run after every other analysis.
+# stores), run after every other analysis; then the working sets
+# (verify_memory) and the per-thread balance (verify_threads) by brute-force
+# enumeration, summed up in one TC306 note (a mismatch there is TC305).
 #
 # Each of these is a sum over statements of a weight per execution times the
 # statement's execution count. At every verification point the printed
@@ -16,6 +18,7 @@ from fractions import Fraction
 from typing import Any
 
 from tripcount import engine
+from tripcount.analysis import verify_memory, verify_threads
 from tripcount.analysis.counts import (
     in_context,
     point_text,
@@ -24,6 +27,8 @@ from tripcount.analysis.counts import (
 )
 from tripcount.analysis.results import Count, NestResult
 from tripcount.diagnostics.engine import VerifyMismatch, WorkVerified
+from tripcount.analysis.verify_enum import FiguresVerified, Tally, budget_for
+from tripcount.diagnostics import Diagnostic
 from tripcount.options import Options
 
 MAX_POINTS = 60
@@ -86,9 +91,40 @@ def _counts_at(result: NestResult, pt: Mapping[str, int]) -> dict[int, int] | No
 
 
 def analyze(result: NestResult, options: Options) -> None:
-    """With --verify: check every work figure against weights times enumerated counts."""
+    """With --verify: check every work figure against weights times enumerated counts, then the
+    working sets and the per-thread balance against brute-force enumeration."""
     if not options.verify or not result.statements:
         return
+    _work(result, options)
+    _figures_by_enumeration(result, options)
+
+
+def _figures_by_enumeration(result: NestResult, options: Options) -> None:
+    """Working sets (verify_memory) and per-thread work (verify_threads), with one summary note."""
+    budget = budget_for(options.time_limit)
+    tally = Tally()
+    # the values at the --at sizes first: they are what people act on
+    verify_memory.verify_at(result, options, budget, tally)
+    verify_threads.verify_at(result, options, budget, tally)
+    verify_memory.verify_formulas(result, options, budget, tally)
+    verify_threads.verify_formulas(result, options, budget, tally)
+    if not tally.checked and not tally.skipped:
+        return
+    parts = []
+    if tally.checked:
+        parts.append(f"verified {len(tally.figures)} working-set and per-thread figures of this nest, values "
+                     f"and formulas as printed, against brute-force enumeration of the touched elements and "
+                     f"lines and of each thread's iterations ({tally.checked} comparisons at "
+                     f"{len(tally.points)} size point{'s' if len(tally.points) != 1 else ''})")
+        if tally.mismatches:
+            parts[-1] += f" ({tally.mismatches} mismatch{'es' if tally.mismatches != 1 else ''}, above)"
+    if tally.skipped:
+        parts.append("not checked: " + "; ".join(tally.skipped))
+    result.diagnostics.append(FiguresVerified(result.nest.span, message="; ".join(parts)))
+
+
+def _work(result: NestResult, options: Options) -> None:
+    """Flops by kind and by call, loads and stores, against weights times enumerated counts."""
     figures = _figures(result)
     if not figures:
         return
