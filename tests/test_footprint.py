@@ -646,15 +646,19 @@ def test_line_map_with_missing_extents_never_fails():
 
 def test_refused_statement_beside_an_exact_loop_is_left_out_honestly():
     """A store under a data-dependent test (not counted) next to an exact inner loop: the inner
-    loop's working set is exact, the outer loop's is unknown (TC404), the nest's a lower bound,
-    and reuse by the outer loop is not claimed either way."""
+    loop's working set is exact, the outer loop's is unknown (TC404), the nest's a lower bound.
+    Reuse by the outer loop: rows of 10 doubles (80 B) share a line with the next row (row i ends at
+    byte 80*i + 79, row i + 1 starts at 80*i + 80), so the modelled references alone reuse a line;
+    with 8 doubles (64-byte rows) they do not, and the unmodelled store could: not claimed."""
     N = 10
     nests, diags = _file_nests("tide_unmodelled.c", {"N": N})
     nr = nests["gauge_flagged"]
     ws = levels(nr)
     assert set(ws) == {"j"}
     assert ws["j"].whole.elements.value == N  # C[i][0..N-1] for one i
-    assert ws["j"].reuse is None  # the unmodelled store could touch the same lines
+    assert ws["j"].reuse is True  # shared lines between rows (packed at the --at sizes)
+    nests8, _ = _file_nests("tide_unmodelled.c", {"N": 8})
+    assert levels(nests8["gauge_flagged"])["j"].reuse is None  # the unmodelled store could touch them
     assert "TC404" in [d.code for d in nr.diagnostics]
     fp = nr.extras["footprint"].footprint
     assert fp.lower_bound and fp.elements.value == N * N
@@ -770,6 +774,38 @@ def test_points_stop_past_the_cap_without_counting():
     pts = footprint.points(small, ["i", "j"], 6)
     assert pts is not None and len(pts) == 6 and {"i": 2, "j": 2} in pts
     assert footprint.points(small, ["i", "j"], 5) is None
+
+
+def test_reuse_follows_the_packed_rows_at_the_sizes():
+    """Rows that share a cache line make the next iteration reuse it. Hand values, 64-byte lines:
+    with double C[9][9] (72-byte rows), row 6 ends at byte 6*72 + 6*8 = 480 in line 7 and row 7 starts
+    at byte 504 in line 7: loop j (C[i][0..i]) is reused by loop i. With C[8][8] every row is one
+    whole line: nothing is touched again."""
+    from tripcount.pipeline import analyze_text
+
+    text = ("void quay_triangle(int N, double C[N][N], double s)\n{\n"
+            "    for (int i = 0; i < N; i++)\n        for (int j = 0; j <= i; j++)\n"
+            "            C[i][j] *= s;\n}\n")
+    for n, reused in ((9, True), (8, False)):
+        nr = analyze_text(text, "quay_triangle.c", Options(at={"N": n}, line_size=64)).nests[0]
+        ws = next(lr.extras["working_set"] for lr in nr.loops if lr.loop.var == "j")
+        assert ws.reuse is reused, n
+
+
+def test_reuse_follows_the_order_the_loop_runs():
+    """Loop k writes A[8*i] (line i of 64-byte lines); iteration i2 of loop i reads A[8*i2 - 8] (line
+    i2 - 1), so line i comes back in iteration i + 1: a later one when i counts up, an earlier one
+    when it counts down (no reuse then)."""
+    from tripcount.pipeline import analyze_text
+
+    up = ("void tide_back(int N, double B[N], double A[8 * N])\n{\n"
+          "    for (int i = 1; i < N; i++) {\n        B[i] = A[8 * i - 8];\n"
+          "        for (int k = 0; k < 1; k++)\n            A[8 * i] = 1.0;\n    }\n}\n")
+    down = up.replace("for (int i = 1; i < N; i++)", "for (int i = N - 1; i >= 1; i--)")
+    for text, reused in ((up, True), (down, False)):
+        nr = analyze_text(text, "tide_back.c", Options(at={"N": 9}, line_size=64)).nests[0]
+        ws = next(lr.extras["working_set"] for lr in nr.loops if lr.loop.var == "k")
+        assert ws.reuse is reused, text
 
 
 def test_no_cache_fit_size_where_the_loop_does_not_run():

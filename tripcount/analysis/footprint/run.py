@@ -65,7 +65,8 @@ def analyze(result: NestResult, options: Options) -> None:
                     + (f", with {', '.join(fixed)} fixed)" if fixed else ")"))
         per_it = None if options.gate else an.scope(stmts, fixed + (loop.var,), loop.domain, it_label,
                                                     line_formulas=False)
-        reuse = an.reuse(stmts, an.statements_in(parent), parent.depth) if parent is not None else None
+        reuse = (an.reuse(stmts, an.statements_in(parent), parent.depth, parent.step or 1)
+                 if parent is not None else None)
         ws = WorkingSet(loop, whole, per_it, reuse, assumptions=assumptions,
                         outer_var=parent.var if parent is not None else None)
         if an.has_at and not whole.lower_bound and getattr(whole.lines, "formula_assumes", None):  # formula, value differ

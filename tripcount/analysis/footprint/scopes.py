@@ -20,6 +20,7 @@ from tripcount.analysis.footprint.exact import (
     Max,
     ScopeValues,
     inner_extents,
+    packed_line_map,
     scope_values,
 )
 from tripcount.analysis.footprint.isets import (
@@ -464,20 +465,37 @@ class Analyzer:
                     m = m.set_dim_name(isl.dim_type.in_, k, f"x{k}")
                 info = self.arrays[a.array]
                 if info.elem:
-                    lm, _ = line_map(info.access, info.elem, self.line)
-                    m = m.apply_range(lm)
+                    m = m.apply_range(self._reuse_lines(info, m))
                 rel[a.array] = rel[a.array].union(m) if a.array in rel else m
         return rel
 
-    def reuse(self, inner: list[Statement], outer: list[Statement], depth: int) -> bool | None:
+    def _reuse_lines(self, info: _ArrayInfo, m: isl.Map) -> isl.Map:
+        """The line map of reuse: at the --at sizes the packed layout of the values (rows that are not
+        a multiple of the line share lines with their neighbours), else the formulas' layout."""
+        ext = inner_extents(info.access, self.at) if self.has_at else None
+        if ext is None or not self.has_at:
+            return line_map(info.access, info.elem or 0, self.line)[0]
+        n = m.dim(isl.dim_type.out)
+        name = m.get_tuple_name(isl.dim_type.out)
+        lm = packed_line_map(n, ext, info.elem or 0, self.line)
+        if name:
+            lm = lm.set_tuple_name(isl.dim_type.in_, name).set_tuple_name(isl.dim_type.out, name)
+        return lm.align_params(m.get_space())
+
+    def reuse(self, inner: list[Statement], outer: list[Statement], depth: int, step: int = 1) -> bool | None:
         """Whether a line touched by `inner` in one iteration of the loop at `depth` is touched again
-        by `outer` (the loop's statements) in a later iteration, the enclosing variables being equal."""
+        by `outer` (the loop's statements) in a later iteration (in the order the loop runs: `step`'s
+        sign), the enclosing variables being equal."""
         try:
             src = self._touch_relation(inner, depth)
             dst = self._touch_relation(outer, depth)
+            if self.has_at:  # the packed lines hold at the --at sizes only
+                src = {k: _at_sizes(m, self.at) for k, m in src.items()}
+                dst = {k: _at_sizes(m, self.at) for k, m in dst.items()}
             vs = [f"x{k}" for k in range(depth + 1)]
             ws = vs[:-1] + [f"{vs[-1]}p"]
-            later = isl.Map(f"{{ L[{', '.join(vs)}] -> L[{', '.join(ws)}] : {ws[-1]} > {vs[-1]} }}")
+            order = ">" if step > 0 else "<"
+            later = isl.Map(f"{{ L[{', '.join(vs)}] -> L[{', '.join(ws)}] : {ws[-1]} {order} {vs[-1]} }}")
             for name, m in src.items():
                 if name not in dst:
                     continue
@@ -490,6 +508,15 @@ class Analyzer:
             return False
         except isl.Error:
             return None
+
+
+def _at_sizes(m: isl.Map, sizes: Mapping[str, int]) -> isl.Map:
+    """`m` with the parameters named in `sizes` fixed at their values."""
+    for i in range(m.dim(isl.dim_type.param)):
+        name = m.get_dim_name(isl.dim_type.param, i)
+        if name in sizes:
+            m = m.fix_val(isl.dim_type.param, i, isl.Val.read_from_str(m.get_ctx(), str(int(sizes[name]))))
+    return m
 
 
 EXACT_SIZE_CAP = 1 << 20  # largest size at which a threshold is checked with the exact count
