@@ -116,6 +116,19 @@ def test_an_upper_bound_below_the_truth_is_caught(run_cli, monkeypatch):
     assert any("is the upper bound" in m for m in msgs), msgs
 
 
+def test_a_wrong_reuse_and_fit_are_caught(run_cli, monkeypatch):
+    def flipped(result):
+        for ws in result.extras["footprint"].levels:
+            if ws.reuse is not None:
+                ws.reuse = not ws.reuse
+            ws.fits = {k: not v for k, v in ws.fits.items()}
+
+    _wrapped(monkeypatch, flipped)
+    msgs = _mismatches(*_run(run_cli, BASIN, SIZES))
+    assert any(m.startswith("reuse by loop ") for m in msgs), msgs
+    assert any(m.startswith("whether the working set of loop ") for m in msgs), msgs
+
+
 def test_a_wrong_flop_count_is_caught(run_cli, monkeypatch):
     right = flops.scaled
     monkeypatch.setattr(flops, "scaled", lambda count, weight: right(count, weight + 1) if weight else

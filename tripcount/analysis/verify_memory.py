@@ -200,6 +200,7 @@ class _Checker:
         self.tally = tally
         nf = result.extras.get("footprint")
         self.line = nf.caches.line_size if nf is not None else options.line_size
+        self.caches = nf.caches if nf is not None else None
         self.arrays = _arrays(self.nest, options)
         self.scopes = _scopes(result)
 
@@ -207,8 +208,10 @@ class _Checker:
               pt: Mapping[str, int]) -> bool:
         return compare(self.result, self.tally, what, got, want, pt, side)
 
-    def enumerate_at(self, sizes: Mapping[str, int]) -> Touched | None:
+    def enumerate_at(self, sizes: Mapping[str, int], reuse: bool = False) -> Touched | None:
         keys = {(sc.loop, sc.n_fixed) for sc in self.scopes}
+        if reuse:  # one iteration of each enclosing loop whose reuse is printed
+            keys |= {(p.index, p.depth + 1) for p in self.reuse_parents()}
         try:
             return _touched(self.nest, self.arrays, keys, sizes, self.budget)
         except OverBudget:
@@ -220,9 +223,52 @@ class _Checker:
         groups = touched[(sc.loop, sc.n_fixed)]
         return {g: _metrics(els, self.arrays, names, self.line, strides) for g, els in groups.items()}
 
+    def reuse_parents(self) -> list[Any]:
+        out = []
+        for sc in self.scopes:
+            ws = sc.occupancy
+            if ws is not None and ws.reuse is not None and ws.loop.parent is not None:
+                out.append(self.nest.loops[ws.loop.parent])
+        return out
+
+    def check_reuse(self, sc: _Scope, touched: Touched, strides: Mapping[str, list[int] | None],
+                    at: Mapping[str, int]) -> None:
+        """'reused by': whether the enclosing loop touches a line of this loop's working set again in a
+        later iteration (in the order it runs), the loops around it at the same values."""
+        ws = sc.occupancy
+        parent = self.nest.loops[ws.loop.parent]
+        d = parent.depth
+        mine = touched[(sc.loop, sc.n_fixed)]
+        theirs = touched[(parent.index, d + 1)]
+        sign = 1 if (parent.step or 1) > 0 else -1
+
+        def lines(group: Mapping[str, set[tuple[int, ...]]]) -> set[tuple[str, Any]]:
+            out = set()
+            for name, els in group.items():
+                a = self.arrays[name]
+                out |= {(name, _line_of(e, a.elem, self.line, strides[name]) if a.elem else e) for e in els}
+            return out
+
+        by_outer: dict[tuple[int, ...], list[tuple[int, ...]]] = {}
+        for g in set(theirs) | set(mine):
+            by_outer.setdefault(g[:d], []).append(g)
+        found = False
+        for gs in by_outer.values():
+            later: set[tuple[str, Any]] = set()
+            for g in sorted(gs, key=lambda g: -sign * g[d]):  # the last iteration first
+                if g in mine and lines(mine[g]) & later:
+                    found = True
+                    break
+                if g in theirs:
+                    later |= lines(theirs[g])
+            if found:
+                break
+        self.check(f"reuse by loop '{parent.var}' of the lines of {sc.label} (1: reused, 0: not)",
+                   int(bool(ws.reuse)), int(found), None, at)
+
     # --- at the --at sizes
     def values_at(self, at: Mapping[str, int]) -> None:
-        touched = self.enumerate_at(at)
+        touched = self.enumerate_at(at, reuse=True)
         if touched is None:
             self.tally.skip(f"working sets at {point_label(at)} (more statement instances than the "
                             "enumeration budget of the nest)")
@@ -247,9 +293,15 @@ class _Checker:
                     if ("", key) in best:
                         self.check(f"worst case of {key} of {sc.label}", w.values.get(key), best[("", key)], side, at)
             ws = sc.occupancy
-            if ws is not None and ws.occupancy is not None and ("", "lines") in best:
-                self.check(f"cache occupancy of {sc.label}", Fraction(ws.occupancy, self.line),
-                           best[("", "lines")], _side(sc.fp.lines), at)
+            if ws is not None and ws.occupancy is not None and best.get(("", "lines")) is not None:
+                true = best[("", "lines")] * self.line
+                self.check(f"cache occupancy in bytes of {sc.label}", ws.occupancy, true, _side(sc.fp.lines), at)
+                for lv in self.caches.levels:
+                    if lv.name in ws.fits:
+                        self.check(f"whether {sc.label} fits {lv.name} (1: fits, 0: not)", int(ws.fits[lv.name]),
+                                   int(true <= lv.size), None, at)
+            if ws is not None and ws.reuse is not None and not sc.fp.lower_bound:
+                self.check_reuse(sc, touched, strides, at)
             if sc.loop is None and flops is not None:
                 inten = self.result.extras.get("intensity")
                 fv = as_number(flops.count.value)
