@@ -24,6 +24,7 @@ import islpy as isl
 from tripcount.analysis.counts import in_context, printed_value
 from tripcount.analysis.results import NestResult
 from tripcount.diagnostics import Diagnostic
+from tripcount.guard import count_points
 from tripcount.model import Access, Nest
 
 MAX_INSTANCES = 120_000  # statement instances enumerated per nest, over all size points
@@ -95,7 +96,7 @@ def afford(sets: Sequence[isl.Set], budget: Budget) -> None:
     the budget has left (a scan that would be cut spends nothing)."""
     total = 0
     for s in sets:
-        total += int(s.count_val().to_python())
+        total += count_points(s)
         if total > budget.instances:
             raise OverBudget
 
