@@ -250,3 +250,18 @@ def test_threshold_is_the_exact_one_of_the_packed_layout():
     assert (t.param, t.checked, t.assumes) == ("n", True, None)
     assert _packed_lines(t.largest, 13) <= 512 < _packed_lines(t.largest + 1, 13)
     assert t.largest == 315
+
+
+def test_maximum_with_arrays_touched_in_some_iterations_only():
+    """Three phases by i % 3, each writing its own array: one iteration of i touches x[i] and one
+    element of p0, p1 or p2 -- two elements in two lines (hand count; the arrays start on line
+    boundaries). Past the per-value enumeration cap (N = 60) the exact maximum splits the values of i
+    by what each array touches; values where an array touches nothing are a region of their own."""
+    text = ("void buoy_phases(int N, const float *x, float *p0, float *p1, float *p2)\n{\n"
+            "    for (int i = 0; i < N; i++) {\n        if (i % 3 == 0)\n            p0[i / 3] = x[i];\n"
+            "        else if (i % 3 == 1)\n            p1[i / 3] = x[i];\n        else\n"
+            "            p2[i / 3] = x[i];\n    }\n}\n")
+    nr = pipeline.analyze_text(text, "buoy_phases.c", Options(at={"N": 60}, line_size=64)).nests[0]
+    it = nr.loops[0].extras["working_set"].per_iteration
+    assert (it.elements.value, it.lines.value) == (2, 2)
+    assert not it.lines.bound

@@ -217,6 +217,9 @@ def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
         lo = e.lexmin_pw_multi_aff()
         hi = e.lexmax_pw_multi_aff()
         for doms in (_domains(lo), _domains(hi)):
+            touched = e.domain()
+            if not outer.is_subset(touched):  # outer values where this array is not touched: a region too
+                doms = doms + [outer.subtract(touched)]
             regions = [r.intersect(d) for r in regions for d in doms]
             regions = [r for r in regions if not r.is_empty()]
             if len(regions) > MAX_PIECES:
@@ -279,6 +282,8 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
         if p.residue is None:
             continue
         rm = p.residue.intersect_domain(r)
+        if rm.is_empty():  # nothing of this array is touched in the region
+            continue
         offsets = rm if offsets is None else offsets.flat_range_product(rm)
     if offsets is None:
         return Max(_value_at(parts, o_star, fixed), at=o_star)
