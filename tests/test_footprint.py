@@ -808,6 +808,21 @@ def test_reuse_follows_the_order_the_loop_runs():
         assert ws.reuse is reused, text
 
 
+def test_worst_case_value_is_not_shown_when_the_maximum_is_only_bounded():
+    """One iteration of q in T[p][q] = amp[p]*amp[q]*... (p < q): amp[p] and amp[q], phase[p] and
+    phase[q] share a line only when p and q are close, so the largest count is 5 lines (hand count:
+    T, two of amp, two of phase), not the 3 at the extreme values p = K - 2, q = K - 1. Where the
+    exact maximum is not had at the --at sizes, the worst case shows no value rather than 3."""
+    from conftest import CORPUS
+
+    from tripcount import pipeline
+
+    nr = pipeline.analyze_file(os.path.join(CORPUS, "tide_constituents.c"), Options(at={"*": 100}, line_size=64)).nests[0]
+    it = next(lr.extras["working_set"] for lr in nr.loops if lr.loop.var == "q").per_iteration
+    assert it.worst is not None and it.worst.values.get("lines") in (None, 5)
+    assert it.lines.value == 5 or it.lines.bound
+
+
 def test_no_cache_fit_size_where_the_loop_does_not_run():
     """A working set is 0 where the loop runs no iteration (here D <= 2): a size
     threshold there ('would fit L1 while D <= 2') says nothing, so none is given."""

@@ -397,6 +397,10 @@ class Analyzer:
                     fp.worst.values[key] = c.value
                     if fp.worst.counts is not None and fp.worst.counts.get(key) is not None:
                         fp.worst.counts[key].value = c.value  # the exact maximum is the tightest bound
+                elif not fp.worst.bound:
+                    # the value at the extreme outer values is not shown as the maximum unless the exact
+                    # maximum (packed layout) confirms it
+                    fp.worst.values[key] = None
 
     def _same_layout(self, name: str, formula_layout: str) -> bool:
         """Whether an array's formula layout is the layout of its values at the --at sizes."""
