@@ -313,7 +313,7 @@ class _Checker:
     def formulas_at(self, pt: Mapping[str, int]) -> None:
         touched = self.enumerate_at(pt)
         if touched is None:
-            self.tally.skip(f"formulas at {point_label(pt)} (enumeration budget spent)")
+            self.tally.skip(f"working-set formulas at {point_label(pt)} (enumeration budget spent)")
             return
         self.tally.points.add(tuple(sorted(pt.items())))
         strides = {n: _strides(a.access, None) for n, a in self.arrays.items()}
