@@ -26,9 +26,8 @@ from tripcount.analysis.counts import (
     verification_points,
 )
 from tripcount.analysis.results import Count, NestResult
-from tripcount.diagnostics.engine import VerifyMismatch, WorkVerified
-from tripcount.analysis.verify_enum import FiguresVerified, Tally, budget_for
-from tripcount.diagnostics import Diagnostic
+from tripcount.analysis.verify_enum import Tally, budget_for
+from tripcount.diagnostics.engine import FiguresVerified, VerifyMismatch, WorkVerified
 from tripcount.options import Options
 
 MAX_POINTS = 60

@@ -23,7 +23,7 @@ import islpy as isl
 
 from tripcount.analysis.counts import in_context, printed_value
 from tripcount.analysis.results import NestResult
-from tripcount.diagnostics import Diagnostic
+from tripcount.diagnostics.engine import FigureMismatch
 from tripcount.guard import count_points
 from tripcount.model import Access, Nest
 
@@ -31,26 +31,6 @@ MAX_INSTANCES = 120_000  # statement instances enumerated per nest, over all siz
 MAX_SECONDS = 3.0  # time spent enumerating per nest (bounded by the nest's time limit too)
 
 _dt = isl.dim_type
-
-
-class FigureMismatch(Diagnostic):
-    """--verify found a working-set or per-thread figure that disagrees with brute-force enumeration
-    (a bug: please report)."""
-
-    code = "TC305"
-    severity = "error"
-    title = "verify-figure-mismatch"
-    template = "{what} is {got} but brute-force enumeration gives {want} at {point}"
-
-
-class FiguresVerified(Diagnostic):
-    """--verify summary of the working-set and per-thread figures of one nest: what was checked,
-    and what was not and why."""
-
-    code = "TC306"
-    severity = "note"
-    title = "figures-verified"
-    template = "{message}"
 
 
 class OverBudget(Exception):

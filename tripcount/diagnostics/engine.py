@@ -46,6 +46,26 @@ class WorkVerified(Diagnostic):
                 "against weights times enumerated statement counts at {points} parameter points")
 
 
+class FigureMismatch(Diagnostic):
+    """--verify found a working-set or per-thread figure that disagrees with brute-force enumeration
+    (a bug: please report)."""
+
+    code = "TC305"
+    severity = "error"
+    title = "verify-figure-mismatch"
+    template = "{what} is {got} but brute-force enumeration gives {want} at {point}"
+
+
+class FiguresVerified(Diagnostic):
+    """--verify summary of the working-set and per-thread figures of one nest: what was checked,
+    and what was not and why."""
+
+    code = "TC306"
+    severity = "note"
+    title = "figures-verified"
+    template = "{message}"
+
+
 class AnalysisLimit(Diagnostic):
     """A nest's analysis stopped at its time or operation budget (partial, never wrong)."""
 
