@@ -1,8 +1,8 @@
-# Calibration of tripcount.guard's constants on this machine:
+# Calibration of tripcount.budget's constants on this machine:
 #   * isl operations per second of one long isl call (ISL_OPS_PER_SECOND), found
 #     by bisecting the smallest operation budget under which each call succeeds;
 #   * microseconds per outer point of Set.count_val's scan (INLINE_SCAN_POINTS),
-#     against guard.scan_estimate.
+#     against budget.scan_estimate.
 #
 #   python bench/guard_calibrate.py
 
@@ -17,7 +17,7 @@ sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 import islpy as isl  # noqa: E402
 
-from tripcount import guard  # noqa: E402
+from tripcount import budget  # noqa: E402
 
 CTX = isl.DEFAULT_CONTEXT
 
@@ -69,19 +69,19 @@ def main() -> None:
                 continue
             n = ops_needed(fn)
             print(f"  {k} pieces {name:14s} {n:>10,} ops {dt:8.4f} s  {n / dt:10.3g} ops/s")
-    print(f"guard.ISL_OPS_PER_SECOND = {guard.ISL_OPS_PER_SECOND:,}")
+    print(f"budget.ISL_OPS_PER_SECOND = {budget.ISL_OPS_PER_SECOND:,}")
     print("count_val: microseconds per outer point (scan_estimate)")
     for text, n in (("[N] -> { [i, j, k] : 0 <= i < N and 0 <= j < N and 0 <= k < N }", 300),
                     ("[N] -> { [i, j, k] : 0 <= i < N and i <= j < N and 0 <= k <= j and (i + j + k) mod 3 = 0 }", 300),
                     ("[N] -> { [i, j] : 0 <= i < N and 0 <= j < 1000 * N and exists e : j = 12345 e + 7 i }", 2000)):
         s = isl.Set(text)
         s = s.fix_val(isl.dim_type.param, 0, isl.Val.read_from_str(s.get_ctx(), str(n)))
-        rows = guard.scan_estimate(s)
+        rows = budget.scan_estimate(s)
         t = time.perf_counter()
         v = s.count_val()
         dt = time.perf_counter() - t
         print(f"  {rows:>10,} outer points  {dt:8.4f} s  {1e6 * dt / max(rows, 1):8.2f} us/point  ({v} points)")
-    print(f"guard.INLINE_SCAN_POINTS = {guard.INLINE_SCAN_POINTS:,}")
+    print(f"budget.INLINE_SCAN_POINTS = {budget.INLINE_SCAN_POINTS:,}")
 
 
 if __name__ == "__main__":

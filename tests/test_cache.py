@@ -1,5 +1,6 @@
-# Tests of tripcount/cache.py: where the cache lives, atomic and concurrent
-# writes, corrupt entries, keys that ignore spacing and comments but not
+# Tests of the result cache (tripcount/cache.py, the store; cachekeys.py, keys
+# and positions; cached.py, the cached way through the driver): where the
+# cache lives, atomic and concurrent writes, corrupt entries, keys that ignore spacing and comments but not
 # code, macros or options, positions moved to where the same tokens now are,
 # results equal to the uncached pipeline's, and a warm path that imports
 # neither islpy nor sympy nor the engine.
@@ -16,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from tripcount import cache
+from tripcount import cache, cached, cachekeys
 from tripcount.ir import Span
 from tripcount.options import Options
 
@@ -120,23 +121,23 @@ def test_concurrent_writers_never_expose_half_an_entry(tmp_path):
 
 
 def test_tokens_ignore_spacing_and_comments():
-    a = cache.tokenize("for (int i=0;i<N;i++) /* c */ x += 1; // tail\n")
-    b = cache.tokenize("for ( int i = 0 ;\n  i < N ; i ++ )\n  x+=1;")
+    a = cachekeys.tokenize("for (int i=0;i<N;i++) /* c */ x += 1; // tail\n")
+    b = cachekeys.tokenize("for ( int i = 0 ;\n  i < N ; i ++ )\n  x+=1;")
     assert a.spell == b.spell
     assert "+=" in a.spell and "++" in a.spell
-    c = cache.tokenize('s = "a  b"; t = \'x\';')
+    c = cachekeys.tokenize('s = "a  b"; t = \'x\';')
     assert '"a  b"' in c.spell  # spacing inside literals is kept
 
 
 def test_directives_end_with_their_line():
-    a = cache.tokenize("#define N 4\nint x = N;")
-    b = cache.tokenize("#define N\n4 int x = N;")
+    a = cachekeys.tokenize("#define N 4\nint x = N;")
+    b = cachekeys.tokenize("#define N\n4 int x = N;")
     assert a.spell != b.spell
-    assert a.spell[:4] == ["#", "define", "N", "4"] and a.spell[4] == cache.EOL
+    assert a.spell[:4] == ["#", "define", "N", "4"] and a.spell[4] == cachekeys.EOL
 
 
 def test_position_round_trip():
-    t = cache.tokenize("ab\ncd\n\nef")
+    t = cachekeys.tokenize("ab\ncd\n\nef")
     for off in range(len(t.text) + 1):
         assert t.offset(*t.position(off)) == off
 
@@ -177,38 +178,38 @@ void tide_smooth(int N, double L[restrict N])
 @needs_pipeline
 def test_keys_follow_code_not_layout():
     o = Options(at={"N": 8, "T": 3})
-    base = [s.key for s in cache.locate(TIDE, "t.c", o).sites]
+    base = [s.key for s in cached.locate(TIDE, "t.c", o).sites]
     assert len(base) == 3 and len(set(base)) == 3
     relaid = TIDE.replace("    for (int t", "  // comment line\n  for (int t").replace("q++)", "q ++ )")
-    assert [s.key for s in cache.locate(relaid, "t.c", o).sites] == base
+    assert [s.key for s in cached.locate(relaid, "t.c", o).sites] == base
     edited = TIDE.replace("L[i] *= 2;", "L[i] *= 3;")
-    keys = [s.key for s in cache.locate(edited, "t.c", o).sites]
+    keys = [s.key for s in cached.locate(edited, "t.c", o).sites]
     assert keys[:2] == base[:2] and keys[2] != base[2]  # only the edited nest misses
     macro = TIDE.replace("VELIN_CONSTITUENTS 8", "VELIN_CONSTITUENTS 9")
-    assert all(a != b for a, b in zip([s.key for s in cache.locate(macro, "t.c", o).sites], base, strict=True))
+    assert all(a != b for a, b in zip([s.key for s in cached.locate(macro, "t.c", o).sites], base, strict=True))
     other_opts = Options(at={"N": 9, "T": 3})
-    assert all(a != b for a, b in zip([s.key for s in cache.locate(TIDE, "t.c", other_opts).sites], base,
+    assert all(a != b for a, b in zip([s.key for s in cached.locate(TIDE, "t.c", other_opts).sites], base,
                                       strict=True))
     # a statement before the loop in the same function is part of the nest's context
     prelude = TIDE.replace("{\n    for (int i = 1", "{\n    N = N - 1;\n    for (int i = 1")
-    k2 = [s.key for s in cache.locate(prelude, "t.c", o).sites]
+    k2 = [s.key for s in cached.locate(prelude, "t.c", o).sites]
     assert k2[0] == base[0] and k2[1] != base[1]
 
 
 @needs_pipeline
 def test_cached_equals_uncached_after_edits(cache_dir):
     o = Options(at={"N": 8, "T": 3})
-    fresh = cache.analyze_file_uncached("t.c", TIDE, o)
-    cold = cache.analyze_file_cached("t.c", TIDE, o)
-    warm = cache.analyze_file_cached("t.c", TIDE, o)
+    fresh = cached.analyze_file_uncached("t.c", TIDE, o)
+    cold = cached.analyze_file_cached("t.c", TIDE, o)
+    warm = cached.analyze_file_cached("t.c", TIDE, o)
     assert fresh == cold == warm
     # spacing, comments and a new line above: positions move, nothing is recomputed
     moved = "// Velin harbour office\n\n" + TIDE.replace("                L[t][q] += A[q][c];",
                                                          "          /* sum */  L[t][q]  +=  A[q][c];")
     st = cache.Store()
-    got = cache.analyze_file_cached("t.c", moved, o, store=st)
+    got = cached.analyze_file_cached("t.c", moved, o, store=st)
     assert st.writes == 1  # only the file-level entry: every nest came from the cache
-    assert got == cache.analyze_file_uncached("t.c", moved, o)
+    assert got == cached.analyze_file_uncached("t.c", moved, o)
     stmt = got["nests"][0]["statements"][0]
     assert stmt["line"] == 11 and stmt["text"] == "L[t][q]  +=  A[q][c]"
 
@@ -249,7 +250,7 @@ def test_cached_diagnostics_keep_structured_args_and_move_with_the_code(cache_di
 @needs_pipeline
 def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch):
     o = Options(at={"N": 8, "T": 3})
-    cache.analyze_file_cached("t.c", TIDE, o)
+    cached.analyze_file_cached("t.c", TIDE, o)
     import tripcount.pipeline as pipeline
 
     calls = []
@@ -261,14 +262,14 @@ def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch):
 
     monkeypatch.setattr(pipeline, "analyze_nest", counting)
     edited = TIDE.replace("L[i] *= 2;", "L[i] *= 3;")
-    got = cache.analyze_file_cached("t.c", edited, o)
+    got = cached.analyze_file_cached("t.c", edited, o)
     assert calls == [16]
-    assert got == cache.analyze_file_uncached("t.c", edited, o)
+    assert got == cached.analyze_file_uncached("t.c", edited, o)
 
 
 @needs_pipeline
 def test_use_cache_false_writes_nothing(cache_dir):
-    cache.analyze_file_cached("t.c", TIDE, Options(), use_cache=False)
+    cached.analyze_file_cached("t.c", TIDE, Options(), use_cache=False)
     assert not cache_dir.exists()
 
 
@@ -299,18 +300,18 @@ def test_file_with_errors_and_unicode(cache_dir):
     text = "/* caf\u00e9 \U0001F30A */\nvoid f(int N, double *a) {\n  for (int i = 0; i < N; i++) { a[i] = \"\u00e9\"[0]; }\n" \
            "  for (int j = 0; j < N; j *= 2) a[j] = 0;\n}\n"
     o = Options(at={"N": 5})
-    first = cache.analyze_file_cached("u.c", text, o)
-    assert first == cache.analyze_file_uncached("u.c", text, o)
+    first = cached.analyze_file_cached("u.c", text, o)
+    assert first == cached.analyze_file_uncached("u.c", text, o)
     moved = "\n" + text
-    assert cache.analyze_file_cached("u.c", moved, o) == cache.analyze_file_uncached("u.c", moved, o)
+    assert cached.analyze_file_cached("u.c", moved, o) == cached.analyze_file_uncached("u.c", moved, o)
     bom = "\ufeff" + moved
-    assert cache.analyze_file_cached("u.c", bom, o) == cache.analyze_file_uncached("u.c", bom, o)
+    assert cached.analyze_file_cached("u.c", bom, o) == cached.analyze_file_uncached("u.c", bom, o)
 
 
 def test_read_source_reports_bad_bytes(tmp_path):
     p = tmp_path / "b.c"
     p.write_bytes(b"int x;\nint \xff y;\n")
-    text, diag = cache.read_source(str(p))
+    text, diag = cached.read_source(str(p))
     assert "\ufffd" in text and diag["code"] == "TC190" and (diag["line"], diag["column"]) == (2, 5)
 
 
@@ -323,16 +324,16 @@ def test_results_cut_short_by_time_are_not_kept():
 
     span = Span.point(3, 5)
     keep = FormulaLimit(span, what="S1", reason="more than 256 pieces", fallback="", time_bound=False)
-    assert not cache._depends_on_time(keep.to_dict())
+    assert not cachekeys.depends_on_time(keep.to_dict())
     worded = FormulaLimit(span, what="S1", reason="time of day", fallback="", time_bound=False).to_dict()
-    assert not cache._depends_on_time(worded)  # the word "time" alone decides nothing
+    assert not cachekeys.depends_on_time(worded)  # the word "time" alone decides nothing
     for d in (AnalysisLimit(span, reason="time limit", kept="the counts"),
               FileBudgetSpent(span, seconds=2.0, factor=3),
               InternalError(span, what="x"),
               FormulaLimit(span, what="S1", reason="time limit of 2 s exceeded (sum)", fallback="", time_bound=True),
               FootprintLimit(span, what="some working sets", reason="no formula within 0.5 s", fallback="",
                              time_bound=True)):
-        assert cache._depends_on_time(d.to_dict()), d
+        assert cachekeys.depends_on_time(d.to_dict()), d
 
 
 def test_an_entry_without_its_summary_is_a_miss(tmp_path):
@@ -341,7 +342,7 @@ def test_an_entry_without_its_summary_is_a_miss(tmp_path):
 
     st = cache.Store(str(tmp_path))
     o = Options(at={"N": 8})
-    first = cache.analyze_file_cached("t.c", TIDE, o, store=st)
+    first = cached.analyze_file_cached("t.c", TIDE, o, store=st)
     for dirpath, _dirs, files in os.walk(os.path.join(st.root, "nest")):
         for name in files:
             p = os.path.join(dirpath, name)
@@ -351,7 +352,7 @@ def test_an_entry_without_its_summary_is_a_miss(tmp_path):
             with open(p, "w", encoding="utf-8") as f:
                 json.dump(e, f)
     shutil.rmtree(os.path.join(st.root, "file"), ignore_errors=True)
-    assert cache.analyze_file_cached("t.c", TIDE, o, store=st) == first
+    assert cached.analyze_file_cached("t.c", TIDE, o, store=st) == first
 
 
 # --------------------------------------------------------------------------

@@ -16,7 +16,7 @@ TIDE = """void tide(int N, double *h) {
 
 
 def _written_entry():
-    from tripcount.cache import analyze_file_cached
+    from tripcount.cached import analyze_file_cached
 
     options = build_options({}, CommandLine.of({"at": ["N=10"]}))
     out = analyze_file_cached("t.c", TIDE, options, use_cache=False)

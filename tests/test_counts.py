@@ -11,8 +11,8 @@ import time
 
 from conftest import INPUTS
 
-from tripcount import guard
 from tripcount.analysis import counts
+from tripcount.budget import Budget
 from tripcount.options import Options
 
 HARD5 = os.path.join(INPUTS, "robustness", "hard5_strides.c")
@@ -34,9 +34,11 @@ def hard5_count(N: int, M: int, P: int) -> int:
 def test_limits_never_exceed_the_time_left():
     options = Options(time_limit=20)
     assert counts.limits_of(options).time_s == 20
-    with guard.nest_budget(options) as b:
-        b.deadline = time.monotonic() + 0.5
-        assert counts.limits_of(options).time_s <= 0.5
+    b = Budget.start(options.time_limit)
+    assert counts.limits_of(options, b).time_s <= 20
+    b.deadline = time.monotonic() + 0.5
+    limits = counts.limits_of(options, b)
+    assert limits.time_s <= 0.5 and limits.budget is b
 
 
 def test_statement_value_by_enumeration_when_the_formula_limit_is_hit(run_cli):

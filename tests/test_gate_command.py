@@ -51,9 +51,9 @@ def stub_analyze(path, text, options, use_cache=True, store=None):
 
 @pytest.fixture
 def stub(monkeypatch, tmp_path, private_cache):
-    import tripcount.cache
+    import tripcount.cached
 
-    monkeypatch.setattr(tripcount.cache, "analyze_file_cached", stub_analyze)
+    monkeypatch.setattr(tripcount.cached, "analyze_file_cached", stub_analyze)
     return tmp_path
 
 

@@ -32,11 +32,12 @@ STAGES: list[set[str]] = [
     {"frontend"},
     {"affine"},
     {"model"},
+    {"budget"},
     {"engine", "guard"},
     {"analysis"},
     {"report"},
-    {"pipeline", "compdb"},
-    {"cache", "cacheentry"},
+    {"pipeline", "compdb", "cache", "cachekeys", "cacheentry"},
+    {"cached"},
     {"gate", "cli", "lsp", "lspframes", "lspworker", "__main__"},
 ]
 

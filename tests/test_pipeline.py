@@ -7,6 +7,7 @@ import os
 from conftest import CORPUS, INPUTS
 
 from tripcount import pipeline
+from tripcount.analysis.protocol import Analysis
 from tripcount.options import Options
 
 FLUSH = os.path.join(INPUTS, "cli", "harbour_flush.c")
@@ -25,7 +26,7 @@ def test_collect_paths_walks_directories():
 def test_failure_in_one_nest_is_contained(monkeypatch):
     calls = []
 
-    def broken(result, options):
+    def broken(result, options, budget):
         calls.append(result.nest.function)
         if result.nest.function == "flush_basin":
             raise RuntimeError("boom")
@@ -33,7 +34,7 @@ def test_failure_in_one_nest_is_contained(monkeypatch):
     real = pipeline.analyses
 
     def patched():
-        return real() + [("broken", broken)]
+        return real() + [Analysis("broken", broken)]
 
     monkeypatch.setattr(pipeline, "analyses", patched)
     fr = pipeline.analyze_file(FLUSH, Options(at={"n": 4}))

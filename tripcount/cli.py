@@ -187,7 +187,7 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     for k, path in enumerate(paths):
         progress.step(k, path)
         if cached:
-            from tripcount.cache import analyze_path_cached
+            from tripcount.cached import analyze_path_cached
 
             file_json.append(analyze_path_cached(path, options, use_cache=not args.no_cache))
         else:

@@ -121,7 +121,7 @@ def analyze_document(path: str | None, text: str, use_cache: bool = True) -> Ana
     Its findings are those `tripcount check` gives the file without a
     baseline (the same gate.findings_for, budgets and suppression comments).
     """
-    from tripcount.cache import analyze_file_cached
+    from tripcount.cached import analyze_file_cached
     from tripcount.config import build_options, load_config
     from tripcount.gate.budgets import budgets_from, cache_levels, effective_table
     from tripcount.gate.findings import findings_for

@@ -6,18 +6,21 @@
 # the front end or the model on a whole file is a file-level internal error
 # (TC902); the other files are still analyzed.
 #
-# Every nest runs under tripcount.guard.nest_budget: a per-nest time limit and
-# isl operation budget (Options.time_limit), so that one hard nest cannot stop
-# the others; a nest that hits them keeps its completed counts and gets a
-# limit diagnostic (TC310). A file's nests share FILE_TIME_FACTOR x time_limit;
+# Every nest runs under one tripcount.budget.Budget (Options.time_limit
+# seconds, with its isl operation budget and hard stop in force), passed
+# explicitly to each analysis (analysis/protocol.py), so that one hard nest
+# cannot stop the others; a nest that hits it keeps its completed counts and
+# gets a limit diagnostic (TC310). The analyses return their outputs; the
+# NestResult is assembled from them here, so a cut analysis is simply left out. A file's nests share FILE_TIME_FACTOR x time_limit;
 # nests past it are listed as not analyzed (TC311). The nests of a file run
-# on a pool of forked workers when that pays (run_nests), else serially; the
-# result cache (cache.py) asks run_nests for the nests it lacks, so every
-# entry point gets its results from this one driver.
+# on a pool of forked workers when that pays (run_nests), else serially.
+# With the result cache (cached.py finds the nests and their keys with the
+# front end alone), compute_missing builds the model, takes every nest it can
+# from the store, analyzes the others here and stores their results: every
+# entry point (analyze, check, serve) gets its results from this one driver.
 
 from __future__ import annotations
 
-import dataclasses
 import os
 import sys
 import time
@@ -25,9 +28,12 @@ import traceback
 from collections.abc import Callable, Iterable
 from typing import Any
 
+from tripcount import cachekeys as keys
 from tripcount import guard
-from tripcount.analysis import counts
+from tripcount.analysis.protocol import Analysis, Inputs, Output, analyses, assemble
 from tripcount.analysis.results import Count, FileResult, LoopResult, NestResult, StatementResult
+from tripcount.budget import Budget, LimitReached, NestLimit, is_quota_error
+from tripcount.cache import Store
 from tripcount.compdb import source_flags
 from tripcount.diagnostics.engine import AnalysisLimit, FileBudgetSpent
 from tripcount.diagnostics.internal import InternalError, ReadFailure, UnreadableFile
@@ -38,16 +44,6 @@ from tripcount.model import Nest, build_nests
 from tripcount.options import Options
 from tripcount.sources import collect_paths, decode_source, read_bytes  # noqa: F401 - re-exported: the CLI and tests read files through the pipeline
 
-Analysis = Callable[[NestResult, Options], None]
-
-
-def analyses() -> list[tuple[str, Analysis]]:
-    """The analyses run on every nest, in order (counts first: others read them)."""
-    from tripcount.analysis import balance, footprint, verify
-
-    return [("counts", counts.analyze), ("footprint", footprint.analyze), ("balance", balance.analyze),
-            ("verify", verify.analyze)]
-
 
 def _where(exc: BaseException) -> str:
     """`file:line` of the innermost frame of an exception."""
@@ -55,27 +51,6 @@ def _where(exc: BaseException) -> str:
     if not frames:
         return "?"
     return f"{os.path.basename(frames[-1].filename)}:{frames[-1].lineno}"
-
-
-def _snapshot(result: NestResult) -> tuple[int, int, int, dict, list[dict], list[dict]]:
-    """What an analysis may add to a result, to take it back when the analysis is cut short."""
-    return (len(result.diagnostics), len(result.loops), len(result.statements), dict(result.extras),
-            [dict(lr.extras) for lr in result.loops], [dict(sr.extras) for sr in result.statements])
-
-
-def _restore(result: NestResult, snap: tuple[int, int, int, dict, list[dict], list[dict]]) -> None:
-    n_diag, n_loops, n_stmts, extras, loop_extras, stmt_extras = snap
-    del result.diagnostics[n_diag:]
-    del result.loops[n_loops:]
-    del result.statements[n_stmts:]
-    result.extras.clear()
-    result.extras.update(extras)
-    for lr, ex in zip(result.loops, loop_extras, strict=False):
-        lr.extras.clear()
-        lr.extras.update(ex)
-    for sr, ex in zip(result.statements, stmt_extras, strict=False):
-        sr.extras.clear()
-        sr.extras.update(ex)
 
 
 def _complete_counts(result: NestResult, note: str) -> None:
@@ -94,83 +69,110 @@ def _complete_counts(result: NestResult, note: str) -> None:
     result.statements.sort(key=lambda sr: order_s.get(id(sr.stmt), len(order_s)))
 
 
-def analyze_nest(nest: Nest, options: Options) -> NestResult:
-    """Run every analysis on one nest; an exception becomes an internal-error diagnostic.
+LIMIT_NOTE = "count unknown (nest limit reached)"
 
-    The analyses share the nest's budget (guard.nest_budget): each one gets the
-    time left as its `time_limit`. When the budget is spent, the analysis
-    running is cut: completed counts are kept, anything else it produced is
-    dropped, the later analyses are skipped, and a TC310 diagnostic says so.
+
+class _Run:
+    """The outputs of one nest's analyses so far, and what was stopped."""
+
+    def __init__(self, nest: Nest) -> None:
+        self.nest = nest
+        self.outputs: list[Output] = []
+        self.last: Analysis | None = None  # the analysis whose output came last
+        self.stopped: list[str] = []  # analyses cut short or skipped at the limit
+        self.reason = ""
+        self.counts_note: str | None = None  # loops and statements without counts get this note
+
+    def take_back_last(self) -> None:
+        """Drop the last analysis' output (it may have run on a spent budget); a partial
+        analysis (the counts) keeps what it completed."""
+        last = self.last
+        if last is None:
+            return
+        if last.partial:
+            self.counts_note = LIMIT_NOTE
+        elif self.outputs and self.outputs[-1].name == last.name:
+            self.outputs.pop()
+        self.stopped.append(last.name)
+        self.last = None
+
+    def failed(self, name: str, exc: BaseException) -> None:
+        """An internal error of one analysis, in the nest's diagnostics where it happened."""
+        self.outputs.append(Output(name=f"{name} (failed)", diagnostics=(InternalError(
+            self.nest.span, what=f"{name}: {type(exc).__name__}: {guard._short(exc)} at {_where(exc)}"),)))
+
+
+def analyze_nest(nest: Nest, options: Options) -> NestResult:
+    """Run every analysis on one nest under one budget; assemble the NestResult of their outputs.
+
+    An exception becomes an internal-error diagnostic. When the budget is
+    spent, the analysis running is cut: completed counts are kept, anything
+    else it produced is left out, the later analyses are skipped, and a TC310
+    diagnostic says so.
     """
-    result = NestResult(nest=nest, loops=[], statements=[], diagnostics=list(nest.diagnostics))
-    stopped: list[str] = []  # analyses cut short or skipped at the limit
-    reason = ""
-    last: tuple[str, Any] | None = None  # the analysis that ran last, with its snapshot
+    run = _Run(nest)
+    budget = Budget.start(options.time_limit)
     try:
-        with guard.nest_budget(options) as budget:
-            for name, run in analyses():
-                if stopped:
-                    stopped.append(name)
-                    continue
-                if last is not None and budget.ops_spent():
-                    # the previous analysis swallowed a spent-budget isl error: take it back
-                    _cut(result, *last)
-                    stopped.extend([last[0], name])
-                    reason = budget.reason()
-                    continue
-                left = budget.remaining()
-                if left <= 0:
-                    budget.tripped = budget.tripped or "time"
-                    reason = budget.reason()
-                    stopped.append(name)
-                    continue
-                snap = _snapshot(result)
-                last = (name, snap)
-                # later analyses get the time left, so the engine's own checks stop in time
-                local = options
-                if left < 0.95 * budget.time_limit:
-                    local = dataclasses.replace(options, time_limit=max(0.01, round(left, 2)))
-                try:
-                    run(result, local)
-                except (guard.NestLimit, guard.EnumerationLimit) as exc:
-                    budget.stop_alarm()
-                    budget.tripped = budget.tripped or "time"
-                    reason = str(exc) or budget.reason()
-                    _cut(result, name, snap)
-                    stopped.append(name)
-                except Exception as exc:  # one nest must not take the report down
-                    if guard.is_quota_error(exc) or budget.ops_spent():
-                        budget.tripped = "operations"
-                        reason = budget.reason()
-                        _cut(result, name, snap)
-                        stopped.append(name)
-                        continue
-                    result.diagnostics.append(
-                        InternalError(nest.span, what=f"{name}: {type(exc).__name__}: {guard._short(exc)} at "
-                                      f"{_where(exc)}"))
-                    if name == "counts":
-                        _complete_counts(result, "count unknown (internal error)")
-                        break
-    except guard.NestLimit as exc:  # found spent on leaving the budget, or a stop while handling one
-        reason = reason or str(exc)
-        if last is not None and last[0] not in stopped:
-            _cut(result, *last)
-            stopped.append(last[0])
-        elif last is None:
-            stopped.append("counts")
-            _complete_counts(result, "count unknown (nest limit reached)")
-    if stopped:
-        result.diagnostics.append(AnalysisLimit(nest.span, reason=reason or "limit reached",
-                                                      kept=_kept_text(result, stopped)))
+        with budget.enforce():
+            _run_analyses(run, options, budget)
+    except NestLimit as exc:  # found spent on leaving the budget, or a stop while handling one
+        run.reason = run.reason or str(exc)
+        if run.last is not None and run.last.name not in run.stopped:
+            run.take_back_last()
+        elif not run.outputs:
+            run.stopped.append("counts")
+            run.counts_note = LIMIT_NOTE
+    result = assemble(nest, run.outputs)
+    if run.counts_note is not None:
+        _complete_counts(result, run.counts_note)
+    if run.stopped:
+        result.diagnostics.append(AnalysisLimit(nest.span, reason=run.reason or "limit reached",
+                                                      kept=_kept_text(result, run.stopped)))
     return result
 
 
-def _cut(result: NestResult, name: str, snap: Any) -> None:
-    """Take back what a cut analysis produced (counts keep their completed, exact entries)."""
-    if name == "counts":
-        _complete_counts(result, "count unknown (nest limit reached)")
-        return
-    _restore(result, snap)
+def _run_analyses(run: _Run, options: Options, budget: Budget) -> None:
+    for unit in analyses():
+        if run.stopped:
+            run.stopped.append(unit.name)
+            continue
+        if run.last is not None and budget.ops_spent():
+            # the previous analysis swallowed a spent-budget isl error: take it back
+            run.take_back_last()
+            run.stopped.append(unit.name)
+            run.reason = budget.reason()
+            continue
+        if budget.remaining() <= 0:
+            budget.tripped = budget.tripped or "time"
+            run.reason = budget.reason()
+            run.stopped.append(unit.name)
+            continue
+        try:
+            out = unit.run(run.nest, options, budget, Inputs(run.nest, tuple(run.outputs)))
+        except (NestLimit, LimitReached) as exc:
+            budget.stop_alarm()
+            budget.tripped = budget.tripped or "time"
+            run.reason = str(exc) or budget.reason()
+            run.stopped.append(unit.name)
+            continue
+        except Exception as exc:  # one nest must not take the report down
+            if is_quota_error(exc) or budget.ops_spent():
+                budget.tripped = "operations"
+                run.reason = budget.reason()
+                run.stopped.append(unit.name)
+                continue
+            run.failed(unit.name, exc)
+            continue
+        run.outputs.append(out)
+        run.last = unit
+        if out.error is not None:  # a partial analysis (the counts) failed: the others need it
+            run.failed(unit.name, out.error)
+            run.counts_note = "count unknown (internal error)"
+            return
+        if out.stopped is not None:
+            run.reason = out.stopped
+            run.stopped.append(unit.name)
+            run.counts_note = LIMIT_NOTE
 
 
 def _kept_text(result: NestResult, stopped: list[str]) -> str:
@@ -355,3 +357,124 @@ def analyze_file(path: str, options: Options) -> FileResult:
     if bad is not None:
         result.diagnostics.insert(0, bad.with_path(path))
     return result
+
+
+# --------------------------------------------------------------------------
+# Results as JSON payloads, and the nests the result cache lacks
+
+_Payload = tuple[dict[str, Any], dict[str, Any], list[dict[str, Any]]]  # nest JSON, summary JSON, diagnostics
+
+
+def nest_payload(nr: NestResult, options: Options) -> tuple[dict[str, Any], dict[str, Any]]:
+    """A nest result's report JSON and typed summary JSON (formulas printed alike in both)."""
+    from tripcount.engine.readable import plain_forms
+    from tripcount.report.jsonout import nest_json
+
+    if options.gate:  # the gate prints formulas without the search for their most readable form
+        with plain_forms():
+            return nest_json(nr), nr.summary().to_json()
+    return nest_json(nr), nr.summary().to_json()
+
+
+def file_payload(path: str, text: str, options: Options) -> dict[str, Any]:
+    """The file JSON (jsonout.file_json form) with the nests' summaries, computed without the cache."""
+    fr = analyze_text(text, path, options)
+    payloads = [nest_payload(nr, options) for nr in fr.nests]
+    return {"path": fr.path, "nests": [p[0] for p in payloads], "summaries": [p[1] for p in payloads],
+            "diagnostics": [d.to_dict() for d in fr.all_diagnostics()]}
+
+
+class _Render:
+    """What the driver's workers send back for one nest: its payload (picklable JSON, no isl objects)."""
+
+    def __init__(self, options: Options) -> None:
+        self.options = options
+
+    def __call__(self, nr: Any) -> _Payload:
+        return (*nest_payload(nr, self.options), [d.to_dict() for d in nr.diagnostics])
+
+
+def compute_missing(layout: keys.Layout, path: str, options: Options,
+                    store: Store) -> tuple[list, list, list, bool]:
+    """The file's nest JSON, summaries and diagnostics, with the nests whose entries are
+    missing analyzed here (run_nests) and their new entries written.
+
+    The last element says whether every part of the file could be stored
+    (results cut by a time limit are not).
+    """
+    toks = layout.tokens
+    try:
+        nests, model_diags = build_nests(layout.unit, assume=options.assume, path=path)
+    except Exception as exc:  # build_nests contains failures per nest; this is the last net, as in analyze_text
+        failure = ReadFailure(Span.point(1, 1), path=path, what=f"model: {type(exc).__name__}: "
+                                    f"{guard._short(exc)} at {_where(exc)}")
+        return [], [], [*layout.parse_diagnostics, failure.to_dict()], False
+    by_pos = {(s.line, s.column): s for s in layout.sites}
+    cacheable = True
+    nest_out: list[dict[str, Any]] = []
+    summary_out: list[dict[str, Any]] = []
+    diags: list[dict[str, Any]] = list(layout.parse_diagnostics)
+    per_site: set[str] = set()
+    found: list[tuple[keys.Site | None, dict[str, Any] | None, dict[str, Any] | None, list[dict[str, Any]]] | None] = []
+    todo: list[int] = []
+    for k, nest in enumerate(nests):
+        site = by_pos.get((nest.span.line, nest.span.column))
+        cached = store.get("nest", site.key) if site is not None else None
+        remap = keys.entry_remap(cached, toks, site.anchors, layout.outside) if keys.usable_nest_entry(cached) else None
+        if remap is None:
+            found.append(None)
+            todo.append(k)
+            continue
+        nj = sj = None
+        if cached.get("nest") is not None:
+            nj = keys.slices_in(keys.remap_json(cached["nest"], remap), toks)
+            sj = keys.slices_in(keys.remap_json(cached["summary"], remap), toks)
+        found.append((site, nj, sj, keys.remap_diags(cached.get("diagnostics", []), remap)))
+    for k, (nj, sj, nd) in run_nests(nests, todo, options, _Render(options)).items():
+        site = by_pos.get((nests[k].span.line, nests[k].span.column))
+        found[k] = (site, nj, sj, nd)
+        if site is None:
+            cacheable = False  # a nest the front end did not show us: no key to store it under
+        elif not any(keys.depends_on_time(d) for d in nd):
+            store.put("nest", site.key, {
+                "nest": keys.slices_out(nj, toks), "summary": keys.slices_out(sj, toks), "diagnostics": nd,
+                **keys.entry_anchors(toks, site.anchors, layout.outside, site.lo, site.stop, [nj, sj, nd])})
+        else:
+            cacheable = False
+    for entry in found:
+        assert entry is not None
+        site, nj, sj, nd = entry
+        if nj is not None and sj is not None:
+            nest_out.append(nj)
+            summary_out.append(sj)
+        diags.extend(nd)
+        if site is not None:
+            per_site.add(site.key)
+    # Loops the model made no nest of still get an entry, so that the warm path sees no miss.
+    for s in layout.sites:
+        if s.key not in per_site and store.get("nest", s.key) is None:
+            store.put("nest", s.key, {"nest": None, "diagnostics": [], "anchors": [], "wide": False})
+    # The model's own diagnostics: inside a nest, a function, or outside all functions.
+    md = [d.to_dict() for d in model_diags]
+    fn_diags: dict[int, list[dict[str, Any]]] = {k: [] for k in range(len(layout.functions))}
+    out_diags: list[dict[str, Any]] = []
+    for d in md:
+        a, _b = keys.span_of(d, toks)
+        owner = None
+        for k, (_name, fa, fb, _key) in enumerate(layout.functions):
+            if fa <= a < fb:
+                owner = k
+                break
+        if owner is None:
+            out_diags.append(d)
+        else:
+            fn_diags[owner].append(d)
+    diags.extend(md)
+    for k, (_name, fa, fb, key) in enumerate(layout.functions):
+        i, j = toks.range(fa, fb)
+        store.put("fn", key, {"diagnostics": fn_diags[k],
+                              **keys.entry_anchors(toks, list(range(i, j)), layout.outside, fa, fb, fn_diags[k])})
+    store.put("out", layout.outside_key, {"diagnostics": out_diags,
+                                          "anchors": keys.anchor_positions(toks, layout.outside)})
+    return nest_out, summary_out, diags, cacheable
+

@@ -17,8 +17,9 @@ from typing import Any
 
 import islpy as isl
 
-from tripcount import engine, guard
+from tripcount import engine
 from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
+from tripcount.budget import Budget
 from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics.engine import FormulaLimit, VerifyMismatch, VerifyPassed
 from tripcount.engine.islconv import val_int
@@ -49,16 +50,15 @@ def context_for(s: isl.Set, context: isl.Set | None) -> isl.Set | None:
 MIN_FORMULA_S = 0.05
 
 
-def limits_of(options: Options) -> engine.Limits:
+def limits_of(options: Options, budget: Budget | None = None) -> engine.Limits:
     """Engine limits of one count: the nest's, and never past the time left in
     its budget (each count used to get the whole limit, so the counts of the
     loops could spend the nest's time and leave the statements to the hard stop,
     with no value at all)."""
     time_s = options.time_limit
-    b = guard.current()
-    if b is not None:
-        time_s = min(time_s, round(b.remaining(), 2))
-    return engine.Limits(time_s=time_s, max_pieces=options.max_pieces)
+    if budget is not None:
+        time_s = min(time_s, round(budget.remaining(), 2))
+    return engine.Limits(time_s=time_s, max_pieces=options.max_pieces, budget=budget)
 
 
 def params_of(s: isl.Set) -> list[str]:
@@ -66,14 +66,16 @@ def params_of(s: isl.Set) -> list[str]:
     return [s.get_dim_name(isl.dim_type.param, i) for i in range(s.dim(isl.dim_type.param))]
 
 
-def value_at(formula: engine.Piecewise | None, s: isl.Set, options: Options) -> int | Fraction | None:
-    """Exact value at the --at sizes: None unless every parameter of `s` is given."""
+def value_at(formula: engine.Piecewise | None, s: isl.Set, options: Options,
+             budget: Budget | None = None) -> int | Fraction | None:
+    """Exact value at the --at sizes: None unless every parameter of `s` is given
+    (without a formula, by enumeration within `budget`)."""
     point = options.sizes(params_of(s))
     if point is None:
         return None
     if formula is not None:
         return _as_int(formula.evaluate(point))
-    return engine.enumerate_count(s, point)
+    return engine.enumerate_count(s, point, budget)
 
 
 def _as_int(v: Fraction | int) -> int | Fraction:
@@ -83,10 +85,10 @@ def _as_int(v: Fraction | int) -> int | Fraction:
 
 
 def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
-              diags: list[Diagnostic]) -> Count:
+              diags: list[Diagnostic], budget: Budget | None = None) -> Count:
     """Count a set: formula plus value, with a diagnostic and fallback on limits."""
     try:
-        limits = limits_of(options)
+        limits = limits_of(options, budget)
         if limits.time_s < MIN_FORMULA_S:
             raise engine.EngineLimit(f"time limit of {options.time_limit:g} s per nest spent before this count")
         formula = engine.count(s, context_for(s, nest.context), limits)
@@ -94,7 +96,7 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
         v = None
         fallback = "values below are exact enumerations at the given sizes"
         try:
-            v = value_at(None, s, options)
+            v = value_at(None, s, options, budget)
         except Exception:  # enumeration too can be out of reach; say so
             fallback = "no value either"
         if v is None and not options.at:
@@ -146,8 +148,8 @@ def outer_as_params(domain: isl.Set, n_outer: int) -> isl.Set:
     return domain.move_dims(isl.dim_type.param, n_param, isl.dim_type.set, 0, n_outer)
 
 
-def analyze(result: NestResult, options: Options) -> None:
-    """Fill in statement counts and loop trip counts of one nest."""
+def analyze(result: NestResult, options: Options, budget: Budget | None = None) -> None:
+    """Fill in statement counts and loop trip counts of one nest (within `budget`; None: no bound)."""
     nest = result.nest
     diags = result.diagnostics
     # statements first: their counts are the main result, and they get the time first
@@ -155,13 +157,13 @@ def analyze(result: NestResult, options: Options) -> None:
         if stmt.domain is None:
             result.statements.append(StatementResult(stmt, Count(note="count unknown (refused)")))
             continue
-        c = count_set(stmt.domain, nest, options, f"statement {stmt.id}", stmt.span, diags)
+        c = count_set(stmt.domain, nest, options, f"statement {stmt.id}", stmt.span, diags, budget)
         result.statements.append(StatementResult(stmt, c))
     for loop in nest.loops:
         if loop.domain is None:
             result.loops.append(LoopResult(loop, Count(note="trip count unknown (refused)")))
             continue
-        trips = count_set(loop.domain, nest, options, f"loop '{loop.var}'", loop.span, diags)
+        trips = count_set(loop.domain, nest, options, f"loop '{loop.var}'", loop.span, diags, budget)
         per_entry = None
         if loop.depth > 0:
             local = outer_as_params(loop.domain, loop.depth)
@@ -170,7 +172,7 @@ def analyze(result: NestResult, options: Options) -> None:
             ctx = context_for(local, nest.context)
             reach = reach if ctx is None else reach.intersect(ctx)
             try:
-                limits = limits_of(options)
+                limits = limits_of(options, budget)
                 if limits.time_s < MIN_FORMULA_S:
                     raise engine.EngineLimit("no time left")
                 pw = engine.count(local, reach.coalesce(), limits)
@@ -182,7 +184,7 @@ def analyze(result: NestResult, options: Options) -> None:
             per_entry = Count(value=trips.value, formula=trips.formula)
         result.loops.append(LoopResult(loop, trips, per_entry))
     if options.verify:
-        verify(result, options)
+        verify(result, options, budget)
 
 
 def verification_points(formula: engine.Piecewise, s: isl.Set, limit: int = 40) -> list[dict[str, int]]:
@@ -226,7 +228,8 @@ def printed_value(formula: engine.Piecewise, point: Mapping[str, int]) -> Fracti
     return piecewise_value(pieces, point)
 
 
-def _check_formula(formula: engine.Piecewise, dom: isl.Set, context: isl.Set) -> tuple[str, Any, Any, dict] | None:
+def _check_formula(formula: engine.Piecewise, dom: isl.Set, context: isl.Set,
+                   budget: Budget | None = None) -> tuple[str, Any, Any, dict] | None:
     """First disagreement of the formula (evaluated, and as printed) with
     enumeration: (which, got, want, point), or None. Only points where the
     formula is claimed count: the assumptions, and for trips per entry the
@@ -236,7 +239,7 @@ def _check_formula(formula: engine.Piecewise, dom: isl.Set, context: isl.Set) ->
             continue
         if formula.context is not None and not in_context(formula.context, pt):
             continue
-        want = engine.enumerate_count(dom, pt)
+        want = engine.enumerate_count(dom, pt, budget)
         got = formula.evaluate(pt)
         if got != want:
             return "formula", got, want, pt
@@ -249,7 +252,7 @@ def _check_formula(formula: engine.Piecewise, dom: isl.Set, context: isl.Set) ->
     return None
 
 
-def verify(result: NestResult, options: Options) -> None:
+def verify(result: NestResult, options: Options, budget: Budget | None = None) -> None:
     """Compare every formula of the nest, and its printed text read back, with
     enumeration (a diagnostic per mismatch)."""
     nest = result.nest
@@ -269,7 +272,7 @@ def verify(result: NestResult, options: Options) -> None:
             continue
         checked += 1
         npoints += len(verification_points(cnt.formula, dom))
-        bad = _check_formula(cnt.formula, dom, nest.context)
+        bad = _check_formula(cnt.formula, dom, nest.context, budget)
         if bad is not None:
             which, got, want, pt = bad
             result.diagnostics.append(VerifyMismatch(

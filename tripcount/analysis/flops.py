@@ -365,15 +365,15 @@ def nest_flops(items: list[Flops]) -> Flops:
     return Flops(ops, total, kinds, calls, per_statement=False)
 
 
-def analyze(result: NestResult, options: Any = None,
-            scalar_types: Mapping[str, str] | None = None) -> Flops:
+def analyze(result: NestResult, options: Any = None, budget: Any = None) -> Flops:
     """Attach `flops`, `loads`, `stores` to every statement; returns the nest total flops.
 
-    Also sets the nest extras `flops`, `loads` and `stores` (totals).
-    `scalar_types` adds C types of scalars declared outside the nest.
+    Also sets the nest extras `flops`, `loads` and `stores` (totals). The C
+    types of scalars declared outside the nest come from the nest
+    (Nest.scalar_types). No isl work: `budget` is not needed.
     """
     nest = result.nest
-    types: dict[str, str | None] = dict(scalar_types or {})
+    types: dict[str, str | None] = dict(getattr(nest, "scalar_types", None) or {})
     types.update(declared_types(nest.statements))
     arrays: dict[str, str | None] = {}
     for s in nest.statements:

@@ -27,6 +27,7 @@ from tripcount.analysis.counts import (
 )
 from tripcount.analysis.results import Count, NestResult
 from tripcount.analysis.verify_enum import Tally, budget_for
+from tripcount.budget import Budget
 from tripcount.diagnostics.engine import FiguresVerified, VerifyMismatch, WorkVerified
 from tripcount.options import Options
 
@@ -80,21 +81,22 @@ def _points(result: NestResult) -> list[dict[str, int]]:
     return out[:MAX_POINTS]
 
 
-def _counts_at(result: NestResult, pt: Mapping[str, int]) -> dict[int, int] | None:
+def _counts_at(result: NestResult, pt: Mapping[str, int], budget: Budget | None = None) -> dict[int, int] | None:
     out = {}
     for k, sr in enumerate(result.statements):
         if sr.stmt.domain is None:
             return None
-        out[k] = int(engine.enumerate_count(sr.stmt.domain, dict(pt)))
+        out[k] = int(engine.enumerate_count(sr.stmt.domain, dict(pt), budget))
     return out
 
 
-def analyze(result: NestResult, options: Options) -> None:
-    """With --verify: check every work figure against weights times enumerated counts, then the
-    working sets and the per-thread balance against brute-force enumeration."""
+def analyze(result: NestResult, options: Options, budget: Budget | None = None) -> None:
+    """With --verify: check every work figure against weights times enumerated counts (enumerations
+    within `budget`; None: no bound), then the working sets and the per-thread balance against
+    brute-force enumeration."""
     if not options.verify or not result.statements:
         return
-    _work(result, options)
+    _work(result, options, budget)
     _figures_by_enumeration(result, options)
 
 
@@ -122,7 +124,7 @@ def _figures_by_enumeration(result: NestResult, options: Options) -> None:
     result.diagnostics.append(FiguresVerified(result.nest.span, message="; ".join(parts)))
 
 
-def _work(result: NestResult, options: Options) -> None:
+def _work(result: NestResult, options: Options, budget: Budget | None = None) -> None:
     """Flops by kind and by call, loads and stores, against weights times enumerated counts."""
     figures = _figures(result)
     if not figures:
@@ -130,7 +132,7 @@ def _work(result: NestResult, options: Options) -> None:
     nest = result.nest
     points = _points(result)
     at = options.sizes(nest.params)
-    enumerated = [(pt, _counts_at(result, pt)) for pt in itertools.chain(points, [at] if at else [])]
+    enumerated = [(pt, _counts_at(result, pt, budget)) for pt in itertools.chain(points, [at] if at else [])]
     bad = 0
     for what, count, weights in figures:
         for idx, (pt, counts) in enumerate(enumerated):

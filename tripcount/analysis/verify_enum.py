@@ -23,8 +23,8 @@ import islpy as isl
 
 from tripcount.analysis.counts import in_context, printed_value
 from tripcount.analysis.results import NestResult
+from tripcount.budget import count_points
 from tripcount.diagnostics.engine import FigureMismatch
-from tripcount.guard import count_points
 from tripcount.model import Access, Nest
 
 MAX_INSTANCES = 120_000  # statement instances enumerated per nest, over all size points
@@ -76,7 +76,7 @@ def afford(sets: Sequence[isl.Set], budget: Budget) -> None:
     the budget has left (a scan that would be cut spends nothing)."""
     total = 0
     for s in sets:
-        total += count_points(s)
+        total += count_points(s, None)
         if total > budget.instances:
             raise OverBudget
 

@@ -14,7 +14,7 @@ from collections.abc import Mapping
 
 import islpy as isl
 
-from tripcount.engine.islconv import val_int
+from tripcount.budget import Budget, count_points
 from tripcount.engine.memo import Memo, clear_all
 from tripcount.engine.piecewise import Piece, PieceList, Piecewise, add_all, build, qpoly_identical
 from tripcount.engine.qpoly import Floor, QPoly
@@ -121,8 +121,9 @@ def count(
     return sum_over(s, QPoly.const(1), context, limits)
 
 
-def enumerate_count(s: isl.Set, values: Mapping[str, int]) -> int:
-    """Oracle: fix every parameter to values[name] and count the points (isl Set.count_val)."""
+def enumerate_count(s: isl.Set, values: Mapping[str, int], budget: Budget | None = None) -> int:
+    """Oracle: fix every parameter to values[name] and count the points (isl enumeration,
+    bounded by `budget`: budget.count_points)."""
     if isinstance(s, isl.BasicSet):
         s = isl.Set.from_basic_set(s)
     sp = s.get_space()
@@ -130,4 +131,4 @@ def enumerate_count(s: isl.Set, values: Mapping[str, int]) -> int:
     for i in range(s.dim(_dt.param)):
         name = sp.get_dim_name(_dt.param, i)
         s = s.fix_val(_dt.param, i, isl.Val.read_from_str(ctx, str(int(values[name]))))
-    return val_int(s.count_val())
+    return count_points(s, budget)

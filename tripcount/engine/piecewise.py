@@ -20,6 +20,7 @@ from math import comb, lcm
 
 import islpy as isl
 
+from tripcount.budget import Budget, count_points
 from tripcount.engine.fmt import format_conditions
 from tripcount.engine.islconv import bset_constraints, exceeds, lin_isl, params_set, val_int
 from tripcount.engine.memo import Memo
@@ -379,14 +380,14 @@ def _merge_equal(regions: list[list]) -> list[list]:
     return [[r, g] for g, r in by.items()]
 
 
-def _param_points(r: isl.Set, limit: int) -> list[dict[str, int]] | None:
+def _param_points(r: isl.Set, limit: int, budget: Budget | None) -> list[dict[str, int]] | None:
     """All points of a bounded parameter set with at most `limit` points, else None."""
     n = r.dim(_dt.param)
     names = [r.get_space().get_dim_name(_dt.param, i) for i in range(n)]
     s = r.move_dims(_dt.set, 0, _dt.param, 0, n)
     if not s.is_bounded():
         return None
-    if val_int(s.count_val()) > limit:
+    if count_points(s, budget) > limit:
         return None
     pts: list[dict[str, int]] = []
 
@@ -652,7 +653,7 @@ def build(
     small: list[tuple[list, list[dict[str, int]]]] = []
     big: list[list] = []
     for reg in regions:
-        pts = _param_points(reg[0], 64) if _spare(st, 0.3) else None
+        pts = _param_points(reg[0], 64, st.limits.budget if st is not None else None) if _spare(st, 0.3) else None
         if pts is None:
             big.append(reg)
             continue

@@ -27,6 +27,7 @@ from math import lcm
 
 import islpy as isl
 
+from tripcount.budget import Budget, LimitReached
 from tripcount.engine.faulhaber import antidifference, sum_interval
 from tripcount.engine.islconv import aff_to_lin, bset_constraints, bset_divs, val_frac
 from tripcount.engine.qpoly import Floor, QPoly, atom_period, lin_scale, poly_period
@@ -34,8 +35,11 @@ from tripcount.engine.qpoly import Floor, QPoly, atom_period, lin_scale, poly_pe
 _dt = isl.dim_type
 
 
-class EngineLimit(Exception):
-    """Raised when a limit (time, pieces, terms) is hit or the count is not finite."""
+# Raised when a limit (time, pieces, terms) is hit or the count is not finite.
+# One class with the budget's give-ups (an enumeration refused by
+# budget.count_points inside the engine is a give-up of the count), so that a
+# caller handles every give-up of a count with one `except EngineLimit`.
+EngineLimit = LimitReached
 
 
 @dataclass
@@ -44,12 +48,15 @@ class Limits:
 
     time_s: float = 20.0  # per call wall-clock budget
     max_pieces: int = 256  # pieces/terms cap
+    budget: Budget | None = None  # the caller's budget: no deadline past its own, and bounded enumeration
 
 
 class _State:
     def __init__(self, limits: Limits) -> None:
         self.limits = limits
         self.deadline = time.monotonic() + limits.time_s
+        if limits.budget is not None:
+            self.deadline = min(self.deadline, limits.budget.deadline)
         self.n_terms = 0
         # intermediate terms may exceed the final piece count; residue splits of
         # a modulus up to 64 in two variables should still pass

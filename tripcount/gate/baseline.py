@@ -173,7 +173,7 @@ def baseline_nests(path: str, rev: str, origin: str, git: Git, options: Any,
     2); one from the configuration gives a TC630 warning; the default one
     (HEAD) silently means nothing to compare with, e.g. before the first commit.
     """
-    from tripcount.cache import analyze_file_cached
+    from tripcount.cached import analyze_file_cached
     from tripcount.gate.readings import summaries_of
 
     def problem(reason: str) -> tuple[list[NestSummary], str | None]:

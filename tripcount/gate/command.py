@@ -59,7 +59,7 @@ def check_file(path: str, given: CommandLine, git: Git, use_cache: bool, baselin
                staged: bool = False) -> FileCheck:
     """Analyze one file, hold it against its budgets and its baseline (`baseline`: --baseline;
     `staged`: the file was found staged in git, so HEAD is the default baseline)."""
-    from tripcount.cache import analyze_file_cached, read_source
+    from tripcount.cached import analyze_file_cached, read_source
 
     config = load_config(path)
     table = effective_table(config, path)

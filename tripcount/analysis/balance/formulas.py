@@ -23,6 +23,7 @@ from tripcount.analysis.balance.space import (
     sizes_of,
 )
 from tripcount.analysis.results import Count
+from tripcount.budget import Budget
 from tripcount.engine import PieceList
 from tripcount.engine.piecewise import when_text
 from tripcount.model import Nest
@@ -42,8 +43,9 @@ FORMULA_MAX_THREADS = 16  # per-thread formula of schedule(static): one piece pe
 # schedule(static), and a sum over the thread's chunks for schedule(static, c).
 
 
-def _limits(engine: Any, options: Options) -> Any:
-    return engine.Limits(time_s=options.time_limit, max_pieces=options.max_pieces)
+def _limits(engine: Any, options: Options, budget: Budget | None) -> Any:
+    # the nest's budget caps every call at the time it has left
+    return engine.Limits(time_s=options.time_limit, max_pieces=options.max_pieces, budget=budget)
 
 
 def _padded_union(sets: list[tuple[isl.Set, int]]) -> isl.Set:
@@ -64,26 +66,26 @@ def _padded_union(sets: list[tuple[isl.Set, int]]) -> isl.Set:
 
 
 def _count_weighted(engine: Any, sets: list[tuple[isl.Set, int | Fraction]], context: isl.Set,
-                    options: Options) -> Any:
+                    options: Options, budget: Budget | None = None) -> Any:
     """Engine count of sum(weight * |set|)."""
     sets = [(s, w) for s, w in sets if w]
     if not sets:
-        return engine.count(isl.Set.empty(context.get_space()), context, _limits(engine, options))
+        return engine.count(isl.Set.empty(context.get_space()), context, _limits(engine, options, budget))
     if all(isinstance(w, int) or Fraction(w).denominator == 1 for _, w in sets):
-        return engine.count(_padded_union([(s, int(w)) for s, w in sets]), context, _limits(engine, options))
+        return engine.count(_padded_union([(s, int(w)) for s, w in sets]), context, _limits(engine, options, budget))
     total = None
     for s, w in sets:
-        pw = engine.count(s, context, _limits(engine, options)).scale(w)
+        pw = engine.count(s, context, _limits(engine, options, budget)).scale(w)
         total = pw if total is None else total + pw
     return total
 
 
-def work_formula(nest: Nest, sp: Space, options: Options, names: str) -> Count:
+def work_formula(nest: Nest, sp: Space, options: Options, names: str, budget: Budget | None = None) -> Count:
     """Work of one iteration as a formula in the parameters and the loop variable(s)."""
     prefix = sp.depth + sp.width
     sets = [(s.move_dims(PARAM, s.dim(PARAM), SET, 0, prefix), w) for s, w in sp.stmts]
     try:
-        pw = _count_weighted(engine, sets, nest.context, options)
+        pw = _count_weighted(engine, sets, nest.context, options, budget)
     except Exception as exc:  # engine limit or refusal: the values at sizes still hold
         return Count(note=f"formula not available: {exc}")
     return Count(formula=pw, note=f"work of one iteration, in the parameters and {names}")
@@ -244,14 +246,14 @@ def _iteration_shares(ntext: str, tname: str, threads: int, chunk: int | None
 
 
 def _const_thread_formula(engine: Any, nest: Nest, sp: Space, options: Options, threads: int,
-                          chunk: int | None, tname: str) -> Count | None:
+                          chunk: int | None, tname: str, budget: Budget | None = None) -> Count | None:
     """Per-thread formula when every iteration of an entry weighs the same (rectangular bodies):
     the work of the entries' first iterations times the thread's number of iterations.
     Works for collapsed loops too, whose linearized index is not affine."""
     d, c = sp.depth, sp.width
     if any(_depends(s, sp.domain, d, c) for s, _ in sp.stmts):
         return None
-    lim = _limits(engine, options)
+    lim = _limits(engine, options, budget)
     kn = counters(sp)
     if kn is not None:
         ks, ns = kn
@@ -269,7 +271,7 @@ def _const_thread_formula(engine: Any, nest: Nest, sp: Space, options: Options, 
         npar = sp.domain.dim(PARAM)
         first = sp.domain.move_dims(PARAM, npar, SET, 0, d).lexmin().move_dims(SET, 0, PARAM, npar, d)
         extents = [engine.count(sp.domain.project_out(SET, 0, d) if d else sp.domain, nest.context, lim)]
-    w1 = _count_weighted(engine, [(_on_stmt(first, s, d + c), w) for s, w in sp.stmts], nest.context, options)
+    w1 = _count_weighted(engine, [(_on_stmt(first, s, d + c), w) for s, w in sp.stmts], nest.context, options, budget)
     # Cross products of the pieces: (domain, poly, when) with the trip count of an entry.
     prods: list[tuple[isl.Set, Any, str]] = [(nest.context, engine.QPoly.const(1), "true")]
     for ext in extents:
@@ -302,10 +304,10 @@ def _pmeet(a: isl.Set, b: isl.Set) -> isl.Set:
 
 
 def thread_formula(nest: Nest, sp: Space, options: Options, threads: int, chunk: int | None,
-                   tname: str) -> Count:
+                   tname: str, budget: Budget | None = None) -> Count:
     """Each thread's work under a static schedule as a formula in the parameters and the thread id."""
     try:
-        const = _const_thread_formula(engine, nest, sp, options, threads, chunk, tname)
+        const = _const_thread_formula(engine, nest, sp, options, threads, chunk, tname, budget)
     except Exception as exc:  # engine limit: the values at the sizes still come from the profiles
         return Count(note=f"formula not available: {exc}")
     if const is not None:
@@ -326,9 +328,9 @@ def thread_formula(nest: Nest, sp: Space, options: Options, threads: int, chunk:
         dom_e, ev = _params_var(k.domain(), ename)
         pre = k.align_params(dom_e.get_space().params()).lt_set(ev.intersect_domain(dom_e))
         fpw = _count_weighted(engine, [(_on_stmt(pre, s, prefix), w) for s, w in sp.stmts],
-                              nest.context, options)
+                              nest.context, options, budget)
         loops_only = sp.domain.project_out(SET, 0, d) if d else sp.domain
-        npw = engine.count(loops_only, nest.context, _limits(engine, options))
+        npw = engine.count(loops_only, nest.context, _limits(engine, options, budget))
     except Exception as exc:  # engine limit: the values at the sizes still come from the profiles
         return Count(note=f"formula not available: {exc}")
     names = tuple(p for p in fpw.params if p != ename) + (tname,)
@@ -391,14 +393,15 @@ def thread_formula(nest: Nest, sp: Space, options: Options, threads: int, chunk:
                     pieces.append(engine.Piece(dom, poly, when))
             pw = engine.Piecewise(pieces, names, nest.context)
         else:
-            pw = _chunked_formula(engine, nest, n0, npw, valid, at, tname, ctx_t, threads, chunk, options)
+            pw = _chunked_formula(engine, nest, n0, npw, valid, at, tname, ctx_t, threads, chunk, options, budget)
     except Exception as exc:  # engine limit or an unexpected shape: the values still hold
         return Count(note=f"formula not available: {exc}")
     return Count(formula=pw, note=f"work of thread {tname} (0 <= {tname} < {threads}) with {threads} threads")
 
 
 def _chunked_formula(engine: Any, nest: Nest, n0: isl.PwAff, npw: Any, valid: isl.Set, at: Any,
-                     tname: str, ctx_t: isl.Set, threads: int, chunk: int, options: Options) -> Any:
+                     tname: str, ctx_t: isl.Set, threads: int, chunk: int, options: Options,
+                     budget: Budget | None = None) -> Any:
     """Sum over the thread's chunks m (chunk m*P + t): F(end) - F(start), the last one cut at n."""
     mname, fname = fresh_name(nest, ("m_", "m__")), fresh_name(nest, ("f_", "f__"))
     base = isl.Set.from_params(valid.align_params(ctx_t.get_space()).intersect(ctx_t)).insert_dims(SET, 0, 2)
@@ -424,7 +427,7 @@ def _chunked_formula(engine: Any, nest: Nest, n0: isl.PwAff, npw: Any, valid: is
     for npiece in npw.pieces:
         weight = at(s_poly + chunk) * (1 - f) + at(npiece.poly) * f - at(s_poly)
         part = chunks.intersect_params(npiece.domain.align_params(chunks.get_space()))
-        pw = engine.sum_over(part, weight, ctx_t, _limits(engine, options))
+        pw = engine.sum_over(part, weight, ctx_t, _limits(engine, options, budget))
         total = pw if total is None else total + pw
     return total
 

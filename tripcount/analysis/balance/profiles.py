@@ -24,7 +24,7 @@ from tripcount.analysis.balance.space import (
     counter,
     static_slice,
 )
-from tripcount.engine.islconv import val_int
+from tripcount.budget import Budget, count_points
 
 POINT_CAP = 20_000  # iterations weighed one by one per loop (about 17 us each with isl)
 ENTRY_CAP = 4_096  # entries of an inner parallel loop enumerated one by one
@@ -48,23 +48,24 @@ class Profiles:
 WorkFn = Callable[[tuple[int, ...]], int | Fraction]
 
 
-def _work_at(sp: Space, point: tuple[int, ...]) -> int | Fraction:
-    """Work of one iteration (outer and collapsed variables fixed) by enumeration."""
+def _work_at(sp: Space, point: tuple[int, ...], budget: Budget | None = None) -> int | Fraction:
+    """Work of one iteration (outer and collapsed variables fixed) by enumeration within `budget`."""
     total: int | Fraction = 0
     for s, w in sp.stmts:
-        total += w * val_int(_fix(s, point).count_val())
+        total += w * count_points(_fix(s, point), budget)
     return total
 
 
-def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None) -> tuple[Profiles | None, str]:
+def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None,
+             budget: Budget | None = None) -> tuple[Profiles | None, str]:
     """Work profiles of every entry at fixed sizes (`sp` parameter-free).
 
     Entries that cannot differ (the loop space and the statements do not
     depend on the outer variables) are weighed once. `work` gives the work of
-    one iteration (default: enumeration). Returns (None, reason) when the
+    one iteration (default: enumeration; every enumeration within `budget`). Returns (None, reason) when the
     space is too large to weigh.
     """
-    weigh = work or (lambda p: _work_at(sp, p))
+    weigh = work or (lambda p: _work_at(sp, p, budget))
     d, c = sp.depth, sp.width
     dom = sp.domain
     const = not any(_depends(s, dom, d, c) for s, _ in sp.stmts)
@@ -73,7 +74,7 @@ def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None) -> tup
         n_entries = 1
     else:
         outer = dom.project_out(SET, d, c)
-        n_entries = val_int(outer.count_val())
+        n_entries = count_points(outer, budget)
         same = not _depends(dom, dom, 0, d) and not any(_depends(s, dom, 0, d) for s, _ in sp.stmts)
         if n_entries == 0:
             entries = []
@@ -83,21 +84,21 @@ def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None) -> tup
             return None, f"{n_entries:,} entries with different work are too many to weigh one by one"
         else:
             entries = [(1, o) for o in sorted(_points(outer))]
-    budget = cap
+    left = cap  # iterations still to weigh one by one
     out: list[tuple[int, sch.Profile]] = []
     blocked = False
     kn = None
     for times, o in entries:
         v = _fix(dom, o)
-        n = val_int(v.count_val())
+        n = count_points(v, budget)
         if n == 0:
             continue
         if const:
             pt = _sample(v)
             out.append((times, sch.ConstProfile(n, weigh(pt) if pt else 0)))
             continue
-        if n <= budget:
-            budget -= n
+        if n <= left:
+            left -= n
             pts = _points(v)
             signs = [1 if st > 0 else -1 for st in sp.steps]
             pts.sort(key=lambda p: tuple(x * sg for x, sg in zip(p[d:], signs, strict=True)))
@@ -107,12 +108,12 @@ def profiles(sp: Space, cap: int = POINT_CAP, work: WorkFn | None = None) -> tup
             kn = counter(sp)
             if kn is None:
                 return None, f"{n:,} iterations per entry are too many to weigh one by one"
-        out.append((times, _block_profile(sp, kn[0], o, n)))
+        out.append((times, _block_profile(sp, kn[0], o, n, budget)))
         blocked = True
     return Profiles(out, n_entries, blocked, const), ""
 
 
-def _block_profile(sp: Space, k: isl.PwAff, o: tuple[int, ...], n: int) -> sch.BlockProfile:
+def _block_profile(sp: Space, k: isl.PwAff, o: tuple[int, ...], n: int, budget: Budget | None) -> sch.BlockProfile:
     size = -(-n // BLOCKS)
     work: list[int | Fraction] = []
     dom = k.domain()
@@ -122,13 +123,14 @@ def _block_profile(sp: Space, k: isl.PwAff, o: tuple[int, ...], n: int) -> sch.B
         sl = _fix(k.ge_set(lo).intersect(k.lt_set(hi)), o)
         total: int | Fraction = 0
         for s, w in sp.stmts:
-            total += w * val_int(_on_stmt(sl, s, sp.depth + sp.width).count_val())
+            total += w * count_points(_on_stmt(sl, s, sp.depth + sp.width), budget)
         work.append(total)
     return sch.BlockProfile(n, size, work)
 
 
-def static_per_thread_exact(sp: Space, threads: int, chunk: int | None) -> list[int | Fraction] | None:
-    """Each thread's work under a static schedule by counting its slice (fixed sizes)."""
+def static_per_thread_exact(sp: Space, threads: int, chunk: int | None,
+                            budget: Budget | None = None) -> list[int | Fraction] | None:
+    """Each thread's work under a static schedule by counting its slice (fixed sizes, within `budget`)."""
     kn = counter(sp)
     if kn is None:
         return None
@@ -144,7 +146,7 @@ def static_per_thread_exact(sp: Space, threads: int, chunk: int | None) -> list[
             sl = sl.project_out(PARAM, 0, sl.dim(PARAM))
         total: int | Fraction = 0
         for s, w in sp.stmts:
-            total += w * val_int(_on_stmt(sl, s, prefix).count_val())
+            total += w * count_points(_on_stmt(sl, s, prefix), budget)
         out.append(total)
     return out
 

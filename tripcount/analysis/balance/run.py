@@ -39,6 +39,7 @@ from tripcount.analysis.balance.space import (
     targets,
 )
 from tripcount.analysis.results import Count, NestResult
+from tripcount.budget import Budget
 from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics.balance import (
     BalanceNotModelled,
@@ -120,8 +121,8 @@ def _space(nest: Nest, loop: Loop, collapse: int, weights: Mapping[str, int | Fr
 
 
 
-def analyze(result: NestResult, options: Options) -> None:
-    """Fill in the "parallel" extra of every parallel loop of the nest."""
+def analyze(result: NestResult, options: Options, budget: Budget | None = None) -> None:
+    """Fill in the "parallel" extra of every parallel loop of the nest (within `budget`; None: no bound)."""
     nest = result.nest
     loops = {lr.loop.index: lr for lr in result.loops}
     found = targets(nest, options)
@@ -142,7 +143,7 @@ def analyze(result: NestResult, options: Options) -> None:
             cur = nest.loops[cur.children[0]]
             covered.add(cur.index)
         try:
-            bal = analyze_loop(result, loop, omp, origin, options)
+            bal = analyze_loop(result, loop, omp, origin, options, budget)
         except Exception as exc:  # one loop must not take the other loops' balance down
             result.diagnostics.append(InternalError(loop.span, what=f"balance of loop '{loop.var}': "
                                                     f"{type(exc).__name__}: {exc}"))
@@ -152,7 +153,7 @@ def analyze(result: NestResult, options: Options) -> None:
 
 
 def analyze_loop(result: NestResult, loop: Loop, omp: ir.OmpClauses, origin: str,
-                 options: Options) -> ParallelBalance | None:
+                 options: Options, budget: Budget | None = None) -> ParallelBalance | None:
     """The balance of one parallel loop (diagnostics go to the nest result)."""
     nest = result.nest
     diags = result.diagnostics
@@ -196,14 +197,14 @@ def analyze_loop(result: NestResult, loop: Loop, omp: ir.OmpClauses, origin: str
         diags.append(BalanceNotModelled(loop.span, var=loop.var, reason=why))
         return None
     var_names = [a.var for a in reversed(_ancestors(nest, loop))] + _collapsed_vars(nest, loop, collapse)
-    bal.work_per_iteration = work_formula(nest, sp, options, " and ".join(var_names[loop.depth:]))
+    bal.work_per_iteration = work_formula(nest, sp, options, " and ".join(var_names[loop.depth:]), budget)
     if schedule == "static":
         if (chunk_expr is not None and const_value(chunk_expr, {}) is None) or (
                 threads_from == "num_threads" and const_value(omp.num_threads, {}) is None):
             bal.per_thread_formula = Count(note="formula not available: the chunk size or the number "
                                                 "of threads depends on the sizes")
         else:
-            bal.per_thread_formula = thread_formula(nest, sp, options, threads, chunk, bal.thread_param)
+            bal.per_thread_formula = thread_formula(nest, sp, options, threads, chunk, bal.thread_param, budget)
     bal.estimate = schedule != "static"
 
     used = sorted({n for s in sp.domains for n in _param_names(s)} | {n for s, _ in sp.stmts for n in _param_names(s)})
@@ -216,11 +217,11 @@ def analyze_loop(result: NestResult, loop: Loop, omp: ir.OmpClauses, origin: str
     weigh, check_note = _formula_work(bal.work_per_iteration, fixed, at, var_names)
     if check_note:
         bal.notes.append(check_note)
-    prof, why = profiles(fixed, work=weigh)
+    prof, why = profiles(fixed, work=weigh, budget=budget)
     current = (schedule, chunk)
     if prof is None:
         # Too large to weigh iteration by iteration: static shares are still exact by counting.
-        exact = static_per_thread_exact(fixed, threads, chunk) if schedule == "static" else None
+        exact = static_per_thread_exact(fixed, threads, chunk, budget) if schedule == "static" else None
         if exact is None:
             diags.append(BalancePartial(loop.span, var=loop.var, what=f"no per-thread values at {bal.at}: {why}"))
             bal.recommendation = f"no per-thread values at {bal.at}: {why}"
@@ -246,7 +247,7 @@ def analyze_loop(result: NestResult, loop: Loop, omp: ir.OmpClauses, origin: str
         bal.notes.append(f"iterations weighed in blocks of {BLOCKS} per entry for the schedule comparison")
         bal.estimate = True
         if schedule == "static":
-            exact = static_per_thread_exact(fixed, threads, chunk)
+            exact = static_per_thread_exact(fixed, threads, chunk, budget)
             if exact is not None:
                 bal.per_thread = exact
                 if len(prof.entries) == 1:  # one entry, or identical ones: the totals give the imbalance

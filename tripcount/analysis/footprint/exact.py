@@ -35,9 +35,9 @@ import islpy as isl
 
 from tripcount.affine import mangle
 from tripcount.analysis.footprint.isets import points
+from tripcount.budget import Budget, count_points
 from tripcount.engine.islconv import val_int
 from tripcount.formula import FormulaError, parse_expr
-from tripcount.guard import count_points
 from tripcount.model import Access
 
 POINT_CAP = 1024  # outer values counted one by one in a region whose shape varies
@@ -207,7 +207,7 @@ def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
     value when it has few; otherwise the maximum is not found and a bound is given instead.
     """
     if not fixed:
-        return Max(sum(p.weight * count_points(p.counted.range()) for p in parts))
+        return Max(sum(p.weight * count_points(p.counted.range(), _limit(budget)) for p in parts))
     if outer.is_empty():
         return Max(0)
     regions = [outer]
@@ -241,13 +241,19 @@ def maximum(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str],
     return best or Max(0)
 
 
-def _value_at(parts: Sequence[Part], pt: Mapping[str, int], fixed: Sequence[str]) -> int:
+def _limit(budget: ExactBudget | None) -> Budget | None:
+    """The nest's budget behind an exact-values budget (bounds every enumeration)."""
+    return budget.limit if budget is not None else None
+
+
+def _value_at(parts: Sequence[Part], pt: Mapping[str, int], fixed: Sequence[str],
+              limit: Budget | None = None) -> int:
     total = 0
     for p in parts:
         o = isl.Set.universe(p.counted.get_space().domain())
         for k, nm in enumerate(fixed):
             o = o.fix_val(_dt.set, k, _val(o.get_ctx(), pt[nm]))
-        total += p.weight * count_points(p.counted.intersect_domain(o).range())
+        total += p.weight * count_points(p.counted.intersect_domain(o).range(), limit)
     return total
 
 
@@ -273,7 +279,7 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
         for pt in pts:
             if budget is not None and budget.spent():
                 raise _TooHard
-            v = _value_at(parts, pt, fixed)
+            v = _value_at(parts, pt, fixed, _limit(budget))
             if best.at is None or v > (best.value or 0):
                 best = Max(v, at=dict(pt))
         return best
@@ -286,13 +292,13 @@ def _region_max(parts: Sequence[Part], normal: Sequence[isl.Map], r: isl.Set, fi
             continue
         offsets = rm if offsets is None else offsets.flat_range_product(rm)
     if offsets is None:
-        return Max(_value_at(parts, o_star, fixed), at=o_star)
+        return Max(_value_at(parts, o_star, fixed, _limit(budget)), at=o_star)
     best = Max(0)
     for m in _classes(offsets, 0, [MAX_CLASSES]):
         pt = _first(m.domain(), fixed)
         if pt is None:
             continue
-        v = _value_at(parts, pt, fixed)
+        v = _value_at(parts, pt, fixed, _limit(budget))
         if best.at is None or v > (best.value or 0):
             best = Max(v, at=dict(pt))
     return best
@@ -451,9 +457,9 @@ def _classes(m: isl.Map, k: int, left: list[int]) -> list[isl.Map]:
     return out
 
 
-def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
-    """Upper bound: what all values of the outer variables touch together."""
-    total = sum(p.weight * count_points(p.counted.intersect_domain(outer).range()) for p in parts)
+def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str], limit: Budget | None = None) -> Max:
+    """Upper bound: what all values of the outer variables touch together (enumerations within `limit`)."""
+    total = sum(p.weight * count_points(p.counted.intersect_domain(outer).range(), limit) for p in parts)
     return Max(total, side="upper", why=("the maximum over " + ", ".join(fixed) + " could not be found within "
                                          "the limits; upper bound: what all their values touch together"))
 
@@ -463,10 +469,12 @@ def bound(parts: Sequence[Part], outer: isl.Set, fixed: Sequence[str]) -> Max:
 
 
 class ExactBudget:
-    """Time budget of the exact values of one nest (only the time spent computing them counts)."""
+    """Time share of the exact values of one nest (only the time spent computing them counts), within
+    the nest's budget `limit`, which bounds every enumeration."""
 
-    def __init__(self, seconds: float | None = None) -> None:
+    def __init__(self, seconds: float | None = None, limit: Budget | None = None) -> None:
         self.seconds = EXACT_BUDGET_S if seconds is None else seconds
+        self.limit = limit
         self.used = 0.0
         self.started: float | None = None
 
@@ -515,7 +523,7 @@ def _scope_values(images: Mapping[str, isl.Set], elems: Mapping[str, int | None]
             except (_TooHard, isl.Error):
                 pass
         if bounds and fixed:
-            return bound(parts, o, fixed)
+            return bound(parts, o, fixed, budget.limit)
         return Max(None, why="the maximum over " + ", ".join(fixed) + " could not be found within the limits")
 
     el_parts: dict[str, Part] = {}

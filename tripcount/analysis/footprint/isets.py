@@ -12,6 +12,7 @@ from typing import Any
 import islpy as isl
 
 from tripcount import engine
+from tripcount.budget import Budget, count_points
 from tripcount.engine.islconv import exceeds, val_int
 from tripcount.engine.piecewise import Piece, Piecewise
 from tripcount.model import Access, Statement
@@ -30,12 +31,13 @@ def fix_params(s: isl.Set, values: Mapping[str, int]) -> isl.Set | None:
     return s
 
 
-def enum_count(s: isl.Set, values: Mapping[str, int]) -> int | None:
-    """Exact number of points of `s` at the given parameter values (None if one is missing)."""
+def enum_count(s: isl.Set, values: Mapping[str, int], budget: Budget | None = None) -> int | None:
+    """Exact number of points of `s` at the given parameter values (None if one is missing),
+    enumerated within `budget`."""
     f = fix_params(s, values)
     if f is None:
         return None
-    return val_int(f.count_val())
+    return count_points(f, budget)
 
 
 def points(s: isl.Set, names: Sequence[str], cap: int) -> list[dict[str, int]] | None:

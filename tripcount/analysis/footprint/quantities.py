@@ -1,14 +1,13 @@
 # Footprint quantities: a count in one scope (a weighted sum of set sizes),
 # with the engine's formula when it gives one within the footprint's time
-# budget, evaluation at given sizes, and the exact maximum over the values of
+# share of the nest's budget, evaluation at given sizes, and the exact maximum over the values of
 # fixed outer loop variables.
 
 from __future__ import annotations
 
 import math
-import time
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from fractions import Fraction
 from typing import Any
 
@@ -26,6 +25,7 @@ from tripcount.analysis.footprint.isets import (
     points,
 )
 from tripcount.analysis.footprint.results import FCount
+from tripcount.budget import Budget
 from tripcount.model import Nest
 from tripcount.options import Options
 
@@ -36,30 +36,26 @@ ELEMENTS_TIME_S = 1.0  # per element-count formula
 LINES_TIME_S = 0.4  # per line-count formula (floors make these the hard ones)
 
 
-class _Budget:
-    """Wall-clock budget of the footprint formulas of one nest."""
-
-    def __init__(self, seconds: float) -> None:
-        self.seconds = seconds
-        self.deadline = time.monotonic() + seconds
-
-    def left(self) -> float:
-        return self.deadline - time.monotonic()
+def formula_budget(nest_budget: Budget | None, options: Options) -> Budget:
+    """The footprint formulas' share of the nest's budget: BUDGET_S at most (a budget of
+    its own when the analysis runs outside the driver)."""
+    seconds = min(BUDGET_S, options.time_limit)
+    return nest_budget.sub(seconds) if nest_budget is not None else Budget.start(seconds)
 
 
-def _formula(s: isl.Set, context: isl.Set | None, options: Options, budget: _Budget,
+def _formula(s: isl.Set, context: isl.Set | None, options: Options, budget: Budget,
              cap: float) -> tuple[Any, str | None]:
     """Engine count of `s` (formula, None) or (None, reason), within `cap` seconds and the budget."""
-    left = budget.left()
-    spent = f"the footprint analysis's time budget ({budget.seconds:g} s per nest) is used up"
+    left = budget.remaining()
+    spent = f"the footprint analysis's time budget ({budget.time_limit:g} s per nest) is used up"
     if left <= 0:
         return None, spent
     allowed = min(options.time_limit, left, cap)
-    limits = engine.Limits(time_s=allowed, max_pieces=options.max_pieces)
+    limits = engine.Limits(time_s=allowed, max_pieces=options.max_pieces, budget=budget)
     try:
         return neutral_count(s, context, limits), None
     except engine.EngineLimit as exc:
-        if budget.left() <= 0:
+        if budget.remaining() <= 0:
             return None, spent
         if allowed < options.time_limit and "time" in str(exc):
             return None, f"no formula within the footprint analysis's time of {allowed:.2g} s per formula"
@@ -85,6 +81,7 @@ class _Quantity:
     sets: list[tuple[isl.Set, int]]
     formula: Any
     reason: str | None = None
+    budget: Budget | None = field(default=None, compare=False)  # bounds the enumerations of `at`
 
     def at(self, values: Mapping[str, int]) -> int | Fraction | None:
         """Exact value at a point of the parameters (formula, else enumeration)."""
@@ -92,7 +89,7 @@ class _Quantity:
             return _safe_eval(self.formula, values)
         total: int | Fraction = 0
         for s, w in self.sets:
-            v = enum_count(s, values)
+            v = enum_count(s, values, self.budget)
             if v is None:
                 return None
             total += w * v
@@ -101,7 +98,7 @@ class _Quantity:
     def scaled(self, w: int) -> _Quantity:
         """w times this quantity (bytes from elements)."""
         f = self.formula.scale(w) if self.formula is not None else None
-        return _Quantity([(s, w * k) for s, k in self.sets], f, self.reason)
+        return _Quantity([(s, w * k) for s, k in self.sets], f, self.reason, self.budget)
 
 
 def _sum(qs: list[_Quantity], zero: Any) -> _Quantity:
@@ -110,11 +107,12 @@ def _sum(qs: list[_Quantity], zero: Any) -> _Quantity:
         return qs[0]
     sets = [x for q in qs for x in q.sets]
     reasons = [q.reason for q in qs if q.reason]
+    budget = next((q.budget for q in qs if q.budget is not None), None)
     if any(q.formula is None for q in qs):
-        return _Quantity(sets, None, reasons[0] if reasons else "formula not available")
+        return _Quantity(sets, None, reasons[0] if reasons else "formula not available", budget)
     if not qs:
         return _Quantity([], zero, None if zero is not None else "counting engine not available")
-    return _Quantity(sets, neutral_add_all([q.formula for q in qs]))
+    return _Quantity(sets, neutral_add_all([q.formula for q in qs]), None, budget)
 
 
 

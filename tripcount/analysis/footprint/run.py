@@ -1,6 +1,7 @@
 # Footprint: the analysis of one nest -- every loop level's working set and
-# per-iteration footprint, the nest's compulsory footprint, cache fit, flops
-# and arithmetic intensity, attached to the nest result as extras.
+# per-iteration footprint, the nest's compulsory footprint, cache fit and
+# arithmetic intensity (from the flops analysis' totals), attached to the nest
+# result as extras.
 
 from __future__ import annotations
 
@@ -17,18 +18,22 @@ from tripcount.analysis.footprint.results import (
 )
 from tripcount.analysis.footprint.scopes import Analyzer
 from tripcount.analysis.results import LoopResult, NestResult
+from tripcount.budget import Budget
 from tripcount.diagnostics import Phrase
 from tripcount.diagnostics.memory import ElementSizeUnknown, FootprintLimit, FootprintRefused
 from tripcount.model import Loop
 from tripcount.options import Options
 
 
-def analyze(result: NestResult, options: Options) -> None:
-    """Footprints of every loop level and of the nest, cache fit, flops and intensity of one nest."""
+def analyze(result: NestResult, options: Options, budget: Budget | None = None) -> None:
+    """Footprints of every loop level and of the nest, cache fit and intensity of one nest,
+    within `budget` (None: no bound). The flops come from the flops analysis (run here
+    when the nest has none yet)."""
     nest = result.nest
-    scalar_types = getattr(nest, "scalar_types", None)
-    total_flops = flops_mod.analyze(result, options, scalar_types=scalar_types)
-    an = Analyzer(result, options)
+    total_flops = result.extras.get("flops")
+    if total_flops is None:
+        total_flops = flops_mod.analyze(result, options)
+    an = Analyzer(result, options, budget)
     diags = result.diagnostics
     unknown = sorted(a.name for a in an.arrays.values() if not a.elem)
     if unknown:

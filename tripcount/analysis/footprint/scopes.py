@@ -34,21 +34,20 @@ from tripcount.analysis.footprint.isets import (
     simplify,
 )
 from tripcount.analysis.footprint.quantities import (
-    BUDGET_S,
     ELEMENTS_TIME_S,
     LINES_TIME_S,
-    _Budget,
     _formula,
     _Quantity,
     _scaled_count,
     _sum,
     _zero,
+    formula_budget,
     max_over,
 )
 from tripcount.analysis.footprint.results import ArrayFootprint, FCount, Footprint
 from tripcount.analysis.footprint.worst import worst_case
 from tripcount.analysis.results import NestResult
-from tripcount.engine.islconv import val_int
+from tripcount.budget import Budget, count_points
 from tripcount.model import Access, Loop, Nest, Statement
 from tripcount.options import Options
 
@@ -70,13 +69,14 @@ _ArrayQ = dict[str, tuple[_Quantity, "_Quantity | None", str]]  # array -> (elem
 class Analyzer:
     """Footprints of one nest: scopes, worst cases, cache fit."""
 
-    def __init__(self, result: NestResult, options: Options) -> None:
+    def __init__(self, result: NestResult, options: Options, budget: Budget | None = None) -> None:
         self.result = result
+        self.limit = budget  # the nest's budget: bounds every enumeration
         self.nest: Nest = result.nest
         self.options = options
         self.caches = hierarchy(options)
         self.line = self.caches.line_size
-        self.budget = _Budget(min(BUDGET_S, options.time_limit))
+        self.budget = formula_budget(budget, options)
         full = options.sizes(self.nest.params)  # `--at '*=V'` sizes every parameter
         self.at = full if full is not None else {k: v for k, v in options.at.items() if k in self.nest.params}
         self.has_at = full is not None
@@ -87,8 +87,8 @@ class Analyzer:
         self._maxima: dict[tuple, tuple[_Quantity, Any]] = {}
         self._zero = _zero(self.nest)
         self.probes = self._probes()
-        self.exact_budget = ExactBudget()
-        self.check_budget = ExactBudget(CHECK_BUDGET_S)
+        self.exact_budget = ExactBudget(limit=budget)
+        self.check_budget = ExactBudget(CHECK_BUDGET_S, limit=budget)
 
     # --- setup
     def _mixed_ranks(self) -> dict[str, tuple[Access, Access]]:
@@ -200,7 +200,7 @@ class Analyzer:
             img = simplify(images[name])
             info = self.arrays[name]
             f, why = self._formula(img, context, ELEMENTS_TIME_S)
-            elems = _Quantity([(img, 1)], f, why)
+            elems = _Quantity([(img, 1)], f, why, self.limit)
             lines = None
             layout = "rows aligned"
             if info.elem:
@@ -210,7 +210,7 @@ class Analyzer:
                     g, why2 = self._formula(lset, context, LINES_TIME_S)
                 else:
                     g, why2 = None, "not computed for one iteration"
-                lines = _Quantity([(lset, 1)], g, why2)
+                lines = _Quantity([(lset, 1)], g, why2, self.limit)
             out[name] = (elems, lines, layout)
         return out
 
@@ -445,7 +445,7 @@ class Analyzer:
             d = _outer_part(piece.domain, fixed, self.at)
             if d is None:
                 return None
-            n = val_int(d.intersect(o).count_val())
+            n = count_points(d.intersect(o), self.limit)
             holds = worst_at is not None and piece.contains({**self.at, **worst_at})
             if n > best_n or (n == best_n and holds):
                 best, best_n = k, n
