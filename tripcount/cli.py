@@ -416,9 +416,11 @@ def _main(argv: Sequence[str] | None, stdin: TextIO | None,
         if args.command == "analyze":
             return run_analyze(args, stdin, stdout, stderr)
         if args.command == "check":
-            from tripcount.gate.command import run_check
+            from tripcount.gate.command import CheckRequest, run_check
 
-            return run_check(args, stdout, stderr)
+            return run_check(CheckRequest(paths=tuple(args.paths), given=CommandLine.of(vars(args)),
+                                          baseline=args.baseline, format=args.format, output=args.output,
+                                          use_cache=not args.no_cache), stdout, stderr)
         if args.command == "schema":
             from tripcount.report.schema import schema_text
 

@@ -17,7 +17,6 @@
 
 from __future__ import annotations
 
-import argparse
 import json
 import os
 from dataclasses import dataclass, field
@@ -86,12 +85,24 @@ def check_file(path: str, given: CommandLine, git: Git, use_cache: bool, baselin
     return FileCheck(path, result, findings, tool_errors, dict(options.at))
 
 
-def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
+@dataclass(frozen=True)
+class CheckRequest:
+    """What `tripcount check` was asked to do (built by the command line)."""
+
+    paths: tuple[str, ...] = ()  # files or directories; none: the sources staged in git
+    given: CommandLine = CommandLine()  # the options given on the command line
+    baseline: str | None = None  # --baseline REV
+    format: str = "text"
+    output: str | None = None  # -o FILE
+    use_cache: bool = True  # not --no-cache
+
+
+def run_check(request: CheckRequest, stdout: TextIO, stderr: TextIO) -> int:
     """`tripcount check [FILES...]`; returns the exit status."""
-    use_cache = not getattr(args, "no_cache", False)
-    given = CommandLine.of(vars(args))
+    use_cache = request.use_cache
+    given = request.given
     git = Git()
-    paths = list(getattr(args, "paths", []) or [])
+    paths = list(request.paths)
     staged = not paths
     if staged:
         paths = staged_sources(git)
@@ -103,7 +114,7 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
         stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
         return EXIT_USAGE
     files = collect_paths(paths)
-    refused = refusal(getattr(args, "output", None), paths)
+    refused = refusal(request.output, paths)
     if refused:
         stderr.write(f"tripcount: error: {refused}\n")
         return EXIT_USAGE
@@ -115,7 +126,7 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
     for k, path in enumerate(files):
         progress.step(k, path)
         try:
-            checks.append(check_file(path, given, git, use_cache, getattr(args, "baseline", None), staged))
+            checks.append(check_file(path, given, git, use_cache, request.baseline, staged))
         except OSError as exc:
             progress.clear()
             stderr.write(f"tripcount: error: cannot read {path}: {exc.strerror or exc}\n")
@@ -131,10 +142,10 @@ def run_check(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
     if any(c.tool_errors for c in checks):
         status = EXIT_USAGE
     out = stdout
-    if getattr(args, "output", None):
-        out = open(args.output, "w", encoding="utf-8")
+    if request.output:
+        out = open(request.output, "w", encoding="utf-8")
     try:
-        write_results(checks, getattr(args, "format", "text"), out)
+        write_results(checks, request.format, out)
     finally:
         if out is not stdout:
             out.close()
