@@ -8,7 +8,6 @@
 
 from __future__ import annotations
 
-import time
 from collections.abc import Callable, Mapping
 from fractions import Fraction
 from typing import TYPE_CHECKING
@@ -21,6 +20,7 @@ from tripcount.analysis.footprint.results import (
     WorkingSet,
 )
 from tripcount.analysis.footprint.table import _fmt_at, _sources
+from tripcount.budget import Budget
 from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics.memory import WorkingSetExceedsCache
 
@@ -186,7 +186,7 @@ def _threshold(an: Analyzer, f: Callable[[Mapping[str, int]], int | Fraction | N
     None also when the search runs out of time (evaluation without a formula
     enumerates) or leaves the parameter assumptions.
     """
-    deadline = time.monotonic() + THRESHOLD_TIME_S
+    share = an.limit.sub(THRESHOLD_TIME_S) if an.limit is not None else Budget.start(THRESHOLD_TIME_S)
 
     class _Stop(Exception):
         pass
@@ -196,7 +196,7 @@ def _threshold(an: Analyzer, f: Callable[[Mapping[str, int]], int | Fraction | N
         pt = {**others, param: x}
         if not _in_context(an.nest.context, pt):
             return None
-        if time.monotonic() > deadline:
+        if share.expired():
             raise _Stop
         v = f(pt)
         if v is None:
