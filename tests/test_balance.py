@@ -446,9 +446,9 @@ def test_corpus_kernel_balance_is_fast():
     times = []
     original = balance.analyze
 
-    def timed(result, options):
+    def timed(result, options, budget=None):
         t0 = time.perf_counter()
-        original(result, options)
+        original(result, options, budget)
         times.append(time.perf_counter() - t0)
 
     try:

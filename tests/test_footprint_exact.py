@@ -186,8 +186,8 @@ def test_flattened_blur_has_the_working_sets_of_the_two_dimensional_one():
 def test_values_without_formulas_are_exact_or_bounds(monkeypatch, function):
     """With no time for footprint formulas, the maximum over the outer variables is not taken from a
     formula's extreme values (an unchecked claim): every value shown as exact still equals the trace."""
-    from tripcount.analysis.footprint import scopes
-    monkeypatch.setattr(scopes, "BUDGET_S", 0.0)
+    from tripcount.analysis.footprint import quantities
+    monkeypatch.setattr(quantities, "BUDGET_S", 0.0)
     _analysed.cache_clear()
     try:
         assert _check_against_trace(function, SMALL) >= 0
