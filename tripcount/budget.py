@@ -348,6 +348,14 @@ class _Alarm:
 # Bounded point counting: the one caller of isl's count_val
 
 
+def _val_int(v: isl.Val) -> int:
+    """An integer isl Val read without islpy's to_python(), which leaks the C string it reads
+    (engine.islconv.val_int says more; kept here so the budget needs nothing of the engine)."""
+    if v.n_abs_num_chunks(4) <= 1:
+        return v.get_num_si()
+    return int(v.to_str())
+
+
 def scan_estimate(s: isl.Set | isl.BasicSet) -> int | None:
     """Upper bound on the outer points isl's count scans (None when unknown).
 
@@ -374,7 +382,7 @@ def scan_estimate(s: isl.Set | isl.BasicSet) -> int | None:
                 c = aff.get_constant_val()
                 if not c.is_int():
                     return -1
-                vs.append(int(c.to_python()))
+                vs.append(_val_int(c))
             if not vs:
                 return 0  # empty set
             vals.append(vs)
@@ -396,11 +404,11 @@ def count_points(s: isl.Set | isl.BasicSet, budget: Budget | None) -> int:
     sizes that a formula at the limit falls back to.
     """
     if budget is None:
-        return int(s.count_val().to_python())
+        return _val_int(s.count_val())
     budget.check_hard("enumeration")
     rows = scan_estimate(s)
     if rows is None or (0 <= rows <= INLINE_SCAN_POINTS):
-        return int(s.count_val().to_python())
+        return _val_int(s.count_val())
     if rows > MAX_SCAN_POINTS_PER_SECOND * max(0.0, budget.hard_deadline - time.monotonic()) and _box_is_tight(s):
         budget.root().enumerations_refused += 1
         raise EnumerationLimit(f"enumeration of about {rows:.3g} rows cannot finish within the time left")

@@ -345,7 +345,7 @@ def _cell_sum(pieces: Sequence[tuple[Part, isl.Map]], cell: isl.Set, fixed: Sequ
             continue
         if budget is not None and budget.spent():
             raise _TooHard
-        got = _piece_max(p, b, cell, fixed)
+        got = _piece_max(p, b, cell, fixed, budget)
         if got is None:
             raise _TooHard
         value, where = got
@@ -364,7 +364,8 @@ def _cell_sum(pieces: Sequence[tuple[Part, isl.Map]], cell: isl.Set, fixed: Sequ
                     "the largest part each reference touches"))
 
 
-def _piece_max(p: Part, b: isl.Map, r: isl.Set, fixed: Sequence[str]) -> tuple[int, isl.Set] | None:
+def _piece_max(p: Part, b: isl.Map, r: isl.Set, fixed: Sequence[str],
+               budget: ExactBudget | None = None) -> tuple[int, isl.Set] | None:
     """Largest count of one piece `b` (outer values -> elements) of a part over `r`, and where it is
     reached; None when the piece is not one shape shifted over `r`."""
     lo = b.lexmin_pw_multi_aff()
@@ -383,14 +384,14 @@ def _piece_max(p: Part, b: isl.Map, r: isl.Set, fixed: Sequence[str]) -> tuple[i
     counted = b.apply_range(p.to_counted) if p.to_counted is not None else b
     one = Part(b, counted, 1, None)
     if p.offset_of is None or not n_out:
-        return _value_at([one], o_star, fixed), b.domain()
+        return _value_at([one], o_star, fixed, _limit(budget)), b.domain()
     offsets = isl.Map.from_pw_multi_aff(lo).apply_range(p.offset_of)
     best, where = -1, isl.Set.empty(r.get_space())
     for m in _classes(offsets, 0, [MAX_CLASSES]):
         pt = _first(m.domain(), fixed)
         if pt is None:
             continue
-        v = _value_at([one], pt, fixed)
+        v = _value_at([one], pt, fixed, _limit(budget))
         if v > best:
             best, where = v, m.domain()
         elif v == best:
