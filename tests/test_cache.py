@@ -231,17 +231,17 @@ def test_cached_diagnostics_keep_structured_args_and_move_with_the_code(cache_di
     # TC204 names the 'break' and the loop header: both are arguments, moved with an edit
     # above the nest and rendered again, never found in the message text afterwards
     o = Options()
-    cold = cache.analyze_file_cached("q.c", QUAY, o)
+    cold = cached.analyze_file_cached("q.c", QUAY, o)
     brk = next(d for d in cold["diagnostics"] if d["code"] == "TC204")
     assert brk["args"]["pos"]["line"] == 5 and brk["args"]["loop"] == {
         "loop": "i", "line": 3, "column": 5, "end_line": 3, "end_column": 32}
     assert brk["message"].startswith("'break' at 5:13 can leave loop 'for (i ...)' at 3:5 early")
-    assert cache.analyze_file_cached("q.c", QUAY, o) == cold == cache.analyze_file_uncached("q.c", QUAY, o)
+    assert cached.analyze_file_cached("q.c", QUAY, o) == cold == cached.analyze_file_uncached("q.c", QUAY, o)
     moved = "// Velin quay survey\n\n\n" + QUAY
     st = cache.Store()
-    got = cache.analyze_file_cached("q.c", moved, o, store=st)
+    got = cached.analyze_file_cached("q.c", moved, o, store=st)
     assert st.writes == 1  # the nest came from the cache
-    assert got == cache.analyze_file_uncached("q.c", moved, o)
+    assert got == cached.analyze_file_uncached("q.c", moved, o)
     brk = next(d for d in got["diagnostics"] if d["code"] == "TC204")
     assert (brk["line"], brk["args"]["pos"]["line"], brk["args"]["loop"]["line"]) == (8, 8, 6)
     assert brk["message"].startswith("'break' at 8:13 can leave loop 'for (i ...)' at 6:5 early")

@@ -61,8 +61,8 @@ def _wrapped(monkeypatch, change) -> None:
     """Run `change(result)` on every nest result right after the footprint analysis."""
     right = footprint_pkg.analyze
 
-    def wrong(result, options):
-        right(result, options)
+    def wrong(result, options, budget=None):
+        right(result, options, budget)
         change(result)
 
     monkeypatch.setattr(footprint_pkg, "analyze", wrong)

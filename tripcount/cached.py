@@ -28,7 +28,7 @@ def locate(text: str, path: str, options: Options,
     may read (compdb.source_inputs, passed as `inputs` when already computed),
     so a changed header is a miss.
     """
-    from tripcount.diagnostics import BuildFlagsUnreadable
+    from tripcount.diagnostics.source import BuildFlagsUnreadable
     from tripcount.frontend import parse_text
     from tripcount.ir import Span
 
