@@ -55,10 +55,10 @@ def _unhurried(monkeypatch):
     a loaded machine (parallel test workers) does not turn values into bounds or blanks: these tests
     check the values, the budgets have tests of their own."""
     from tripcount.analysis.footprint import exact as ex
-    from tripcount.analysis.footprint import scopes
+    from tripcount.analysis.footprint import quantities, scopes
     monkeypatch.setattr(ex, "EXACT_BUDGET_S", 60.0)
     monkeypatch.setattr(scopes, "CHECK_BUDGET_S", 20.0)
-    monkeypatch.setattr(scopes, "BUDGET_S", 60.0)
+    monkeypatch.setattr(quantities, "BUDGET_S", 60.0)
 
 
 @functools.lru_cache(maxsize=4)
