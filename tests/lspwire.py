@@ -34,8 +34,8 @@ def _is_response(m: dict[str, Any]) -> bool:
 
 class WireClient:
     """The server process (its stderr to the file `log`, else discarded), a reader
-    thread that splits its output into messages, replies kept by id, and an
-    optional kill switch after `kill_after` seconds."""
+    thread that splits its output into messages (all of them kept in `received`),
+    replies kept by id, and an optional kill switch after `kill_after` seconds."""
 
     def __init__(self, env: Mapping[str, str], cwd: str | None = None, log: str | None = None,
                  kill_after: float | None = None) -> None:
@@ -44,6 +44,7 @@ class WireClient:
                                      stderr=self.log if self.log is not None else subprocess.DEVNULL,
                                      cwd=cwd, env=dict(env))
         self.inbox: queue.Queue[dict[str, Any]] = queue.Queue()
+        self.received: list[dict[str, Any]] = []  # every message, in order (the inbox is consumed)
         self.replies: dict[Any, dict[str, Any]] = {}
         self.next_id = 0
         threading.Thread(target=self._read, daemon=True).start()
@@ -72,7 +73,9 @@ class WireClient:
                 m = json.loads(body)
             except ValueError:
                 m = {"unparsable": body[:200].decode(errors="replace")}
-            self.inbox.put(m if isinstance(m, dict) else {"not_an_object": m})
+            m = m if isinstance(m, dict) else {"not_an_object": m}
+            self.received.append(m)
+            self.inbox.put(m)
 
     def send(self, data: bytes) -> None:
         """Raw bytes to the server."""

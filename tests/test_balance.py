@@ -321,7 +321,6 @@ def test_json_fields_merge_into_parallel_object():
     assert isinstance(par["imbalance"], float) and isinstance(par["efficiency"], float)
     assert par["per_thread_formula"]["pieces"]
     json.dumps(out)
-    pytest.importorskip("jsonschema")
     from tripcount.report.schema import validate_part
 
     validate_part(out, "loop")  # the report schema, schema_version 1

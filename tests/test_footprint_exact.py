@@ -190,7 +190,7 @@ def test_values_without_formulas_are_exact_or_bounds(monkeypatch, function):
     monkeypatch.setattr(quantities, "BUDGET_S", 0.0)
     _analysed.cache_clear()
     try:
-        assert _check_against_trace(function, SMALL) >= 0
+        assert _check_against_trace(function, SMALL) > 0  # some values stay exact without formulas
     finally:
         _analysed.cache_clear()
 

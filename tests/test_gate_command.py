@@ -220,19 +220,7 @@ def test_baseline_before_first_commit_is_skipped(stub, monkeypatch):
 # End to end with the real pipeline
 
 
-def pipeline_ready() -> bool:
-    try:
-        from tripcount.frontend import parse_text  # noqa: F401
-        from tripcount.pipeline import analyze_text  # noqa: F401
-    except Exception:
-        return False
-    return True
 
-
-needs_pipeline = pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
-
-
-@needs_pipeline
 def test_end_to_end_budget(tmp_path, monkeypatch, private_cache):
     for name in ("harbour_cubic.c", "harbour_square.c"):
         shutil.copy(INPUTS / name, tmp_path / name)
@@ -264,7 +252,6 @@ def window_lines(H, W, y, x, dy, line=64):
     return len(touched)
 
 
-@needs_pipeline
 def test_the_window_working_set_is_exact_and_within_budget(tmp_path, private_cache):
     # The innermost loop of a 3x3 window touches a few lines; at H=1001, W=2000
     # the footprint once gave only an upper bound for its worst case (the whole

@@ -13,16 +13,15 @@ import time
 from pathlib import Path
 
 import pytest
+import pytest_lsp
+from lsprotocol import types
 from lspwire import WireClient, message
+from pytest_lsp import ClientServerConfig, LanguageClient, client_capabilities
 
 from tripcount import lsp
 from tripcount.analysis.summary import NestSummary
 
 ROOT = Path(__file__).resolve().parent.parent
-pytest_lsp = pytest.importorskip("pytest_lsp")
-types = pytest.importorskip("lsprotocol.types")
-
-from pytest_lsp import ClientServerConfig, LanguageClient, client_capabilities  # noqa: E402
 
 # --------------------------------------------------------------------------
 # Positions (LSP 3.17: 0-based lines; characters in the negotiated encoding)
@@ -135,17 +134,6 @@ def test_lsp_diagnostics_ranges():
 # End to end with a real client
 
 
-def pipeline_ready() -> bool:
-    try:
-        from tripcount.frontend import parse_text  # noqa: F401
-        from tripcount.pipeline import analyze_text  # noqa: F401
-    except Exception:
-        return False
-    return True
-
-
-needs_pipeline = pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
-
 WORK = Path(tempfile.mkdtemp(prefix="tripcount-lsp-test-"))
 ENV = {**os.environ, "TRIPCOUNT_CACHE_DIR": str(WORK / "cache"),
        "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
@@ -195,7 +183,6 @@ async def _diagnostics_for(client, uri: str, timeout: float = 120) -> list:
             return client.diagnostics[uri]
 
 
-@needs_pipeline
 @pytest.mark.asyncio
 async def test_server_diagnostics_hover_hints(client: LanguageClient):
     uri = await _open(client, "rows.c", HARBOUR)
@@ -238,7 +225,6 @@ async def test_server_diagnostics_hover_hints(client: LanguageClient):
     assert list(diags) == []
 
 
-@needs_pipeline
 @pytest.mark.asyncio
 async def test_server_survives_out_of_order_and_huge_input(client: LanguageClient):
     ghost = (WORK / "never_opened.c").as_uri()
@@ -265,7 +251,6 @@ async def test_server_survives_out_of_order_and_huge_input(client: LanguageClien
     assert h is not None
 
 
-@needs_pipeline
 @pytest.mark.asyncio
 async def test_rapid_changes_are_debounced(client: LanguageClient):
     uri = await _open(client, "typing.c", HARBOUR)
@@ -286,7 +271,6 @@ async def test_rapid_changes_are_debounced(client: LanguageClient):
     assert 1 <= published <= 2
 
 
-@needs_pipeline
 def test_server_survives_malformed_messages(tmp_path):
     """Junk headers, bad JSON, bad parameters, unknown methods, out-of-order notifications."""
     env = {**ENV, "TRIPCOUNT_CACHE_DIR": str(tmp_path / "cache")}
@@ -326,7 +310,6 @@ def test_server_survives_malformed_messages(tmp_path):
             s.proc.wait()
 
 
-@needs_pipeline
 def test_the_editor_reports_unknown_suppression_kinds_like_the_gate(tmp_path, private_cache):
     text = "void f(int n, double *a) {\n  for (int i = 0; i < n; i++)  // tripcount: allow speed\n    a[i] = 0;\n}\n"
     (tmp_path / "f.c").write_text(text)
@@ -361,7 +344,6 @@ def _wire_open(s: WireClient, uri: str, text: str, version: int = 1) -> None:
                     "params": {"textDocument": {"uri": uri, "languageId": "c", "version": version, "text": text}}}))
 
 
-@needs_pipeline
 def test_a_superseded_analysis_is_stopped_and_exit_is_prompt(tmp_path):
     # analyses run in a child process the server can kill: a hard nest under a
     # long limit used to run to its end on a thread, with every other document and

@@ -7,10 +7,9 @@
 # points (13/20/5, 37/4/11 that crosses a 32-wide tile, 70/33, and one with a
 # negative size). Both the engine's formula and its enumeration are checked.
 #
-# The stages are being written in parallel: until they import, the product
-# tests skip with a message. The corpus checks below them (it compiles
-# cleanly; every function runs to completion under the oracle; a handbook
-# count) need only gcc.
+# A product that does not import fails these tests (it never skips them). The
+# corpus checks below them (it compiles cleanly; every function runs to
+# completion under the oracle; a handbook count) need only gcc.
 
 from __future__ import annotations
 
@@ -25,6 +24,10 @@ try:
     from tests import oracle
 except ImportError:  # tests/ is not a package: pytest put tests/ itself on sys.path
     import oracle
+
+from tripcount import engine
+from tripcount.frontend import parse_file
+from tripcount.model import build_nests
 
 CORPUS = Path(__file__).resolve().parent.parent / "corpus"
 FILES = sorted(CORPUS.glob("*.c"))
@@ -48,37 +51,15 @@ def _points(names: list[str]) -> list[dict[str, int]]:
 
 
 # --------------------------------------------------------------------------
-# The pipeline, imported late: its stages land separately.
-
-
-def _stages():
-    try:
-        from tripcount import engine, frontend
-        from tripcount.ir import TranslationUnit
-        from tripcount.model import build_nests
-        engine.count  # noqa: B018 -- the engine package must be more than an empty folder
-        engine.enumerate_count  # noqa: B018
-        parse_file = getattr(frontend, "parse_file", None)
-        parse_text = None if parse_file else frontend.parse_text
-    except (ImportError, AttributeError) as exc:
-        pytest.skip(f"pipeline not available yet ({exc}); gcc reference check waits for it")
-    return engine, parse_file, parse_text, build_nests, TranslationUnit
+# The product's own stages
 
 
 def _pipeline(path: Path):
-    """(translation unit, nests) of one corpus file, through the product's own stages."""
-    engine, parse_file, parse_text, build_nests, TranslationUnit = _stages()
+    """(translation unit, nests, text) of one corpus file, through the product's own stages."""
     text = path.read_text(encoding="utf-8")
-    parsed = parse_file(str(path)) if parse_file else parse_text(text, path=str(path))
-    # the stages return (unit, diagnostics); accept a bare unit too
-    unit = parsed if isinstance(parsed, TranslationUnit) else next(
-        x for x in parsed if isinstance(x, TranslationUnit))
-    try:
-        built = build_nests(unit, path=str(path))
-    except TypeError:
-        built = build_nests(unit)
-    nests = built[0] if isinstance(built, tuple) else built
-    return engine, unit, list(nests), text
+    unit, _ = parse_file(str(path))
+    nests, _ = build_nests(unit, path=str(path))
+    return unit, list(nests), text
 
 
 # --------------------------------------------------------------------------
@@ -126,7 +107,7 @@ def _macros(text: str) -> set[str]:
 @pytest.mark.parametrize("path", FILES, ids=lambda p: f"gcc-reference-{p.name}")
 def test_statement_counts_match_gcc(path: Path):
     """Every statement count (formula and enumeration) equals gcc's execution count."""
-    engine, unit, nests, text = _pipeline(path)
+    unit, nests, text = _pipeline(path)
     functions = {f.name: f for f in unit.functions}
     macros = _macros(text)
     limit_error = getattr(engine, "EngineLimit", ())

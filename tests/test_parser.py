@@ -11,6 +11,7 @@ import time
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from internal import assert_no_internal_errors
 from test_build import ctext, shape
 
 from tripcount import ir
@@ -470,6 +471,7 @@ _PIECES = st.sampled_from([
 def test_reading_never_raises(pieces, snippet):
     text = " ".join(pieces)
     tu, diags = parse_text(text, snippet=snippet)
+    assert_no_internal_errors(diags, text)  # a contained failure of the front end is a failure too
     lines = text.count("\n") + 1
     for f in tu.functions:
         for n in walk(f):
@@ -481,8 +483,9 @@ def test_reading_never_raises(pieces, snippet):
 @settings(max_examples=60, deadline=None)
 @given(st.text(max_size=300))
 def test_arbitrary_text_never_raises(text):
-    parse_text(text)
-    parse_text(text, snippet=True)
+    for snippet in (False, True):
+        _tu, diags = parse_text(text, snippet=snippet)
+        assert_no_internal_errors(diags, text)
 
 
 def test_compiled_grammar_is_kept_in_the_cache_directory(tmp_path, monkeypatch):

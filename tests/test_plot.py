@@ -3,13 +3,10 @@
 
 from __future__ import annotations
 
-import pytest
-
 CODE = "void f(int N, double A[N][N], double *x) { for (int i = 0; i < N; i++) for (int j = 0; j < N; j++) x[i] += A[i][j]; }"
 
 
 def test_plot_is_written(tmp_path, run_cli):
-    pytest.importorskip("matplotlib")
     out = tmp_path / "ws.png"
     status, _, err = run_cli("analyze", "--code", CODE, "--at", "N=64", "--plot", str(out))
     assert status == 0, err
@@ -17,7 +14,6 @@ def test_plot_is_written(tmp_path, run_cli):
 
 
 def test_nothing_to_plot_is_a_usage_error(tmp_path, run_cli):
-    pytest.importorskip("matplotlib")
     out = tmp_path / "ws.png"
     status, _, err = run_cli("analyze", "--code", "for (int i = 0; i < 8; i++) x[i] = 0;", "--plot", str(out))
     assert status == 2 and "nothing to plot" in err

@@ -13,13 +13,13 @@ import sys
 from pathlib import Path
 
 import pytest
+from sarif import loader as sarif_loader
 
 from tripcount.cli import main
 from tripcount.diagnostics import by_code, catalogue
 from tripcount.report.sarif import artifact_location, sarif_from_json
 
 INPUTS = Path(__file__).parent / "inputs" / "check"
-sarif_loader = pytest.importorskip("sarif.loader")
 
 
 def report(path="kernels/tide.c", diags=None):
@@ -88,15 +88,6 @@ def test_sarif_tools_reads_our_log(tmp_path):
     assert records[0]["Location"].endswith("kernels/tide.c")
 
 
-def pipeline_ready() -> bool:
-    try:
-        from tripcount.pipeline import analyze_text  # noqa: F401
-    except Exception:
-        return False
-    return True
-
-
-@pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
 def cubic_project(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     """A project with one cubic nest and a degree budget of 2, as the working directory."""
     src = tmp_path / "src"

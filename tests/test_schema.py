@@ -103,15 +103,6 @@ def test_missing_required_fields():
     assert any("args" in e for e in report_errors(data))
 
 
-def pipeline_ready() -> bool:
-    try:
-        from tripcount.pipeline import analyze_text  # noqa: F401
-    except Exception:
-        return False
-    return True
-
-
-@pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
 @pytest.mark.parametrize("args", [[], ["--at", "N=12"], ["--at", "N=12", "--parallel", "4", "--threads", "3"]])
 def test_reports_of_the_pipeline_validate(args, private_cache):
     out = io.StringIO()
@@ -122,7 +113,6 @@ def test_reports_of_the_pipeline_validate(args, private_cache):
     assert len(data["files"]) >= 2
 
 
-@pytest.mark.skipif(not pipeline_ready(), reason="the analysis pipeline is not importable yet")
 def test_snippet_report_validates():
     out = io.StringIO()
     code = "for (int i = 0; i < n; i += 3) for (int j = i; j < n; j++) s += a[i][j];"

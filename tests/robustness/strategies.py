@@ -27,6 +27,7 @@ from typing import Any
 import islpy as isl
 from hypothesis import HealthCheck, settings
 from hypothesis import strategies as st
+from internal import assert_no_internal_errors, internal_codes_in
 
 from tripcount.formula import piecewise_value
 from tripcount.options import Options
@@ -507,10 +508,9 @@ def check_generated(gen: GenNest, rng: random.Random, n_points: int = 4) -> Nest
     except TooBig:
         at_counts = None
     fr = analyze_text(text, "generated.c", fuzz_options(at))
+    assert_no_internal_errors(fr.all_diagnostics(), text)
     check_locations(fr.all_diagnostics(), text)
     codes = {d.code for d in fr.all_diagnostics()}
-    assert not any(c.startswith("TC9") for c in codes), \
-        f"internal error: {[d.render() for d in fr.all_diagnostics() if d.code.startswith('TC9')]}"
     if "TC310" in codes or "TC311" in codes or "TC301" in codes:
         out.limited += 1
     assert len(fr.nests) == 1, f"expected one nest, got {len(fr.nests)}: {[d.render() for d in fr.all_diagnostics()]}"
@@ -560,23 +560,44 @@ def check_generated(gen: GenNest, rng: random.Random, n_points: int = 4) -> Nest
 
 
 def check_text(text: str, rng: random.Random, path: str = "fuzz.c") -> tuple[Any, int]:
-    """(b)/(c) Analyze any text: no exception, valid locations, formulas equal enumeration.
+    """(b) Analyze any text: no exception, no internal error, valid locations, formulas equal
+    enumeration.
 
     Returns the file result and the number of formula comparisons made."""
     from tripcount.pipeline import analyze_text
 
     at = {p: rng.randint(0, 6) for p in PARAMS}
     fr = analyze_text(text, path, fuzz_options(at))
+    assert_no_internal_errors(fr.all_diagnostics(), text)
     check_locations(fr.all_diagnostics(), text)
     return fr, check_formulas(fr, rng, n_points=2)
 
 
+def check_bytes(data: bytes, path: str) -> tuple[Any, int]:
+    """(c) Write raw bytes to `path` and analyze the file: the invariants of check_text (the
+    locations against the decoded text, without a byte order mark).
+
+    Returns the file result and the number of formula comparisons made."""
+    from tripcount.pipeline import analyze_file, decode_source
+
+    with open(path, "wb") as f:
+        f.write(data)
+    fr = analyze_file(path, fuzz_options({"N": 4, "M": 3, "K": 2}))
+    text, _ = decode_source(data)
+    assert_no_internal_errors(fr.all_diagnostics(), repr(data[:500]))
+    check_locations(fr.all_diagnostics(), text[1:] if text.startswith("\ufeff") else text)
+    return fr, check_formulas(fr, random.Random(data), n_points=2)
+
+
 def run_main(argv: Sequence[str], stdin: str = "") -> tuple[int, str, str]:
-    """`main` in-process; an exception escaping it fails the check."""
+    """`main` in-process; an exception escaping it, or an internal error reported in any
+    output format, fails the check."""
     from tripcount.cli import main
 
     out, err = io.StringIO(), io.StringIO()
     status = main(list(argv), stdin=io.StringIO(stdin), stdout=out, stderr=err)
     assert status in (0, 1, 2), f"exit status {status}"
     assert "Traceback" not in err.getvalue(), err.getvalue()[-2000:]
+    internal = internal_codes_in(out.getvalue() + err.getvalue())
+    assert not internal, f"internal error {internal} in the output of {list(argv)[:3]}:\n{out.getvalue()[-2000:]}"
     return status, out.getvalue(), err.getvalue()
