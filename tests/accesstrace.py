@@ -39,6 +39,7 @@ from oracle import (
     _is_floating,
     _line_starts,
     _statement_range,
+    call_arguments,
     openmp_available,
 )
 
@@ -143,22 +144,15 @@ static void *__tc_at(void *p, long long size, int stmt, int mode, int nv, const 
 
 
 def _driver(function: str, param_types: Sequence[ParamType], arrays: Sequence[str]) -> str:
-    decls, args, n_int = [], [], 0
-    for name, ctype, is_ptr in param_types:
-        if is_ptr:
-            a = arrays.index(name)
-            decls.append(
-                f"    char *__tc_buf{a} = aligned_alloc(64, {BUFFER}ULL);\n"
+    def aligned_buffer(_k: int, name: str) -> tuple[str, str]:
+        a = arrays.index(name)
+        return (f"    char *__tc_buf{a} = aligned_alloc(64, {BUFFER}ULL);\n"
                 f"    if (!__tc_buf{a}) return 3;\n"
                 f"    memset(__tc_buf{a}, 0, {BUFFER}ULL);\n"
-                f"    __tc_base[{a}] = __tc_buf{a} + {GUARD_BYTES}LL;"
-            )
-            args.append(f"(void *)__tc_base[{a}]")
-        elif _is_floating(ctype):
-            args.append("0.0")
-        else:
-            args.append(f"__tc_v[{n_int}]")
-            n_int += 1
+                f"    __tc_base[{a}] = __tc_buf{a} + {GUARD_BYTES}LL;", f"(void *)__tc_base[{a}]")
+
+    decls, call = call_arguments(function, param_types, aligned_buffer)
+    n_int = sum(1 for _n, t, p in param_types if not p and not _is_floating(t))
     return f"""
 #undef main
 #line 1 "tripcount-trace-driver.c"
@@ -169,7 +163,7 @@ int main(void)
     for (int k = 0; k < {n_int}; k++)
         if (scanf("%lld", &__tc_v[k]) != 1)
             return 2;
-    (void){function}({', '.join(args)});
+    {call}
     for (long long e = 0; e < __tc_n; e++) {{
         long long *v = __tc_ev[e];
         int nv = (int)(v[4] >> 1);

@@ -29,7 +29,7 @@ import re
 import shutil
 import subprocess
 import tempfile
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from functools import lru_cache
 
 SpanTuple = tuple[int, int, int, int]  # line, column, end_line, end_column (1-based, end exclusive)
@@ -308,18 +308,19 @@ def _c_path(path: str) -> str:
     return re.sub(r'["\\\n]', "_", path)
 
 
-def _call(function: str, param_types: Sequence[ParamType]) -> tuple[list[str], str]:
-    """Declarations of the argument variables and the call expression."""
+def call_arguments(function: str, param_types: Sequence[ParamType],
+                   pointer: Callable[[int, str], tuple[str, str]]) -> tuple[list[str], str]:
+    """Declarations of the argument variables and the call expression of a driver: integer
+    parameters read into __tc_v[...] in order, floating ones 0.0, and `pointer(k, name)` giving
+    (declaration, argument) of the k-th parameter when it is a pointer or array."""
     decls: list[str] = []
     args: list[str] = []
     n_int = 0
-    for k, (_name, ctype, is_ptr) in enumerate(param_types):
+    for k, (name, ctype, is_ptr) in enumerate(param_types):
         if is_ptr:
-            decls.append(
-                f"    char *__tc_buf{k} = calloc(1, {BUFFER_BYTES}ULL);\n"
-                f"    if (!__tc_buf{k}) {{ fprintf(stderr, \"out of memory\\n\"); return 3; }}"
-            )
-            args.append(f"(void *)(__tc_buf{k} + {GUARD_BYTES}ULL)")
+            decl, arg = pointer(k, name)
+            decls.append(decl)
+            args.append(arg)
         elif _is_floating(ctype):
             args.append("0.0")
         else:
@@ -328,9 +329,16 @@ def _call(function: str, param_types: Sequence[ParamType]) -> tuple[list[str], s
     return decls, f"(void){function}({', '.join(args)});"
 
 
+def _zeroed_buffer(k: int, _name: str) -> tuple[str, str]:
+    """A zeroed buffer per pointer parameter, the argument GUARD_BYTES into it."""
+    return (f"    char *__tc_buf{k} = calloc(1, {BUFFER_BYTES}ULL);\n"
+            f"    if (!__tc_buf{k}) {{ fprintf(stderr, \"out of memory\\n\"); return 3; }}",
+            f"(void *)(__tc_buf{k} + {GUARD_BYTES}ULL)")
+
+
 def _driver(function: str, param_types: Sequence[ParamType], symbols: Sequence[str],
             n_counters: int, per_thread: bool) -> str:
-    decls, call = _call(function, param_types)
+    decls, call = call_arguments(function, param_types, _zeroed_buffer)
     n_int = sum(1 for _n, t, p in param_types if not p and not _is_floating(t))
     n_in = n_int + len(symbols)
     set_syms = "\n".join(
@@ -394,22 +402,23 @@ def _environment(threads: int | None) -> dict[str, str]:
 
 
 def _build(program: str, openmp: bool, workdir: str, timeout: float,
-           flags: Sequence[str] = ()) -> str:
-    """Compile `program` in `workdir`; the path of the executable."""
-    cc = _compiler()
+           flags: Sequence[str] = (), cxx: bool = False) -> str:
+    """Compile `program` (C, or C++17 with `cxx`) in `workdir`; the path of the executable."""
+    cc = "g++" if cxx else _compiler()
     if cc is None:
         raise OracleError("gcc not found")
-    src = os.path.join(workdir, "prog.c")
+    src = os.path.join(workdir, "prog.cpp" if cxx else "prog.c")
     exe = os.path.join(workdir, "prog")
     with open(src, "w", encoding="utf-8") as f:
         f.write(program)
-    cmd = [cc, "-O0", "-std=gnu99", "-w", *(["-fopenmp"] if openmp else []), *flags, src, "-o", exe, "-lm"]
+    std = "-std=gnu++17" if cxx else "-std=gnu99"
+    cmd = [cc, "-O0", std, "-w", *(["-fopenmp"] if openmp else []), *flags, src, "-o", exe, "-lm"]
     try:
         built = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, cwd=workdir)
     except (OSError, subprocess.TimeoutExpired) as exc:
-        raise OracleError(f"gcc failed to run: {exc}") from exc
+        raise OracleError(f"{cc} failed to run: {exc}") from exc
     if built.returncode != 0:
-        raise OracleError("gcc could not build the instrumented program:\n" + built.stderr[-4000:])
+        raise OracleError(f"{cc} could not build the program:\n" + built.stderr[-4000:])
     return exe
 
 
@@ -561,24 +570,26 @@ def gcov_line_counts(c_source: str, function: str, param_types: Sequence[ParamTy
         raise OracleError("gcov not found")
     program = _prelude(0, [], False, "input.c") + c_source + _driver(function, param_types, [], 0, False)
     openmp = openmp_available()
-    out: list[dict[int, int]] = []
     with tempfile.TemporaryDirectory(prefix="tripcount-gcov-") as tmp:
         with open(os.path.join(tmp, "input.c"), "w", encoding="utf-8") as f:
             f.write(c_source)
         flags = ["--coverage"] + (["-fprofile-update=atomic"] if openmp else [])
         exe = _build(program, openmp, tmp, timeout, flags)
-        for pt in points:
-            data = os.path.join(tmp, "prog.gcda")
-            if os.path.exists(data):
-                os.remove(data)
-            _run(exe, _stdin_for(param_types, [], [pt]), timeout)
-            try:
-                rep = subprocess.run(["gcov", "-t", "prog.c"], capture_output=True, text=True,
-                                     timeout=timeout, cwd=tmp)
-            except subprocess.TimeoutExpired as exc:
-                raise OracleError("gcov did not finish") from exc
-            out.append(_parse_gcov(rep.stdout, "input.c"))
-    return out
+        return [_gcov_run(exe, "prog.c", "input.c", _stdin_for(param_types, [], [pt]), timeout) for pt in points]
+
+
+def _gcov_run(exe: str, program: str, source: str, stdin: str, timeout: float) -> dict[int, int]:
+    """Run a --coverage build once (from fresh counters); gcov's counts per line of `source`."""
+    data = os.path.join(os.path.dirname(exe), "prog.gcda")
+    if os.path.exists(data):
+        os.remove(data)
+    _run(exe, stdin, timeout)
+    try:
+        rep = subprocess.run(["gcov", "-t", program], capture_output=True, text=True,
+                             timeout=timeout, cwd=os.path.dirname(exe))
+    except subprocess.TimeoutExpired as exc:
+        raise OracleError("gcov did not finish") from exc
+    return _parse_gcov(rep.stdout, source)
 
 
 def _parse_gcov(report: str, source: str) -> dict[int, int]:
@@ -631,29 +642,9 @@ def gxx_line_counts(cpp_source: str, driver: str, names: Sequence[str],
                "int main() {\n"
                + "".join(f'    long long {n}; if (scanf("%lld", &{n}) != 1) return 2;\n' for n in names)
                + f"    {driver}\n    return 0;\n}}\n")
-    out: list[dict[int, int]] = []
     with tempfile.TemporaryDirectory(prefix="tripcount-gxx-") as tmp:
-        src = os.path.join(tmp, "prog.cpp")
-        with open(src, "w", encoding="utf-8") as f:
-            f.write(program)
         with open(os.path.join(tmp, "input.cpp"), "w", encoding="utf-8") as f:
             f.write(cpp_source)
-        cmd = ["g++", "-O0", "-std=gnu++17", "-w", "--coverage", src, "-o", os.path.join(tmp, "prog")]
-        try:
-            built = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, cwd=tmp)
-        except (OSError, subprocess.TimeoutExpired) as exc:
-            raise OracleError(f"g++ failed to run: {exc}") from exc
-        if built.returncode != 0:
-            raise OracleError("g++ could not build the program:\n" + built.stderr[-4000:])
-        for pt in points:
-            data = os.path.join(tmp, "prog.gcda")
-            if os.path.exists(data):
-                os.remove(data)
-            _run(os.path.join(tmp, "prog"), " ".join(str(pt.get(n, 0)) for n in names) + "\n", timeout)
-            try:
-                rep = subprocess.run(["gcov", "-t", "prog.cpp"], capture_output=True, text=True,
-                                     timeout=timeout, cwd=tmp)
-            except subprocess.TimeoutExpired as exc:
-                raise OracleError("gcov did not finish") from exc
-            out.append(_parse_gcov(rep.stdout, "input.cpp"))
-    return out
+        exe = _build(program, False, tmp, timeout, ["--coverage"], cxx=True)
+        return [_gcov_run(exe, "prog.cpp", "input.cpp", " ".join(str(pt.get(n, 0)) for n in names) + "\n", timeout)
+                for pt in points]
