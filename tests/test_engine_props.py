@@ -6,11 +6,13 @@
 # engine's formula evaluated at random parameter values must equal isl
 # enumeration (islpy Set.count_val with the parameters fixed), and the C text
 # of each piece must hold exactly on its domain (C99 6.5.5 semantics).
-# The default (CI) profile runs about 2,200 examples; the `slow` test many more.
+# The default (CI) profile runs about 760 examples (isl enumeration of each
+# at 5-8 points); the `slow` test runs 20,000 with the same refusal allowance.
 
 from __future__ import annotations
 
 import os
+import time
 
 import islpy as isl
 import pytest
@@ -89,16 +91,22 @@ values = st.fixed_dictionaries({p: st.integers(-3, 8) for p in PARAMS})
 # A refusal (EngineLimit: time or pieces) is allowed but must stay rare; a
 # wrong number never is.
 LIMITS = Limits(time_s=0.5)
-STATS = {"run": 0, "refused": 0}
+STATS = {"run": 0, "refused": 0, "starved": 0}
 
 
 def check_nest(text: str, points: list[dict[str, int]]) -> None:
     s = isl.Set(text)
     STATS["run"] += 1
+    cpu = time.process_time()
     try:
         pw = count(s, limits=LIMITS)
     except EngineLimit:
         STATS["refused"] += 1
+        # the budget is wall-clock time: a refusal after less than 80% of it on the CPU says
+        # that other processes had the machine (parallel test workers, other jobs), not that
+        # the nest is hard; those are counted apart from the engine's refusals
+        if time.process_time() - cpu < 0.8 * LIMITS.time_s:
+            STATS["starved"] += 1
         return
     for env in points:
         got = pw.evaluate(env)
@@ -113,27 +121,31 @@ def check_nest(text: str, points: list[dict[str, int]]) -> None:
 @pytest.mark.parametrize("depth", [1, 2, 3, 4])
 def test_random_nests_match_isl_enumeration(depth):
     # check: isl enumeration (Set.count_val) at random parameter values
-    n = {1: 600, 2: 700, 3: 500, 4: 300}[depth] * SCALE
+    n = {1: 150, 2: 250, 3: 150, 4: 120}[depth] * SCALE
 
     @settings(settings.get_profile("engine-ci"), max_examples=n)
     @given(text=nests(max_depth=depth), pts=st.lists(values, min_size=3, max_size=6))
     def run(text, pts):
         check_nest(text, pts + [{"N": 6, "M": 3}, {"N": 0, "M": 0}])
 
-    STATS.update(run=0, refused=0)
+    STATS.update(run=0, refused=0, starved=0)
     run()
     # known gap: deep nests mixing strides, modulo guards and floor bounds can
-    # exceed the budget while making the pieces disjoint. Measured with this
-    # profile on the 2-core development machine under load: 0%, 2.9%, 6.4-7.6%
-    # and 21-22% of the nests up to depth 1..4 stop at the 0.5 s budget; the
-    # allowances leave room for a slower machine (the budget is wall-clock time)
-    rate = {1: 0.01, 2: 0.05, 3: 0.12, 4: 0.28}[depth]
-    assert STATS["refused"] <= rate * STATS["run"] + 1, STATS
+    # exceed the budget while making the pieces disjoint. Measured with the
+    # earlier profile of 600/700/500/300 examples on the 2-core development
+    # machine under load: 0%, 2.9%, 6.4-7.6% and 21-22% of the nests up to
+    # depth 1..4 stop at the 0.5 s budget; with this one, serially at a load of
+    # 8: 0%, 4.4%, 6.0%, 26.7%. The allowances leave room for a slower machine
+    print("STATS", depth, STATS)
+    assert STATS["refused"] - STATS["starved"] <= REFUSALS[depth] * STATS["run"] + 1, STATS
+
+
+REFUSALS = {1: 0.01, 2: 0.05, 3: 0.12, 4: 0.28}  # allowed share of refused nests, by depth
 
 
 def test_random_one_param_nests_match_isl_enumeration():
     # check: isl enumeration over a full range of N
-    @settings(settings.get_profile("engine-ci"), max_examples=150 * SCALE)
+    @settings(settings.get_profile("engine-ci"), max_examples=90 * SCALE)
     @given(text=nests(max_depth=3, nparams=1))
     def run(text):
         check_nest(text, [{"N": n} for n in range(-3, 14)])
@@ -149,4 +161,6 @@ def test_random_nests_many_examples():
     def run(text, pts):
         check_nest(text, pts)
 
+    STATS.update(run=0, refused=0, starved=0)
     run()
+    assert STATS["refused"] - STATS["starved"] <= REFUSALS[4] * STATS["run"] + 1, STATS  # depths 1..4 mixed

@@ -476,7 +476,7 @@ def line_of(t: Touch) -> Touch:
     return rows_line(8, 64)(t) if t[0] == "A" else rows_line(4, 64)(t)
 
 
-@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(rn=rand_nest(), N=st.integers(0, 6), M=st.integers(0, 5))
 def test_random_nests_against_brute_force(rn: RandNest, N: int, M: int):
     """Distinct elements and lines per level, maxima over the outer variables, and the worst case."""

@@ -25,6 +25,7 @@ ROOT = Path(__file__).resolve().parent.parent
 
 pytestmark = [
     pytest.mark.precommit,
+    pytest.mark.xdist_group("precommit"),  # one hook environment for both commits: one worker
     pytest.mark.skipif(shutil.which("git") is None, reason="git is not installed"),
 ]
 
