@@ -6,7 +6,7 @@
 #
 # Internal errors are the TC9xx range except the unreadable-file refusal
 # (a finding about the input: a FIFO, a device, a file past the size cap),
-# and the front end's own internal failure code.
+# the front end's own failure included (TC903).
 
 from __future__ import annotations
 
@@ -14,11 +14,10 @@ import re
 from collections.abc import Iterable
 from typing import Any
 
-from tripcount.diagnostics import UnreadableFile
-from tripcount.frontend.diagnostics import FrontEndError
+from tripcount.diagnostics.internal import UnreadableFile
 
 NOT_INTERNAL = frozenset({UnreadableFile.code})
-ALSO_INTERNAL = frozenset({FrontEndError.code})
+ALSO_INTERNAL: frozenset[str] = frozenset()  # the front end's failure is TC903, in the range
 # a code as each output format writes it: `[TC900]` in text, `"code": "TC900"` in JSON,
 # `"ruleId": "TC900"` in SARIF
 _CODE = re.compile(r'\[(TC\d{3})\]|"(?:code|ruleId)":\s*"(TC\d{3})"')

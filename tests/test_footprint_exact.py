@@ -186,7 +186,7 @@ def test_flattened_blur_has_the_working_sets_of_the_two_dimensional_one():
 @pytest.mark.gcc
 @gcc
 @pytest.mark.parametrize("function", ["harbour_blur", "quay_blocked"])
-def test_values_without_formulas_are_exact_or_bounds(function):
+def test_values_without_formulas_are_exact_or_bounds(monkeypatch, function):
     """With no time for footprint formulas, the maximum over the outer variables is not taken from a
     formula's extreme values (an unchecked claim): every value shown as exact still equals the trace."""
     from tripcount.analysis.footprint import quantities

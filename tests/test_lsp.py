@@ -317,7 +317,6 @@ def test_the_editor_reports_unknown_suppression_kinds_like_the_gate(tmp_path, pr
     assert [(f["code"], f["line"]) for f in a.findings] == [("TC620", 2)]
 
 
-@needs_pipeline
 def test_unusable_budgets_and_a_failed_document_are_catalogue_diagnostics(tmp_path, private_cache, monkeypatch):
     text = "void f(int n, double *a) {\n  for (int i = 0; i < n; i++)\n    a[i] = 0;\n}\n"
     (tmp_path / "f.c").write_text(text)
