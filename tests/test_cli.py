@@ -274,7 +274,8 @@ def test_many_files_stream_with_a_status_line_on_a_terminal_only(tmp_path):
     assert f"/{MIN_FILES + 1} " in err.getvalue() and err.getvalue().endswith("\r\x1b[K")
     assert "\x1b" not in out.getvalue()
     assert out.getvalue().endswith(f"{MIN_FILES + 1} file(s), {2 * (MIN_FILES + 1)} nest(s), "
-                                   f"{MIN_FILES + 1} diagnostic(s); give --at n=... (or --at '*=1000') for values\n")
+                                   f"{3 * (MIN_FILES + 1)} diagnostic(s); give --at n=... (or --at '*=1000') for "
+                                   "values\n")  # per file: one refusal and two parallel-candidate notes
     # not a terminal: no status line; an --at naming no parameter still gives no report
     err = io.StringIO()
     out2 = io.StringIO()

@@ -234,3 +234,58 @@ def test_random_nests_against_direct_execution(gen, n):
                 kind = "flow" if a[4] and not b[4] else "anti" if b[4] and not a[4] else "output"
                 want.add((level, kind, array, f"S{a[0] + 1}", f"S{b[0] + 1}"))
     assert got == want
+
+
+# ---------------------------------------------------------------- through the driver
+
+
+FORWARD = """\
+void tide_forward_par(int n, double L[n][n], double b[n], double x[n])
+{
+#pragma omp parallel for schedule(static)
+    for (int i = 0; i < n; i++) {
+        x[i] = b[i];
+        for (int j = 0; j < i; j++)
+            x[i] -= L[i][j] * x[j];
+        x[i] = x[i] / L[i][i];
+    }
+}
+"""
+
+
+def test_a_parallel_recurrence_is_a_warning_and_gets_no_schedule_advice():
+    from tripcount.options import Options
+    from tripcount.pipeline import analyze_text
+
+    fr = analyze_text(FORWARD, "fwd.c", Options(at={"n": 100}))
+    (nr,) = fr.nests
+    codes = [d.code for d in fr.all_diagnostics()]
+    assert "TC507" in codes and "TC501" not in codes  # the imbalance advice is withheld
+    (race,) = [d for d in fr.all_diagnostics() if d.code == "TC507"]
+    assert "flow dependence on x" in race.message and "S1 at i=0 writes what S2 at i=1, j=0 reads" in race.message
+    bal = nr.loops[0].extras["parallel"]
+    assert bal.recommendation.startswith("no schedule advice") and bal.alternatives == []
+    assert nr.extras["dependences"].summary == "i sequential (flow on x), j sequential (flow on x)"
+    assert nr.loops[0].extras["dependences"].to_json()["verdict"] == "sequential"
+
+
+def test_the_outermost_parallel_loop_of_a_sequential_nest_is_a_note():
+    from tripcount.options import Options
+    from tripcount.pipeline import analyze_text
+
+    fr = analyze_text(SRC, "velin_deps.c", Options())
+    notes = {(d.span.line, d.args["var"]) for d in fr.all_diagnostics() if d.code == "TC508"}
+    assert (6, "i") in notes  # crane product: i
+    assert (16, "i") in notes  # LU: k is sequential, i holds every statement and is parallel
+    assert not any(line in (27, 28, 29) for line, _ in notes)  # Gauss-Seidel: none
+    reduced = [d for d in fr.all_diagnostics() if d.code == "TC508" and d.args["var"] == "i"
+               and d.span.line == 81]
+    assert reduced and "reduction clause for acc" in reduced[0].message
+
+
+def test_an_array_used_with_two_ranks_leaves_the_loops_undecided():
+    tu, _ = parse_text("void f(int n, double A[n][4]) {\n  for (int i = 1; i < n; i++) {\n"
+                       "    A[i][0] = 1.0;\n    A[i - 1] = 0;\n  }\n}\n", "ranks.c")
+    (nest,) = build_nests(tu)[0]
+    r = dependences(nest)
+    assert not r.complete and [v.verdict for v in r.loops] == ["unknown"]

@@ -14,7 +14,7 @@ def test_triangle_nest_header_formula_and_summary(run_cli):
     s1 = next(k for k, ln in enumerate(lines) if ln.strip().startswith("S1 "))
     assert "runs n*(n + 1)/2" in lines[s1 + 1] and lines[s1 + 1].endswith("= 500,500")
     assert "[TC403]" in out  # undeclared array: element size unknown
-    assert lines[-1] == "1 file(s), 1 nest(s), 1 diagnostic(s); values at n=1000"
+    assert lines[-1] == "1 file(s), 1 nest(s), 2 diagnostic(s); values at n=1000"  # and the TC508 note
 
 
 def test_unmodelled_nest_says_so_instead_of_no_parameters(run_cli):

@@ -32,14 +32,23 @@ from __future__ import annotations
 import re
 import time
 from collections.abc import Iterator, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING, Any
 
 import islpy as isl
 
 from tripcount import ir
+from tripcount.analysis.balance.space import targets
+from tripcount.diagnostics.balance import ParallelCandidate, ParallelLoopCarriesDependence
 from tripcount.model import Loop, Nest, Statement
+from tripcount.options import Options
+
+if TYPE_CHECKING:
+    from tripcount.analysis.results import NestResult
+    from tripcount.budget import Budget
 
 _dt = isl.dim_type
+MAX_LISTED = 8  # dependences listed per loop in the JSON
 REDUCTION_OPS = frozenset({"+=", "-=", "*=", "&=", "|=", "^="})
 _KIND_ORDER = {"flow": 0, "anti": 1, "output": 2}
 TIME_S = 2.0  # dependence analysis of one nest; past it, the loops not decided are "unknown"
@@ -64,6 +73,13 @@ class Dependence:
     reduction: bool
     example: tuple[dict[str, int], dict[str, int]] | None = None
 
+    def to_json(self) -> dict[str, Any]:
+        """kind, array, source, sink, loop index, distance, reduction, example pair."""
+        return {"kind": self.kind, "array": self.array, "source": self.source, "sink": self.sink,
+                "loop": self.loop, "distance": list(self.distance), "reduction": self.reduction,
+                "example": None if self.example is None else
+                {"source": dict(self.example[0]), "sink": dict(self.example[1])}}
+
 
 @dataclass(frozen=True)
 class LoopVerdict:
@@ -74,6 +90,12 @@ class LoopVerdict:
     carried: tuple[Dependence, ...]
     why: str = ""  # for "unknown"
 
+    def to_json(self) -> dict[str, Any]:
+        """The loop's verdict and the dependences it carries (the first few)."""
+        return {"verdict": self.verdict, "why": self.why or None,
+                "carried": [d.to_json() for d in self.carried[:MAX_LISTED]],
+                "carried_total": len(self.carried)}
+
 
 @dataclass(frozen=True)
 class Dependences:
@@ -83,6 +105,16 @@ class Dependences:
     independent: tuple[Dependence, ...]  # loop-independent dependences
     complete: bool  # False when a statement or access is not modelled (verdicts then say "unknown")
     note: str = ""
+    summary: str = ""  # one line of the verdicts, with the loops' names (summary_text)
+
+    def to_json(self) -> dict[str, Any]:
+        """Completeness, the method note, and the loop-independent dependences (the first few)."""
+        return {"complete": self.complete, "note": self.note, "summary": self.summary,
+                "independent": [d.to_json() for d in self.independent[:MAX_LISTED]]}
+
+    def text_lines(self) -> list[str]:
+        """The report's line: every loop's verdict."""
+        return [f"dependences: {self.summary} ({self.note})"] if self.summary else []
 
     def verdict(self, loop: int) -> LoopVerdict | None:
         """The verdict of the loop with this index."""
@@ -274,6 +306,11 @@ def dependences(nest: Nest, at: dict[str, int] | None = None, time_s: float = TI
             timed_out = True
             break
         s, t = src.stmt, snk.stmt
+        if src.rel.dim(_dt.out) != snk.rel.dim(_dt.out):
+            # one array used with different numbers of subscripts (A[i][j] and A[i]): its elements
+            # cannot be matched, so the loops stay undecided
+            complete = False
+            continue
         kind = "flow" if src.write and not snk.write else "anti" if snk.write and not src.write else "output"
         rel = src.rel.apply_range(snk.rel.reverse())  # { S[i] -> T[j] : same element }
         if rel.is_empty():
@@ -313,8 +350,7 @@ def dependences(nest: Nest, at: dict[str, int] | None = None, time_s: float = TI
             verdicts.append(LoopVerdict(lp.index, "reduction", tuple(deps)))
         else:
             verdicts.append(LoopVerdict(lp.index, "sequential", tuple(deps)))
-    note = ("memory-based dependences (value-based flow is a subset; the verdicts are the same); "
-            "scalars declared inside a loop are private to its iterations")
+    note = "memory-based; a scalar declared in a loop is private to it"
     return Dependences(tuple(verdicts), tuple(independent), complete and not timed_out, note)
 
 
@@ -406,6 +442,42 @@ def _example(d: isl.Map, s: Statement, t: Statement,
 
 
 # --------------------------------------------------------------------------
+# Texts for the report
+
+
+def pair_text(d: Dependence) -> str:
+    """'S1 at i=1 writes, S2 at i=2 reads' style description of a dependence's example (or its shape)."""
+    acts = {"flow": ("writes", "reads"), "anti": ("reads", "writes"), "output": ("writes", "writes")}[d.kind]
+    if d.example is None:
+        return f"{d.source} {acts[0]} and a later iteration's {d.sink} {acts[1]} the same element"
+
+    def at(it: dict[str, int]) -> str:
+        return ", ".join(f"{k}={v}" for k, v in it.items())
+    return f"{d.source} at {at(d.example[0])} {acts[0]} what {d.sink} at {at(d.example[1])} {acts[1]}"
+
+
+def summary_text(nest: Nest, result: Dependences) -> str:
+    """One line: each loop's verdict, with the first carried dependence of a sequential loop."""
+    if result.loops and all(v.verdict == "unknown" for v in result.loops):
+        return "not decided (" + result.loops[0].why + ")"
+    parts = []
+    for v in result.loops:
+        var = nest.loops[v.loop].display or nest.loops[v.loop].var
+        if v.verdict == "sequential" and v.carried:
+            d = v.carried[0]
+            dist = ""
+            k = nest.loops[v.loop].depth
+            if k < len(d.distance) and d.distance[k] is not None:
+                dist = f", distance {d.distance[k]}"
+            parts.append(f"{var} sequential ({d.kind} on {d.array}{dist})")
+        elif v.verdict == "reduction":
+            parts.append(f"{var} reduction ({', '.join(sorted({d.array for d in v.carried}))})")
+        else:
+            parts.append(f"{var} {v.verdict}")
+    return ", ".join(parts)
+
+
+# --------------------------------------------------------------------------
 # OpenMP clauses that make a carried dependence harmless
 
 
@@ -428,3 +500,71 @@ def unsafe_parallel(nest: Nest, result: Dependences, loop: Loop) -> tuple[Depend
         return ()
     covered = covered_names(loop.omp.text) if loop.omp is not None else set()
     return tuple(d for d in v.carried if d.array not in covered)
+
+
+# --------------------------------------------------------------------------
+# The analysis unit (analysis/protocol.py): results and diagnostics
+
+
+def analyze(result: NestResult, options: Options, budget: Budget | None = None) -> None:
+    """Dependences of the nest (extra "dependences" on the nest and each loop); a parallel loop that
+    carries an uncovered dependence is TC507, and the outermost loop that could run in parallel, in a
+    nest with no parallel loop, is TC508."""
+    nest = result.nest
+    if not nest.loops:
+        return
+    at = {k: v for k, v in options.at.items() if k in nest.params}
+    full = options.sizes(nest.params)
+    if full is not None:
+        at = full
+    time_s = TIME_S if budget is None else max(0.05, min(TIME_S, budget.remaining()))
+    r = dependences(nest, at or None, time_s)
+    r = replace(r, summary=summary_text(nest, r))
+    result.extras["dependences"] = r
+    loops = {lr.loop.index: lr for lr in result.loops}
+    for v in r.loops:
+        if v.loop in loops:
+            loops[v.loop].extras["dependences"] = v
+    found = targets(nest, options)
+    for loop, omp, _origin in found:
+        deps = list(unsafe_parallel(nest, r, loop))
+        cur = loop
+        for _ in range(max(1, omp.collapse) - 1):  # the collapsed loops run in parallel too
+            if len(cur.children) != 1:
+                break
+            cur = nest.loops[cur.children[0]]
+            deps += [d for d in unsafe_parallel(nest, r, cur) if d not in deps]
+        if deps:
+            d = deps[0]
+            result.diagnostics.append(ParallelLoopCarriesDependence(
+                loop.span, var=loop.display or loop.var, loop_at=loop.header, kind=d.kind, array=d.array,
+                pair=pair_text(d)))
+    if not found and r.complete:
+        cand = _candidate(nest, r)
+        if cand is not None:
+            loop, v = cand
+            scalars = sorted({d.array for d in v.carried})
+            result.diagnostics.append(ParallelCandidate(
+                loop.span, var=loop.display or loop.var, loop_at=loop.header,
+                how=" but reductions" if v.verdict == "reduction" else "",
+                clause=(f" with a reduction clause for {', '.join(scalars)}" if scalars else "")))
+
+
+def _candidate(nest: Nest, r: Dependences) -> tuple[Loop, LoopVerdict] | None:
+    """The outermost loop holding every statement of the nest whose iterations may run in parallel
+    (reductions allowed on scalars only: an array reduction needs more than a clause)."""
+    everywhere = [lp for lp in nest.loops if all(lp.index in s.loops for s in nest.statements)]
+    scalars = {s_name for s in nest.statements for s_name in _written_scalars(s, nest)}
+    for lp in sorted(everywhere, key=lambda x: x.depth):
+        v = r.verdict(lp.index)
+        if v is None:
+            return None
+        if v.verdict == "parallel":
+            return lp, v
+        if v.verdict == "reduction" and all(d.array in scalars for d in v.carried):
+            return lp, v
+    return None
+
+
+def _written_scalars(s: Statement, nest: Nest) -> set[str]:
+    return {name for name, w, _ in _scalar_refs(s, nest) if w}

@@ -60,3 +60,26 @@ class UnmatchedParallel(Diagnostic):
     severity = "warning"
     title = "parallel-line-unmatched"
     template = "--parallel {line}: no loop of the analysed files starts on line {line}"
+
+
+class ParallelLoopCarriesDependence(Diagnostic):
+    """A loop run in parallel (OpenMP work-sharing or --parallel) carries a dependence that no
+    reduction/private clause covers: two of its iterations touch the same element, one writing it."""
+
+    code = "TC507"
+    severity = "warning"
+    title = "parallel-loop-dependence"
+    template = ("parallel loop '{var}' (line {loop_at:line}) carries a {kind} dependence on {array}: {pair}; "
+                "its iterations are not independent (a data race unless a clause or synchronisation "
+                "covers it), so no schedule advice is given")
+
+
+class ParallelCandidate(Diagnostic):
+    """A loop outside any parallel construct that holds all the nest's work and carries no dependence
+    (or only reductions): it may run in parallel as it is."""
+
+    code = "TC508"
+    severity = "note"
+    title = "parallel-candidate"
+    template = ("loop '{var}' (line {loop_at:line}) carries no dependence{how}: the outermost candidate for "
+                "'#pragma omp parallel for'{clause}")

@@ -142,14 +142,26 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
                 break
             cur = nest.loops[cur.children[0]]
             covered.add(cur.index)
+        before = len(result.diagnostics)
         try:
             bal = analyze_loop(result, loop, omp, origin, options, budget)
         except Exception as exc:  # one loop must not take the other loops' balance down
             result.diagnostics.append(InternalError(loop.span, what=f"balance of loop '{loop.var}': "
                                                     f"{type(exc).__name__}: {exc}"))
             continue
+        if bal is not None and ({loop.index} | covered) & _sequential(result):
+            # iterations that depend on each other (TC507): a schedule cannot fix that
+            bal.recommendation = "no schedule advice: the loop carries a dependence (TC507)"
+            bal.alternatives, bal.best = [], None
+            result.diagnostics[before:] = [d for d in result.diagnostics[before:] if d.code != LoadImbalance.code]
         if bal is not None and loop.index in loops:
             loops[loop.index].extras["parallel"] = bal
+
+
+def _sequential(result: NestResult) -> set[int]:
+    """Loops the dependence analysis (run before this one) found sequential."""
+    deps = result.extras.get("dependences")
+    return {v.loop for v in getattr(deps, "loops", ()) if v.verdict == "sequential"}
 
 
 def analyze_loop(result: NestResult, loop: Loop, omp: ir.OmpClauses, origin: str,
