@@ -314,3 +314,24 @@ def test_plain_forms_skip_the_search_and_keep_the_value():
         for n in range(-30, 60, 7):
             assert expr.subs("N", n) == q.evaluate({"N": n})
     assert p.to_expr() == "N*floor((N + 1)/2)"
+
+
+def test_growth_degree_ignores_floor_terms_that_cancel():
+    # a loop tiled by 64 with a min() bound: the count is 32*f1 + n*f1 - 32*f1^2 - n*f0 + 32*f0^2 + 32*f0
+    # with f0 = floor(n/64), f1 = floor((n + 63)/64); it equals n for every n >= 1 (checked below against
+    # isl enumeration of the iteration domain), so it grows like n: degree 1, although its terms have degree 2
+    from tripcount import pipeline
+    from tripcount.engine import enumerate_count
+    from tripcount.options import Options
+
+    src = ("void f(int n, double *a) { for (int t = 0; t < n; t += 64)\n"
+           "  for (int i = t; i < (t + 64 < n ? t + 64 : n); ++i) a[i] = a[i] * 2; }")
+    (nr,) = pipeline.analyze_text(src, "tiled.c", Options()).nests
+    c = nr.statements[0].count
+    assert c.formula.degree() == 1 and c.formula.pieces[0].poly.degree() == 2
+    for n in (1, 63, 64, 65, 200, 1000):
+        assert enumerate_count(nr.statements[0].stmt.domain, {"n": n}) == n
+    n = QPoly.var("n")
+    assert (n * QPoly.floor(n, 2) - n * n / 2).growth_degree() == 1  # -n*(n mod 2)/2 grows like n
+    assert (n - QPoly.floor(n, 2) * 2).growth_degree() == 0  # n mod 2 is bounded
+    assert (QPoly.floor(n, 3) ** 2).growth_degree() == 2

@@ -130,8 +130,15 @@ class PieceList:
         return Fraction(0)
 
     def degree(self) -> int:
-        """Total degree of the generic piece (floors count 1)."""
-        return self.pieces[0].poly.degree() if self.pieces else 0
+        """Degree of growth of the generic piece (QPoly.growth_degree): terms of floors that cancel for
+        large sizes do not count (32*f1 + n*f1 - 32*f1^2 - n*f0 + 32*f0^2 + 32*f0, with f0 = floor(n/64)
+        and f1 = floor((n + 63)/64), is n: degree 1, not 2)."""
+        if not self.pieces:
+            return 0
+        poly = self.pieces[0].poly
+        # Per-thread shares (balance) are not QPolys; their own degree is already one of growth.
+        growth = getattr(poly, "growth_degree", None)
+        return growth() if growth is not None else poly.degree()
 
     def leading(self) -> str:
         """Leading homogeneous part of the generic piece."""

@@ -218,7 +218,7 @@ class TextReporter(Reporter):
             # 4096 is linear below the cap): describe the work where the user asked, and say both
             local = [x.count.formula.pieces[x.count.at_piece].poly for x in counted if x.count.at_piece is not None]
             if len(local) == len(counted):
-                here = max(p.degree() for p in local)
+                here = max(p.growth_degree() for p in local)
                 leading = sr.count.formula.pieces[sr.count.at_piece].poly.leading()
                 if here != degree:
                     tail = f" (degree {degree} for large sizes)"

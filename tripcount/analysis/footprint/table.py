@@ -90,6 +90,10 @@ def text_table(nf: NestFootprint) -> list[str]:
                 expr = fp.bytes.formula.pieces[fp.typical_piece].poly.to_expr()
             if expr is not None:
                 expr = _short(expr, fp.bytes)
+                # one piece of several is shown: say so, as the loop rows do (the JSON has every piece)
+                others = len(fp.bytes.formula.pieces) - 1 if fp.bytes.formula is not None else 0
+                if others > 0:
+                    expr += f" [+{others} case{'s' if others > 1 else ''}]"
             else:
                 el = _piece_expr(fp.elements, point)
                 expr = (_short(el, fp.elements) + " elements") if el is not None else (
