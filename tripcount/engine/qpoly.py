@@ -481,6 +481,19 @@ class QPoly:
 
     def linear_part(self) -> QPoly:
         """Replace every floor(e/m) by its linear part (e without constant)/m, recursively."""
+        return self._floors_replaced(None)
+
+    def growth_degree(self) -> int:
+        """Degree of growth for large values: every floor(e/m) is its linear part plus a bounded
+        remainder (a fresh symbol of degree 0), and the largest total degree left in the sizes counts.
+        Terms of floors that cancel (floor(n/64)*n - floor((n + 63)/64)*n + ...) do not raise it."""
+        rest: set[str] = set()
+        out = self._floors_replaced(rest)
+        return max((sum(e for a, e in m if a not in rest) for m in out.terms), default=0)
+
+    def _floors_replaced(self, rest: set[str] | None) -> QPoly:
+        """Every floor replaced by its linear part, plus (when `rest` is given) a fresh symbol for the
+        bounded remainder, whose names are added to `rest`."""
         mapping: dict[Atom, QPoly] = {}
 
         def lp(a: Atom) -> QPoly:
@@ -492,6 +505,10 @@ class QPoly:
                 for b, c in a.terms:
                     r = r + lp(b) * Fraction(c, a.den)
                 r = r - r.const_value()  # drop constants of inner levels too
+                if rest is not None:
+                    z = f"\0rest{len(rest)}"  # not a C name: cannot clash with a size
+                    rest.add(z)
+                    r = r + QPoly.var(z)
                 mapping[a] = r
             return r
 
@@ -502,36 +519,6 @@ class QPoly:
                 p = p * lp(a) ** e
             out = out + p
         return out
-
-    def growth_degree(self) -> int:
-        """Degree of growth for large values: every floor(e/m) is its linear part plus a bounded
-        remainder (a fresh symbol of degree 0), and the largest total degree left in the sizes counts.
-        Terms of floors that cancel (floor(n/64)*n - floor((n + 63)/64)*n + ...) do not raise it."""
-        mapping: dict[Atom, QPoly] = {}
-        rest: set[str] = set()
-
-        def lp(a: Atom) -> QPoly:
-            if isinstance(a, str):
-                return QPoly.var(a)
-            r = mapping.get(a)
-            if r is None:
-                r = QPoly()
-                for b, c in a.terms:
-                    r = r + lp(b) * Fraction(c, a.den)
-                r = r - r.const_value()
-                z = f"\0rest{len(rest)}"  # not a C name: cannot clash with a size
-                rest.add(z)
-                r = r + QPoly.var(z)
-                mapping[a] = r
-            return r
-
-        out = QPoly()
-        for m, c in self.terms.items():
-            p = QPoly.const(c)
-            for a, e in m:
-                p = p * lp(a) ** e
-            out = out + p
-        return max((sum(e for a, e in m if a not in rest) for m in out.terms), default=0)
 
     def leading_poly(self) -> QPoly:
         """Top-degree homogeneous part of the linear-part polynomial."""
