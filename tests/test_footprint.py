@@ -303,6 +303,18 @@ def test_unknown_element_size_and_override():
     # x[0], x[2], ..., x[18] with 16 floats per line: lines 0 and 1
     assert fp2.lines.value == len({(2 * i * 4) // 64 for i in range(10)})
     assert not any(d.code == "TC403" for d in r2.diagnostics)
+    assert "declare the arrays" in next(d.message for d in r.diagnostics if d.code == "TC403")
+
+
+def test_unknown_element_type_is_named():
+    """A declared element type whose size is unknown (a template parameter `T`) is named in TC403,
+    which then does not ask to declare the arrays."""
+    nest = make_nest(("N",), [L("i", None, "[N] -> { L0[i] : 0 <= i < N }")],
+                     [S((0,), "[N] -> { S1[i] : 0 <= i < N }", [("v", "read", "{ S1[i] -> v[i] }")],
+                        elem={"v": ("T", None)})])
+    r = run(nest, Options(at={"N": 10}))
+    msg = next(d.message for d in r.diagnostics if d.code == "TC403")
+    assert "element type 'T'" in msg and "--elem-size" in msg and "declare the arrays" not in msg
 
 
 def test_cache_fit_flag_and_threshold():

@@ -32,13 +32,14 @@ class FootprintLimit(Diagnostic):
 
 
 class ElementSizeUnknown(Diagnostic):
-    """Arrays whose element type is not declared: bytes and cache lines cannot be given."""
+    """Arrays whose element size is not known (undeclared, or a template parameter or unread type): bytes and cache lines cannot be given."""
 
     code = "TC403"
     severity = "note"
     title = "element-size-unknown"
-    template = ("element size unknown for {arrays}: working sets in bytes and cache lines are not computed "
-                "(declare the arrays or give --elem-size BYTES)")
+    # args: arrays; why: "" for undeclared arrays, else what their declared element type is
+    template = ("element size unknown for {arrays}{why}: working sets in bytes and cache lines are not computed "
+                "({remedy})")
 
 
 class FootprintRefused(Diagnostic):

@@ -21,8 +21,27 @@ from tripcount.analysis.results import LoopResult, NestResult
 from tripcount.budget import Budget
 from tripcount.diagnostics import Phrase
 from tripcount.diagnostics.memory import ElementSizeUnknown, FootprintLimit, FootprintRefused
-from tripcount.model import Loop
+from tripcount.model import Loop, Nest
 from tripcount.options import Options
+
+
+def _element_size_unknown(nest: Nest, unknown: list[str]) -> ElementSizeUnknown:
+    """TC403, saying why: arrays never declared, or declared with a type whose size is not known here
+    (a template parameter such as `std::vector<T>`, or a type from a header that was not read)."""
+    types: dict[str, str] = {}
+    for s in nest.statements:
+        for a in s.accesses:
+            if a.array in unknown and a.elem_type and a.array not in types:
+                types[a.array] = a.elem_type
+    arrays = ", ".join(f"'{a}'" for a in unknown)
+    if not types:
+        return ElementSizeUnknown(nest.span, arrays=arrays, why="",
+                                  remedy="declare the arrays or give --elem-size BYTES")
+    named = sorted(set(types.values()))
+    why = (f" (declared with element type {', '.join(repr(t) for t in named)}, whose size is not known: a "
+           "template parameter, or a type from a header that was not read)")
+    return ElementSizeUnknown(nest.span, arrays=arrays, why=why,
+                              remedy="give --elem-size BYTES, or -I DIR for the header that defines the type")
 
 
 def analyze(result: NestResult, options: Options, budget: Budget | None = None) -> None:
@@ -37,7 +56,7 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
     diags = result.diagnostics
     unknown = sorted(a.name for a in an.arrays.values() if not a.elem)
     if unknown:
-        diags.append(ElementSizeUnknown(nest.span, arrays=", ".join(f"'{a}'" for a in unknown)))
+        diags.append(_element_size_unknown(nest, unknown))
     for name, (first, other) in sorted(an.mixed.items()):
         k, m = first.map.dim(isl.dim_type.out), other.map.dim(isl.dim_type.out)
         diags.append(FootprintRefused(
