@@ -154,3 +154,32 @@ def test_line_numbers_of_the_reference_layouts():
     assert verify_memory._line_of((2, 5), 8, 64, strides) == 3
     assert verify_memory._line_of((2, 5), 8, 64, None) == (2, 0)
     assert verify_memory._line_of((2, 8), 8, 64, None) == (2, 1)
+
+
+TINY = ("--cache", "L1=512B", "--cache", "L2=4KiB", "--cache", "L3=32KiB")
+PRODUCT = os.path.join(INPUTS, "verify", "quay_product.c")
+
+
+def _threshold_checks(diags: list[dict]) -> str:
+    return " ".join(d["message"] for d in diags if d["code"] == "TC306")
+
+
+def test_cache_fit_thresholds_are_checked_at_and_past_them(run_cli):
+    """With caches scaled down, the thresholds lie at sizes small enough to enumerate: each is checked
+    (fits at it, not one past it) and none is listed as not checked for the L1 level."""
+    status, diags = _run(run_cli, PRODUCT, "n=12", *TINY)
+    _clean(status, diags)
+    note = _threshold_checks(diags)
+    assert "for L1 of" not in note, note  # every L1 threshold (n <= 5, n <= 6 here) was enumerated
+
+
+def test_a_wrong_threshold_is_caught(run_cli, monkeypatch):
+    def one_more(result):
+        for ws in result.extras["footprint"].levels:
+            for t in ws.thresholds.values():
+                if t.largest is not None and not t.unbounded:
+                    t.largest += 1
+
+    _wrapped(monkeypatch, one_more)
+    msgs = _mismatches(*_run(run_cli, PRODUCT, "n=12", *TINY))
+    assert any(m.startswith("whether the working set of loop ") and "threshold" in m for m in msgs), msgs

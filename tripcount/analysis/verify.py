@@ -109,6 +109,7 @@ def _figures_by_enumeration(result: NestResult, options: Options) -> None:
     verify_threads.verify_at(result, options, budget, tally)
     verify_memory.verify_formulas(result, options, budget, tally)
     verify_threads.verify_formulas(result, options, budget, tally)
+    verify_memory.verify_thresholds(result, options, budget, tally)
     if not tally.checked and not tally.skipped:
         return
     parts = []

@@ -18,7 +18,10 @@
 #     case's values, the cache occupancy and the arithmetic intensity;
 #   * at a few small sizes: each formula (evaluated, and as printed, read back
 #     with tripcount.formula) at values of the fixed variables, and the worst
-#     case over them as a function of the sizes (an upper bound must hold).
+#     case over them as a function of the sizes (an upper bound must hold);
+#   * each cache-fit threshold P <= T: the largest working set fits at P = T
+#     and not at T + 1 (fits only, for a safe bound), smallest T first, while
+#     the enumeration budget lasts.
 # A value of a footprint that leaves references out (lower_bound) is checked
 # as a lower bound of what the modelled references touch.
 
@@ -363,6 +366,61 @@ class _Checker:
                     self.tally.skip(f"formula for the {what} ({exc})")
 
 
+    # --- cache-fit thresholds
+    def _affordable(self, sizes: Mapping[str, int]) -> bool:
+        """Whether the statement instances at `sizes` fit the enumeration budget, from the exact
+        statement counts (no integer-set operation: a threshold can lie at sizes in the millions)."""
+        total = 0
+        for sr in self.result.statements:
+            f = sr.count.formula
+            if sr.stmt.domain is None or f is None:
+                return False
+            try:
+                total += int(f.evaluate(dict(sizes)))
+            except (KeyError, ValueError, ZeroDivisionError):
+                return False
+            if total > self.budget.instances:
+                return False
+        return True
+
+    def thresholds(self) -> None:
+        """Each printed 'fits L while P <= T': the largest working set over the fixed variables, in the
+        layout the threshold states, fits L at P = T and (unless it is a safe bound) not at T + 1."""
+        if self.caches is None:
+            return
+        capacity = {lv.name: lv.size for lv in self.caches.levels}
+        todo = []
+        for sc in self.scopes:
+            ws = sc.occupancy
+            if ws is None or not ws.thresholds:
+                continue
+            if any(n not in self.arrays for n in sc.fp.by_array) or sc.fp.lower_bound:
+                self.tally.skip(f"cache-fit thresholds of {sc.label} (not every reference is modelled)")
+                continue
+            todo += [(t.largest, sc, level, t) for level, t in ws.thresholds.items()
+                     if not t.unbounded and t.largest is not None and t.largest >= 1 and level in capacity]
+        for _, sc, level, t in sorted(todo, key=lambda x: x[0]):
+            for value, claim in [(t.largest, True)] + ([] if t.safe else [(t.largest + 1, False)]):
+                sizes = {**t.fixed, t.param: value}
+                try:
+                    if not self.budget.left() or not self._affordable(sizes):
+                        raise OverBudget
+                    touched = _touched(self.nest, self.arrays, {(sc.loop, sc.n_fixed)}, sizes, self.budget)
+                except (OverBudget, KeyError):
+                    self.tally.skip(f"cache-fit threshold {t.text()} for {level} of {sc.label} (enumeration "
+                                    "budget of the nest spent)")
+                    break
+                # the layout the threshold was found in: packed where checked, else rows aligned
+                strides = {n: (None if t.assumes else _strides(a.access, sizes)) for n, a in self.arrays.items()}
+                rows = self.table(sc, touched, strides)
+                if any(r.get(("", "lines")) is None for r in rows.values()):
+                    break
+                lines = max((r[("", "lines")] or 0 for r in rows.values()), default=0)
+                self.tally.points.add(tuple(sorted(sizes.items())))
+                self.check(f"whether {sc.label} fits {level} at {point_label(sizes)} (threshold {t.text()}; "
+                           "1: fits, 0: not)", int(claim), int(lines * self.line <= capacity[level]), None, sizes)
+
+
 def _keys(sc: _Scope) -> list[tuple[str, str]]:
     return [(name, key) for name, key, _ in _counts(sc.fp)]
 
@@ -382,8 +440,11 @@ def verify_at(result: NestResult, options: Options, budget: Budget, tally: Tally
     at = options.sizes(nest.params) if nest.params else {}
     if ch.scopes and at is not None:
         ch.values_at(at)
-    if any(sc.occupancy is not None and sc.occupancy.thresholds for sc in ch.scopes):
-        tally.skip("cache-fit thresholds (they lie at sizes too large to enumerate)")
+
+
+def verify_thresholds(result: NestResult, options: Options, budget: Budget, tally: Tally) -> None:
+    """Check every cache-fit threshold at it and one past it (smallest first: the cheapest to enumerate)."""
+    _Checker(result, options, budget, tally).thresholds()
 
 
 def verify_formulas(result: NestResult, options: Options, budget: Budget, tally: Tally) -> None:
