@@ -19,6 +19,8 @@ from collections.abc import Sequence
 from typing import Any
 
 HERE = os.path.dirname(os.path.abspath(__file__))
+# strategies.py imports the test helpers of tests/ (internal.py) as top-level modules
+sys.path.insert(0, os.path.join(os.path.dirname(HERE), "tests"))
 sys.path.insert(0, os.path.join(os.path.dirname(HERE), "tests", "robustness"))
 
 from strategies import Aff, Bound, Cond, GenNest, If, Loop, Stmt  # noqa: E402

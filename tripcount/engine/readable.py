@@ -467,6 +467,11 @@ def format_grouped(p: QPoly, fmt) -> str:
     best = fmt(p)
     if len(p.terms) < 3 or len(p.terms) > _GROUP_MAX_TERMS:
         return best
+    if len(p.floors()) > _MAX_FLOORS:
+        # as in the search: two printings per atom of a formula with many floors
+        # (guarded sweeps, strided footprints) cost more than the rest of its
+        # report, for a text that stays long anyway
+        return best
     best_cost = text_cost(best)
     for a in sorted(p.atoms(), key=lambda at: (isinstance(at, Floor), str(at))):
         part = QPoly({m: c for m, c in p.terms.items() if any(b == a for b, _ in m)})
