@@ -164,7 +164,11 @@ class TrafficModel:
         if lines is not None and lines <= cap:
             self._add(out, self.term(stmts, lp.depth), parts)
             return
-        if lines is None or upper:
+        if not self.an.has_at:
+            note = "without --at sizes every loop level is counted as not fitting (the counts may be too high)"
+            if note not in out.notes:
+                out.notes.append(note)
+        elif lines is None or upper:
             note = (f"whether one iteration of loop '{lp.var}' fits is not known exactly; counted as not "
                     "fitting (the counts may be too high)")
             if note not in out.notes:

@@ -114,11 +114,15 @@ class NestTraffic:
                " write-allocate, packed row-major layout, arrays on line boundaries):"]
         for lv in self.levels:
             c = lv.lines
-            if c.value is not None:
+            if c.value == 0 and c.bound == "lower":
+                out.append(f"  into {lv.level:<3} not modelled")
+            elif c.value is not None:
                 side = {"upper": "<= ", "lower": ">= "}.get(c.bound or "", "")
                 out.append(f"  into {lv.level:<3} {side}{_fmt(c.value)} lines = {side}{_fmt(lv.bytes.value)} B")
             elif c.formula is not None:
-                out.append(f"  into {lv.level:<3} {c.formula} lines of {lv.line_size} B")
+                pieces = c.formula.to_json().get("pieces") or []
+                text = "; ".join(p["expr"] + ("" if len(pieces) == 1 else f" when {p['when']}") for p in pieces)
+                out.append(f"  into {lv.level:<3} {text or '0'} lines of {lv.line_size} B")
             else:
                 out.append(f"  into {lv.level:<3} unknown ({c.note or 'no value'})")
         mem = self.memory_bytes()
