@@ -13,11 +13,12 @@
 from __future__ import annotations
 
 import functools
+import json
 import os
 
 import pytest
 from accesstrace import access_trace, lru_misses
-from conftest import CORPUS
+from conftest import CORPUS, INPUTS
 from oracle import gcc_available
 
 from tripcount import pipeline
@@ -25,8 +26,8 @@ from tripcount.analysis.traffic import LevelTraffic, NestTraffic, TrafficCount
 from tripcount.frontend import parse_file
 from tripcount.options import Options
 
-pytestmark = [pytest.mark.xdist_group("traffic"), pytest.mark.gcc,
-              pytest.mark.skipif(not gcc_available(), reason="gcc not available")]
+pytestmark = pytest.mark.xdist_group("traffic")
+needs_gcc = pytest.mark.skipif(not gcc_available(), reason="gcc not available")
 
 LINE = 64
 CACHES = {"L1": 512, "L2": 4096, "L3": 32768}
@@ -89,6 +90,8 @@ def _error(model: int, sim: int) -> float:
     return abs(model - sim) / max(sim, 1)
 
 
+@pytest.mark.gcc
+@needs_gcc
 @pytest.mark.parametrize("name", FILES)
 def test_each_kernel_stays_within_a_factor_of_the_lru_simulation(name):
     """The model errs mostly high: a level's fit is decided on a loop's largest iteration, so a triangular
@@ -98,6 +101,8 @@ def test_each_kernel_stays_within_a_factor_of_the_lru_simulation(name):
         assert sim / 2 <= model <= 11 * sim + 2, (fname, line, size, level, model, sim)
 
 
+@pytest.mark.gcc
+@needs_gcc
 def test_corpus_agreement_with_the_lru_simulation():
     cases = [c for name in FILES for c in _cases(name)]
     assert len(cases) >= 100
@@ -121,3 +126,35 @@ def test_result_objects_and_json():
     assert [e["level"] for e in js] == ["L1", "L2"]
     assert js[0]["bytes"]["value"] == 640 and js[0]["assumptions"] == ["a"]
     assert js[1]["lines"]["bound"] == "upper"
+
+
+SWEEP = os.path.join(INPUTS, "traffic", "basin_sweep.c")
+
+
+def _traffic(run_cli, *caches: str) -> list[dict]:
+    args = [a for c in caches for a in ("--cache", c)]
+    status, out, err = run_cli("analyze", SWEEP, "--at", "n=40", "--format", "json", "--line-size", "64", *args)
+    assert status == 0, err
+    return json.loads(out)["files"][0]["nests"][0]["traffic"]
+
+
+def test_tiny_caches_are_followed(run_cli):
+    """n = 40: u and v are 12,800 B = 200 lines each; the sweep touches all of u and, of v, the lines from
+    v[1][1] (byte 328, line 5) to v[38][38] (byte 12,464, line 194): 390 lines (counted by hand from C's
+    row-major layout, ISO C99 6.5.2.1). A 32 KiB level holds it all: 390 lines, the compulsory traffic. A
+    512 B level (8 lines) holds neither one row sweep (4 rows of 5 lines) nor a layer: every i brings in
+    its three rows of u and its row of v again (common practice of the layer condition)."""
+    big = _traffic(run_cli, "L1=512B", "L2=4KiB", "L3=32KiB")
+    assert [e["level"] for e in big] == ["L1", "L2", "L3"]
+    assert big[2]["lines"]["value"] == 390 and big[2]["bytes"]["value"] == 390 * 64
+    assert big[0]["lines"]["value"] > 390
+    assert all(e["assumptions"] for e in big)
+    roomy = _traffic(run_cli, "L1=1MiB", "L2=2MiB", "L3=4MiB")
+    assert [e["lines"]["value"] for e in roomy] == [390, 390, 390]
+
+
+def test_the_gate_computes_no_traffic():
+    fr = pipeline.analyze_file(SWEEP, Options(at={"n": 40}, detail="gate"))
+    assert "traffic" not in fr.nests[0].extras
+    full = pipeline.analyze_file(SWEEP, Options(at={"n": 40}))
+    assert isinstance(full.nests[0].extras["traffic"], NestTraffic)
