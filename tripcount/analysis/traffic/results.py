@@ -126,11 +126,13 @@ class NestTraffic:
             else:
                 out.append(f"  into {lv.level:<3} unknown ({c.note or 'no value'})")
         mem = self.memory_bytes()
-        if mem.value is not None:
+        if mem.value is not None and not (mem.value == 0 and mem.bound == "lower"):
             ai = self.intensity()
-            text = f"  from memory {_fmt(mem.value)} B"
+            side = {"upper": "<= ", "lower": ">= "}.get(mem.bound or "", "")
+            text = f"  from memory {side}{_fmt(mem.value)} B"
             if ai is not None:
-                text += f"; intensity {float(ai):.3g} flop/B against this traffic"
+                flip = {"<= ": ">= ", ">= ": "<= "}.get(side, "")
+                text += f"; intensity {flip}{float(ai):.3g} flop/B against this traffic"
             big = self.largest()
             if big is not None:
                 text += (f"; most bytes move into {big.level} (without a machine description the level that "

@@ -33,10 +33,13 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
     per_it: dict[int, tuple[int | Fraction | None, bool]] = {}
     for ws in fp.levels:
         c = ws.per_iteration.lines if ws.per_iteration is not None else None
-        if c is None or c.value is None or getattr(c, "lower_bound", False) or getattr(c, "value_bound", None) == "lower":
+        # a value that leaves out unmodelled references still decides the fit of what is modelled (the
+        # counts then say they are lower bounds); only an upper bound leaves the decision open
+        if c is None or c.value is None:
             per_it[ws.loop.index] = (None, False)
         else:
-            per_it[ws.loop.index] = (c.value, bool(getattr(c, "bound", False)))
+            per_it[ws.loop.index] = (c.value, getattr(c, "value_bound", None) == "upper"
+                                     or (bool(getattr(c, "bound", False)) and not getattr(c, "value_bound", None)))
     an = Analyzer(result, options, budget)
     model = TrafficModel(an, options, budget, per_it)
     line = fp.caches.line_size
