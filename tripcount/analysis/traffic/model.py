@@ -82,7 +82,10 @@ class TrafficModel:
         except (isl.Error, LimitReached):
             return Term(packed=False)
         for name, m in aligned.items():
-            f, _why = _formula(m.wrap(), self.nest.context, self.options, self.fbudget, LINES_TIME_S)
+            try:
+                f, _why = _formula(m.wrap(), self.nest.context, self.options, self.fbudget, LINES_TIME_S)
+            except isl.Error:  # a set the engine cannot count: the value alone (enumerated) stands
+                f = None
             if f is None or formulas is None:
                 formulas = None
             else:
@@ -149,7 +152,8 @@ class TrafficModel:
         stmts = self.an.statements_in(lp)
         if lp.domain is None or any(s.domain is None for s in stmts):
             out.bound = "lower"
-            note = f"loop '{lp.var}' is not modelled: its traffic is left out (the counts are lower bounds)"
+            shown = "for (;;)" if lp.display == "?" else (lp.display or lp.var)
+            note = f"loop '{shown}' is not modelled: its traffic is left out (the counts are lower bounds)"
             if note not in out.notes:
                 out.notes.append(note)
             return
@@ -169,7 +173,7 @@ class TrafficModel:
             if note not in out.notes:
                 out.notes.append(note)
         elif lines is None or upper:
-            note = (f"whether one iteration of loop '{lp.var}' fits is not known exactly; counted as not "
+            note = (f"whether one iteration of loop '{lp.display or lp.var}' fits is not known exactly; counted as not "
                     "fitting (the counts may be too high)")
             if note not in out.notes:
                 out.notes.append(note)

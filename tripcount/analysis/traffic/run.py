@@ -7,10 +7,12 @@ from __future__ import annotations
 
 from fractions import Fraction
 
+import islpy as isl
+
 from tripcount.analysis.footprint.results import NestFootprint
 from tripcount.analysis.footprint.scopes import Analyzer
 from tripcount.analysis.results import NestResult
-from tripcount.analysis.traffic.model import TrafficModel
+from tripcount.analysis.traffic.model import LevelCount, TrafficModel
 from tripcount.analysis.traffic.results import (
     KNOWN_WRONG,
     METHOD,
@@ -51,7 +53,10 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
                    "are shorter than a line"),)
     levels = []
     for lv in fp.caches.levels:
-        cnt = model.level(max(1, lv.size // line))
+        try:
+            cnt = model.level(max(1, lv.size // line))
+        except isl.Error:  # a set the integer-set library refuses: no figure rather than a wrong one
+            cnt = LevelCount(None, None, ["not computed: the integer-set library refused a set of this nest"])
         notes = tuple(cnt.notes) + layout
         lines = TrafficCount(value=cnt.value, formula=cnt.formula, exact=False, bound=cnt.bound,
                              note=None if cnt.formula is not None else
