@@ -151,7 +151,7 @@ def assemble(nest: Nest, outputs: Sequence[Output]) -> NestResult:
 
 def analyses() -> list[Analysis]:
     """The analyses run on every nest, in order (counts first: the others read them)."""
-    from tripcount.analysis import balance, counts, dependences, flops, footprint, verify
+    from tripcount.analysis import balance, counts, dependences, flops, footprint, traffic, verify
 
     return [
         Analysis("counts", counts.analyze, reads=("at", "time_limit", "max_pieces", "verify"), partial=True),
@@ -159,6 +159,8 @@ def analyses() -> list[Analysis]:
         Analysis("footprint", footprint.analyze, needs=("counts", "flops"), produces=("working_set", "footprint", "intensity"),
                  reads=("at", "time_limit", "max_pieces", "line_size", "caches", "elem_size", "solve_for", "detail",
                         "peak_gflops", "bandwidth_gbs")),
+        Analysis("traffic", traffic.analyze, needs=("counts", "flops", "footprint"), produces=("traffic",),
+                 reads=("at", "time_limit", "max_pieces", "line_size", "caches", "elem_size", "detail")),
         Analysis("dependences", dependences.analyze, needs=("counts",), produces=("dependences",),
                  reads=("at", "parallel_lines", "time_limit")),
         Analysis("balance", balance.analyze, needs=("counts", "flops", "dependences"), produces=("parallel",),

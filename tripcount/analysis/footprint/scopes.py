@@ -453,8 +453,9 @@ class Analyzer:
 
 
     # --- reuse
-    def _touch_relation(self, stmts: list[Statement], depth: int) -> dict[str, isl.Map]:
-        """Per array: { L[first depth+1 loop variables] -> cache line (element if size unknown) }."""
+    def _touch_relation(self, stmts: list[Statement], depth: int, packed: bool = True) -> dict[str, isl.Map]:
+        """Per array: { L[first depth+1 loop variables] -> cache line (element if size unknown) }; lines of
+        the packed layout at the --at sizes unless `packed` is false (then the formulas' layout)."""
         rel: dict[str, isl.Map] = {}
         for s in stmts:
             if s.domain is None:  # not modelled: what it touches is unknown (see reuse)
@@ -469,15 +470,20 @@ class Analyzer:
                     m = m.set_dim_name(isl.dim_type.in_, k, f"x{k}")
                 info = self.arrays[a.array]
                 if info.elem:
-                    m = m.apply_range(self._reuse_lines(info, m))
+                    m = m.apply_range(self._reuse_lines(info, m, packed))
                 rel[a.array] = rel[a.array].union(m) if a.array in rel else m
         return rel
 
-    def _reuse_lines(self, info: _ArrayInfo, m: isl.Map) -> isl.Map:
+    def touch_relation(self, stmts: list[Statement], depth: int, packed: bool = True) -> dict[str, isl.Map]:
+        """Per array: the cache lines each value of the first depth+1 loop variables touches (see
+        _touch_relation); depth -1 gives the lines of the whole statement set."""
+        return self._touch_relation(stmts, depth, packed)
+
+    def _reuse_lines(self, info: _ArrayInfo, m: isl.Map, packed: bool = True) -> isl.Map:
         """The line map of reuse: at the --at sizes the packed layout of the values (rows that are not
         a multiple of the line share lines with their neighbours), else the formulas' layout."""
-        ext = inner_extents(info.access, self.at) if self.has_at else None
-        if ext is None or not self.has_at:
+        ext = inner_extents(info.access, self.at) if self.has_at and packed else None
+        if ext is None:
             return line_map(info.access, info.elem or 0, self.line)[0]
         n = m.dim(isl.dim_type.out)
         name = m.get_tuple_name(isl.dim_type.out)
