@@ -95,6 +95,14 @@ def test_pyproject_machine_table_is_read(tmp_path, run_cli, monkeypatch):
     assert "roofline: at least 2 us (model estimate), bound by memory" in out
 
 
+def test_load_config_checks_the_machine_table(tmp_path):
+    from tripcount.config import load_config
+
+    (tmp_path / "pyproject.toml").write_text("[tool.tripcount.machine]\npeak_gflops = 1\n")
+    with pytest.raises(ConfigError, match="memory_gbs .* is required"):
+        load_config(str(tmp_path))
+
+
 def test_machine_command_shows_the_description(run_cli):
     status, out, _ = run_cli("machine", "--machine", str(BOX))
     assert status == 0 and "peak 10 GFLOP/s per core x 2 core(s), memory 8 GB/s" in out

@@ -152,6 +152,11 @@ def check_table(table: Mapping[str, Any], path: str | None) -> None:
                 raise ConfigError(f"{path}: {where}{key} must be {want}, got {_shown(t[key])}")
 
     one(table, "[tool.tripcount] ")
+    if "machine" in table:  # checked when read, as the other keys (tripcount/machine.py)
+        try:
+            machine_of_config(table, path)
+        except MachineError as exc:
+            raise ConfigError(str(exc)) from None
     overrides = table.get("override", [])
     for k, ov in enumerate(overrides if isinstance(overrides, list) else [overrides]):
         if isinstance(ov, dict):
