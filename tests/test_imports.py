@@ -28,7 +28,7 @@ KNOWN_CYCLES: list[frozenset[str]] = []
 # module may import modules of its own rank or lower. Rank 0 holds what every
 # stage may use.
 STAGES: list[set[str]] = [
-    {"", "ir", "diagnostics", "ctable", "paths", "options", "config", "sources", "formula", "names"},
+    {"", "ir", "diagnostics", "ctable", "paths", "options", "config", "sources", "formula", "names", "machine"},
     {"frontend"},
     {"affine"},
     {"model"},
@@ -38,7 +38,7 @@ STAGES: list[set[str]] = [
     {"report"},
     {"pipeline", "compdb", "cache", "cachekeys", "cacheentry"},
     {"cached"},
-    {"gate", "cli", "lsp", "lspframes", "lspworker", "__main__"},
+    {"gate", "cli", "measure", "lsp", "lspframes", "lspworker", "__main__"},
 ]
 
 

@@ -56,6 +56,7 @@ def add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--work", choices=("statements", "flops"), help="work measure of the balance model")
     p.add_argument("--parallel", action="append", type=int, default=[], metavar="LINE",
                    help="treat the loop on LINE as '#pragma omp parallel for' (repeatable)")
+    p.add_argument("--machine", metavar="FILE.toml", help="machine description (peak, bandwidths) for the roofline time estimate")
     p.add_argument("--no-cache", action="store_true", help="do not read or write the result cache")
     p.add_argument("-I", dest="include", action="append", default=[], metavar="DIR",
                    help="look for quoted and angle #include files in DIR too (repeatable)")
@@ -79,6 +80,8 @@ def build_parser() -> argparse.ArgumentParser:
     a.add_argument("--code", metavar="C", help="analyze this C text (a file, a function body or bare loops)")
     a.add_argument("--verify", action="store_true", help="re-check every formula by exact enumeration")
     a.add_argument("--plot", metavar="FILE.png", help="plot the working set of each loop level against one size (needs matplotlib)")
+    a.add_argument("--top", type=int, default=10, metavar="K",
+                   help="nests shown in the ranking by estimated time at the end of a multi-nest report (default 10)")
     a.add_argument("--plot-param", metavar="PARAM", help="the size parameter on the plot's x axis")
     add_common(a)
     c = sub.add_parser("check", help="pre-commit gate: budgets and baseline regressions")
@@ -88,6 +91,15 @@ def build_parser() -> argparse.ArgumentParser:
     sub.add_parser("schema", help="print the JSON Schema of the JSON report")
     s = sub.add_parser("serve", help="run the language server on stdio")
     s.add_argument("--stdio", action="store_true", help="accepted for editor compatibility (stdio is the default)")
+    m = sub.add_parser("machine", help="show the machine description of the roofline estimate, or measure one")
+    m.add_argument("--measure", action="store_true",
+                   help="measure this host: a dense multiply (flops) and a STREAM-like kernel per cache level "
+                        "and memory (needs numpy: pip install 'tripcount[measure]')")
+    m.add_argument("-o", "--output", metavar="FILE.toml", help="write the measured description to FILE.toml")
+    m.add_argument("--budget", type=float, default=3.0, metavar="SECONDS", help="time for the measurement (default 3)")
+    m.add_argument("--machine", metavar="FILE.toml", help="the description to show (default: pyproject.toml's)")
+    m.add_argument("--cache", action="append", default=[], metavar="L1=48KiB",
+                   help="cache level size overriding the host's (sizes the measured arrays; repeatable)")
     k = sub.add_parser("cache", help="manage the result cache")
     k.add_argument("action", choices=("clear", "info"))
     return p
@@ -160,6 +172,8 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     if missing:
         stderr.write(f"tripcount: error: no such file or directory: {missing[0]}\n")
         return EXIT_USAGE
+    if args.top < 1:
+        raise UsageError(f"--top must be at least 1, got {args.top}")
     refused = refusal(args.output, files)
     if refused:
         stderr.write(f"tripcount: error: {refused}\n")
@@ -209,7 +223,7 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     report = Report(files=results, at=options.at, settings=settings_of(options))
     out = open_output(args.output) if args.output else stdout
     try:
-        reporter = get_reporter(args.format, out)
+        reporter = get_reporter(args.format, out, top=args.top)
         if cached:
             from tripcount.report.jsonout import report_json
 
@@ -225,7 +239,7 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     if args.plot:
         from tripcount.report.plot import write_plot
 
-        why = write_plot(report, args.plot, args.plot_param)
+        why = write_plot(report, args.plot, args.plot_param, options.machine)
         if why:
             stderr.write(f"tripcount: error: no plot: {why}\n")
             status = EXIT_USAGE
@@ -271,13 +285,15 @@ def stream_text(snippets: list, n_sources: int, paths: list[str], options: Optio
 
     from tripcount.pipeline import analyze_file
     from tripcount.report.progress import Progress
+    from tripcount.report.ranking import entries_of
     from tripcount.report.text import TextReporter
 
     given_at = given_sizes(args)
     at_text = ", ".join(f"{k}={v}" for k, v in options.at.items())
     held: io.StringIO | None = io.StringIO() if given_at else None
     out: TextIO | None = None if held is not None else (open_output(args.output) if args.output else stdout)
-    reporter = TextReporter(held if held is not None else out)
+    reporter = TextReporter(held if held is not None else out, top=args.top)
+    ranking: list = []
     known: set[str] = set()
     params: set[str] = set()
     codes: set[str] = set()
@@ -293,6 +309,7 @@ def stream_text(snippets: list, n_sources: int, paths: list[str], options: Optio
         params.update(p for nr in fr.nests for p in nr.nest.params)
         known.update(p for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names))
         reporter.write_file(fr, at_text)
+        ranking.extend(entries_of(fr))
         if held is not None and not unknown_sizes(given_at, known)[1]:
             out = open_output(args.output) if args.output else stdout
             out.write(held.getvalue())
@@ -312,6 +329,7 @@ def stream_text(snippets: list, n_sources: int, paths: list[str], options: Optio
             del fr
         if at_unused(given_at, known, stderr):
             return EXIT_USAGE
+        reporter.write_ranking(ranking)
         reporter.write_totals(n_sources + len(paths), n_nests, n_diag, params, options.at)
     finally:
         progress.clear()
@@ -376,6 +394,32 @@ def settings_of(options: Options) -> dict:
     return out
 
 
+def run_machine(args: argparse.Namespace, stdout: TextIO, stderr: TextIO) -> int:
+    """`tripcount machine`: measure this host (--measure), or show the description in use."""
+    options = options_from(args, load_config(os.getcwd()))
+    if args.measure:
+        if not 0 < args.budget <= 600:
+            raise UsageError(f"--budget must be from 0 to 600 seconds, got {args.budget}")
+        refused = refusal(args.output, [])
+        if refused:
+            stderr.write(f"tripcount: error: {refused}\n")
+            return EXIT_USAGE
+        from tripcount.measure import run_measure
+
+        try:
+            run_measure(options, args.output, args.budget, stdout)
+        except ImportError:
+            raise UsageError("--measure needs numpy (pip install 'tripcount[measure]')") from None
+        return EXIT_OK
+    if options.machine is None:
+        from tripcount.analysis.roofline import HINT
+
+        stdout.write(HINT + "\n")
+        return EXIT_OK
+    stdout.write(f"{options.machine.describe()}\n  from {options.machine.source}\n")
+    return EXIT_OK
+
+
 def main(argv: Sequence[str] | None = None, stdin: TextIO | None = None,
          stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
     """Run tripcount with `argv` (without the program name); returns the exit status.
@@ -430,6 +474,8 @@ def _main(argv: Sequence[str] | None, stdin: TextIO | None,
             from tripcount.lsp import serve
 
             return serve()
+        if args.command == "machine":
+            return run_machine(args, stdout, stderr)
         if args.command == "cache":
             from tripcount.cache import run_cache_command
 

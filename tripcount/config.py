@@ -15,6 +15,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field, fields
 from typing import Any
 
+from tripcount.machine import MachineError, load_machine, machine_of_config
 from tripcount.names import mangle
 from tripcount.options import Options
 
@@ -151,6 +152,11 @@ def check_table(table: Mapping[str, Any], path: str | None) -> None:
                 raise ConfigError(f"{path}: {where}{key} must be {want}, got {_shown(t[key])}")
 
     one(table, "[tool.tripcount] ")
+    if "machine" in table:  # checked when read, as the other keys (tripcount/machine.py)
+        try:
+            machine_of_config(table, path)
+        except MachineError as exc:
+            raise ConfigError(str(exc)) from None
     overrides = table.get("override", [])
     for k, ov in enumerate(overrides if isinstance(overrides, list) else [overrides]):
         if isinstance(ov, dict):
@@ -226,6 +232,7 @@ class CommandLine:
     define: tuple[str, ...] = ()  # -D NAME[=VALUE]
     undefine: tuple[str, ...] = ()  # -U NAME
     compile_commands: str | None = None
+    machine: str | None = None  # --machine FILE.toml
 
     @staticmethod
     def of(values: Mapping[str, Any]) -> CommandLine:
@@ -304,6 +311,11 @@ def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), 
             caches[name.strip().upper()] = parse_bytes(size)
     except ValueError as exc:
         raise UsageError(f"--cache: {exc}") from None
+    try:
+        machine = load_machine(given.machine) if given.machine else machine_of_config(
+            table, os.path.join(base, "pyproject.toml") if base else None)
+    except MachineError as exc:
+        raise ConfigError(str(exc)) from None
     d = Options()
     o = Options(
         at=at,
@@ -319,8 +331,9 @@ def build_options(table: Mapping[str, Any], given: CommandLine = CommandLine(), 
         work=given.work or table.get("work", d.work),
         parallel_lines=tuple(given.parallel) + tuple(table.get("parallel", [])),
         imbalance_threshold=float(table.get("imbalance_threshold", d.imbalance_threshold)),
-        peak_gflops=table.get("peak_gflops"),
-        bandwidth_gbs=table.get("bandwidth_gbs"),
+        peak_gflops=table.get("peak_gflops") or (machine.peak_gflops_per_core if machine else None),
+        bandwidth_gbs=table.get("bandwidth_gbs") or (machine.memory_gbs if machine else None),
+        machine=machine,
         detail=detail,
         **_source_flags(table, given, base),
     )

@@ -11,6 +11,8 @@ import json
 from collections.abc import Iterable
 from dataclasses import asdict, dataclass, field
 
+from tripcount.machine import Machine
+
 
 @dataclass(frozen=True)
 class Includes:
@@ -48,6 +50,7 @@ class Options:
     # performance model (optional roofline)
     peak_gflops: float | None = None
     bandwidth_gbs: float | None = None
+    machine: Machine | None = None  # peak and bandwidths of the roofline estimate (tripcount/machine.py)
     # how the sources are read: -I, -D NAME[=VALUE], -U, and a compilation database
     include_dirs: tuple[str, ...] = ()
     defines: tuple[tuple[str, str], ...] = ()

@@ -151,7 +151,7 @@ def assemble(nest: Nest, outputs: Sequence[Output]) -> NestResult:
 
 def analyses() -> list[Analysis]:
     """The analyses run on every nest, in order (counts first: the others read them)."""
-    from tripcount.analysis import balance, counts, dependences, flops, footprint, traffic, verify
+    from tripcount.analysis import balance, counts, dependences, flops, footprint, roofline, traffic, verify
 
     return [
         Analysis("counts", counts.analyze, reads=("at", "time_limit", "max_pieces", "verify"), partial=True),
@@ -165,5 +165,7 @@ def analyses() -> list[Analysis]:
                  reads=("at", "parallel_lines", "time_limit")),
         Analysis("balance", balance.analyze, needs=("counts", "flops", "dependences"), produces=("parallel",),
                  reads=("at", "threads", "work", "parallel_lines", "imbalance_threshold", "time_limit", "max_pieces")),
+        Analysis("roofline", roofline.analyze, needs=("counts", "flops", "footprint", "traffic", "balance"),
+                 produces=("roofline",), reads=("machine", "detail")),
         Analysis("verify", verify.analyze, needs=("counts", "flops"), reads=("verify", "at")),
     ]

@@ -20,6 +20,7 @@ from tripcount.analysis.results import (
 from tripcount.engine.readable import plain_forms
 from tripcount.ir import OmpClauses, Span, c_text
 from tripcount.report.base import Reporter
+from tripcount.report.ranking import DEFAULT_TOP, entries_of_json, ranking_json
 
 SCHEMA_VERSION = 1
 
@@ -127,5 +128,7 @@ class JsonReporter(Reporter):
 
     def write(self, report: Report | dict[str, Any]) -> None:
         """Render `report` (a Report, or its JSON form as the result cache assembles it) as indented JSON."""
-        json.dump(report if isinstance(report, dict) else report_json(report), self.stream, indent=2)
+        doc = report if isinstance(report, dict) else report_json(report)
+        doc["summary"] = ranking_json(entries_of_json(doc["files"]), int(self.options.get("top", DEFAULT_TOP)))
+        json.dump(doc, self.stream, indent=2)
         self.stream.write("\n")

@@ -14,6 +14,7 @@ from typing import Any
 from tripcount import ir
 from tripcount.analysis.results import Count, FileResult, NestResult, Report, StatementResult
 from tripcount.report.base import Reporter
+from tripcount.report.ranking import DEFAULT_TOP, Entry, entries_of, ranking_text
 
 
 def fmt_value(v: Any) -> str:
@@ -73,7 +74,16 @@ class TextReporter(Reporter):
             self.write_file(fr, at)
         n_diag = sum(len(f.all_diagnostics()) for f in report.files)
         params = {p for fr in report.files for nr in fr.nests for p in nr.nest.params}
+        self.write_ranking([e for fr in report.files for e in entries_of(fr)])
         self.write_totals(len(report.files), n_nests, n_diag, params, report.at)
+
+    def write_ranking(self, entries: list[Entry]) -> None:
+        """Where the time goes: the nests ranked by estimated time (report.ranking), before the totals."""
+        lines = ranking_text(entries, int(self.options.get("top", DEFAULT_TOP)))
+        for line in lines:
+            self.stream.write(line + "\n")
+        if lines:
+            self.stream.write("\n")
 
     def write_totals(self, n_files: int, n_nests: int, n_diag: int, params: set[str], at_values: dict) -> None:
         """The closing line: files, nests, diagnostics, and where the values are taken."""

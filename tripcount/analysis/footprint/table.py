@@ -195,11 +195,8 @@ def _flops_lines(nf: NestFootprint, at: str) -> list[str]:
         out.append("arithmetic intensity " + ("at most " if it.upper_bound else "") + "; ".join(parts)
                    + " (model estimate: flops / compulsory bytes, each moved once"
                    + ("; the footprint is a lower bound)" if it.upper_bound else ")"))
-        if it.roofline:
-            r = it.roofline
-            out.append(f"roofline estimate: {'at most ' if it.upper_bound else ''}{r['attainable_gflops']:g} "
-                       f"GFLOP/s attainable, bound by {r['bound_by']} "
-                       f"(model estimate: peak {r['peak_gflops']:g} GFLOP/s, {r['bandwidth_gbs']:g} GB/s)")
+        # the time estimate is the roofline unit's own line (it reads the traffic per level); the
+        # compulsory-bytes figure stays in the JSON (intensity.roofline) only
     return out
 
 
