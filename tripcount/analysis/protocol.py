@@ -151,7 +151,7 @@ def assemble(nest: Nest, outputs: Sequence[Output]) -> NestResult:
 
 def analyses() -> list[Analysis]:
     """The analyses run on every nest, in order (counts first: the others read them)."""
-    from tripcount.analysis import balance, counts, dependences, flops, footprint, verify
+    from tripcount.analysis import balance, counts, dependences, flops, footprint, tiling, verify
 
     return [
         Analysis("counts", counts.analyze, reads=("at", "time_limit", "max_pieces", "verify"), partial=True),
@@ -161,6 +161,8 @@ def analyses() -> list[Analysis]:
                         "peak_gflops", "bandwidth_gbs")),
         Analysis("dependences", dependences.analyze, needs=("counts",), produces=("dependences",),
                  reads=("at", "parallel_lines", "time_limit")),
+        Analysis("tiling", tiling.analyze, needs=("footprint", "dependences"), produces=("tiling",),
+                 reads=("at", "line_size", "caches", "elem_size", "detail", "time_limit")),
         Analysis("balance", balance.analyze, needs=("counts", "flops", "dependences"), produces=("parallel",),
                  reads=("at", "threads", "work", "parallel_lines", "imbalance_threshold", "time_limit", "max_pieces")),
         Analysis("verify", verify.analyze, needs=("counts", "flops"), reads=("verify", "at")),
