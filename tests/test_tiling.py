@@ -150,3 +150,49 @@ def test_hand_tiled_kernels_have_the_predicted_tile_working_sets(function):
         elements, _bytes, lines = per_tile[key]
         assert (elements, lines) == (fit.elements, fit.lines), (function, fit, key)
         assert lines * 64 <= fit.capacity
+
+
+def test_the_unit_reports_in_full_detail_only():
+    from tripcount.pipeline import analyze_text
+
+    full = analyze_text(MATMUL, "mm.c", Options(at={"n": 1000}, caches={"L1": 48 * 1024, "L2": 2 << 20}))
+    (nr,) = full.nests
+    t = nr.extras["tiling"]
+    assert [f.sizes for f in t.fits if f.shape == "equal"] == [(40, 40, 40), (288, 288, 288)]
+    js = t.to_json()
+    assert [b["var"] for b in js["band"]] == ["i", "j", "k"] and js["band"][0]["line"] == 2
+    assert any(line.startswith("tiling: loops i, j, k may be tiled") for line in t.text_lines())
+    notes = [d for d in nr.diagnostics if d.code == "TC405"]
+    assert len(notes) == 1 and "40x40x40 tiles keep one tile's working set (37.5 KiB) in L1" in notes[0].message
+    assert "model estimate" in notes[0].message and "working set per tile only" in notes[0].message
+    # the gate (`check`) does not compute it
+    gate = analyze_text(MATMUL, "mm.c", Options(at={"n": 1000}, detail="gate"))
+    assert "tiling" not in gate.nests[0].extras
+    assert not [d for d in gate.nests[0].diagnostics if d.code in ("TC405", "TC406")]
+
+
+def test_a_blocked_band_is_a_note_naming_the_dependence():
+    from tripcount.pipeline import analyze_text
+
+    src = """void quay_flip(int n, double a[n][n]) {
+    for (int i = 1; i < n; i++)
+        for (int j = 0; j < n - 1; j++)
+            a[i][j] = a[i - 1][j + 1] + 1.0;
+}
+"""
+    (nr,) = analyze_text(src, "f.c", Options(at={"n": 2000})).nests
+    (note,) = [d for d in nr.diagnostics if d.code == "TC406"]
+    assert "flow dependence on a" in note.message and "(+, -)" in note.message and "skewing" in note.message
+
+
+def test_the_best_aspect_has_more_iterations_per_line_than_the_equal_tile():
+    # a Jacobi sweep reads one array with a halo and writes another: the aspect, when given, fits the
+    # same level and reuses each line for more iterations (common practice: long rows, few of them)
+    nest = _nests(os.path.join(ROOT, "corpus", "wave_shallow.c"))["wave_jacobi_step"]
+    t = _advice(nest, {"N": 1000, "M": 1000}, [CacheLevel("L1", 48 * 1024, "configured")])
+    equal = [f for f in t.fits if f.shape == "equal"]
+    aspect = [f for f in t.fits if f.shape == "aspect"]
+    assert equal and aspect and equal[0].sizes[1] % 8 == 0
+    for a in aspect:
+        assert a.bytes <= a.capacity and a.sizes[-1] % 8 == 0
+        assert a.sizes[0] * a.sizes[1] / a.lines > equal[0].sizes[0] * equal[0].sizes[1] / equal[0].lines
