@@ -179,8 +179,9 @@ int main(void)
 
 def access_trace(c_source: str, function: str, param_types: Sequence[ParamType],
                  point: Mapping[str, int], statements: Sequence[tuple[SpanTuple, Sequence[str]]],
-                 timeout: float = 120.0) -> list[Access]:
-    """The accesses of the listed statements to array parameters, in execution order.
+                 timeout: float = 120.0, openmp: bool = True) -> list[Access]:
+    """The accesses of the listed statements to array parameters, in execution order
+    (`openmp` False: built without OpenMP, so a parallel loop runs in order).
 
     statements: (span, loop variables as written in C, outermost first) per
     statement. Integer parameters take their values from `point` (0 when
@@ -202,7 +203,7 @@ def access_trace(c_source: str, function: str, param_types: Sequence[ParamType],
     program = _prelude(arrays) + out + _driver(function, param_types, arrays)
     ints = [n for n, t, p in param_types if not p and not _is_floating(t)]
     stdin = " ".join(str(int(point.get(n, 0))) for n in ints) + "\n"
-    text = _build_and_run(program, openmp_available(), stdin, timeout)
+    text = _build_and_run(program, openmp and openmp_available(), stdin, timeout)
     events = []
     for line in text.splitlines():
         v = [int(x) for x in line.split()]

@@ -32,7 +32,7 @@ def first_nest():
 def test_the_analyses_declare_their_order_and_needs():
     units = analyses()
     names = [u.name for u in units]
-    assert names == ["counts", "flops", "footprint", "traffic", "dependences", "balance", "roofline", "verify"]
+    assert names == ["counts", "flops", "footprint", "traffic", "dependences", "tiling", "balance", "roofline", "verify"]
     for k, u in enumerate(units):
         assert set(u.needs) <= set(names[:k]), u.name  # what it reads ran before
         assert all(hasattr(Options(), r) for r in u.reads), u.name

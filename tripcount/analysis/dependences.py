@@ -72,11 +72,15 @@ class Dependence:
     distance: tuple[int | None, ...]
     reduction: bool
     example: tuple[dict[str, int], dict[str, int]] | None = None
+    # per common loop, the least and largest sink - source difference of its variable (None: unbounded
+    # that way), in the order of the loop variable's values (not of the loop's direction)
+    bounds: tuple[tuple[int | None, int | None], ...] = ()
 
     def to_json(self) -> dict[str, Any]:
-        """kind, array, source, sink, loop index, distance, reduction, example pair."""
+        """kind, array, source, sink, loop index, distance, direction, reduction, example pair."""
         return {"kind": self.kind, "array": self.array, "source": self.source, "sink": self.sink,
-                "loop": self.loop, "distance": list(self.distance), "reduction": self.reduction,
+                "loop": self.loop, "distance": list(self.distance), "direction": direction(self.bounds),
+                "reduction": self.reduction,
                 "example": None if self.example is None else
                 {"source": dict(self.example[0]), "sink": dict(self.example[1])}}
 
@@ -399,25 +403,45 @@ def _only_update_in_loop(refs: Sequence[_Ref], ref: _Ref, loop: int, nest: Nest)
 
 def _dependence(kind: str, src: _Ref, snk: _Ref, loop: int | None, d: isl.Map, common: int,
                 at: dict[str, int] | None, reduction: bool) -> Dependence:
-    deltas = _distances(d, common)
-    example = _example(d, src.stmt, snk.stmt, at) if at else None
+    bounds = _bounds(d, common)
+    deltas = tuple(lo if lo is not None and lo == hi else None for lo, hi in bounds)
+    example = _example(d, src.stmt, snk.stmt, at) if at is not None else None
     return Dependence(kind, src.array.removeprefix("scalar "), src.stmt.id, snk.stmt.id, loop, deltas,
-                      reduction, example)
+                      reduction, example, bounds)
 
 
-def _distances(d: isl.Map, common: int) -> tuple[int | None, ...]:
-    """Per common loop, the constant sink - source difference of its variable (None where it varies)."""
-    out: list[int | None] = []
+def direction(bounds: Sequence[tuple[int | None, int | None]]) -> list[str]:
+    """Direction vector of distance bounds: per loop "0", "+", "-", "0+", "0-" or "*" (any sign)."""
+    out = []
+    for lo, hi in bounds:
+        if lo is not None and hi is not None and lo == hi == 0:
+            out.append("0")
+        elif lo is not None and lo > 0:
+            out.append("+")
+        elif hi is not None and hi < 0:
+            out.append("-")
+        elif lo is not None and lo == 0:
+            out.append("0+")
+        elif hi is not None and hi == 0:
+            out.append("0-")
+        else:
+            out.append("*")
+    return out
+
+
+def _bounds(d: isl.Map, common: int) -> tuple[tuple[int | None, int | None], ...]:
+    """Per common loop, the least and largest sink - source difference of its variable over every size."""
+    out: list[tuple[int | None, int | None]] = []
     for k in range(common):
         diff = d.project_out(_dt.in_, k + 1, d.dim(_dt.in_) - k - 1).project_out(_dt.in_, 0, k)
         diff = diff.project_out(_dt.out, k + 1, diff.dim(_dt.out) - k - 1).project_out(_dt.out, 0, k)
         delta = diff.deltas()
         delta = delta.project_out(_dt.param, 0, delta.dim(_dt.param)) if not delta.is_empty() else delta
         if delta.is_empty():
-            out.append(None)
+            out.append((None, None))
             continue
         lo, hi = delta.dim_min_val(0), delta.dim_max_val(0)
-        out.append(int(lo.to_python()) if lo.is_int() and hi.is_int() and lo.eq(hi) else None)
+        out.append((int(lo.to_python()) if lo.is_int() else None, int(hi.to_python()) if hi.is_int() else None))
     return tuple(out)
 
 
@@ -518,7 +542,8 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
     if full is not None:
         at = full
     time_s = TIME_S if budget is None else max(0.05, min(TIME_S, budget.remaining()))
-    r = dependences(nest, at or None, time_s)
+    # a nest without size parameters has its examples at no sizes at all
+    r = dependences(nest, at if at or not nest.params else None, time_s)
     r = replace(r, summary=summary_text(nest, r))
     result.extras["dependences"] = r
     loops = {lr.loop.index: lr for lr in result.loops}

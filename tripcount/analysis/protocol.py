@@ -151,7 +151,17 @@ def assemble(nest: Nest, outputs: Sequence[Output]) -> NestResult:
 
 def analyses() -> list[Analysis]:
     """The analyses run on every nest, in order (counts first: the others read them)."""
-    from tripcount.analysis import balance, counts, dependences, flops, footprint, roofline, traffic, verify
+    from tripcount.analysis import (
+        balance,
+        counts,
+        dependences,
+        flops,
+        footprint,
+        roofline,
+        tiling,
+        traffic,
+        verify,
+    )
 
     return [
         Analysis("counts", counts.analyze, reads=("at", "time_limit", "max_pieces", "verify"), partial=True),
@@ -163,6 +173,8 @@ def analyses() -> list[Analysis]:
                  reads=("at", "time_limit", "max_pieces", "line_size", "caches", "elem_size", "detail")),
         Analysis("dependences", dependences.analyze, needs=("counts",), produces=("dependences",),
                  reads=("at", "parallel_lines", "time_limit")),
+        Analysis("tiling", tiling.analyze, needs=("footprint", "dependences"), produces=("tiling",),
+                 reads=("at", "line_size", "caches", "elem_size", "detail", "time_limit")),
         Analysis("balance", balance.analyze, needs=("counts", "flops", "dependences"), produces=("parallel",),
                  reads=("at", "threads", "work", "parallel_lines", "imbalance_threshold", "time_limit", "max_pieces")),
         Analysis("roofline", roofline.analyze, needs=("counts", "flops", "footprint", "traffic", "balance"),

@@ -50,3 +50,23 @@ class FootprintRefused(Diagnostic):
     severity = "note"
     title = "footprint-unknown"
     template = "working sets of {what} unknown: {reason}"
+
+
+class TilingAdvice(Diagnostic):
+    """A nest whose working sets exceed a cache level has a band of loops that may be tiled
+    rectangularly; the tile sizes whose one-tile working set fits each level are given."""
+
+    code = "TC405"
+    severity = "note"
+    title = "tiling-advice"
+    template = "loops {loops} may be tiled; {advice} (at {at}; {assumptions})"
+
+
+class TilingBlocked(Diagnostic):
+    """A nest whose working sets exceed a cache level, where no band of two loops may be tiled
+    rectangularly: the dependence that prevents it, and whether skewing would help."""
+
+    code = "TC406"
+    severity = "note"
+    title = "tiling-not-legal"
+    template = "loops {loops} may not be tiled rectangularly: {reason}; {skewing}"
