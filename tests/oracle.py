@@ -558,18 +558,21 @@ int main(void)
 
 
 def gcov_line_counts(c_source: str, function: str, param_types: Sequence[ParamType],
-                     points: Sequence[Mapping[str, int]], timeout: float = DEFAULT_TIMEOUT
-                     ) -> list[dict[int, int]]:
+                     points: Sequence[Mapping[str, int]], timeout: float = DEFAULT_TIMEOUT,
+                     openmp: bool | None = None) -> list[dict[int, int]]:
     """Execution counts per source line (gcov), per point, of the *unmodified* function.
 
     An independent reference for the instrumented counts: the same driver
     calls the original code built with --coverage (atomic counter updates, for
     OpenMP). Lines gcov calls non-executable are absent from the result.
+    `openmp=False` builds without OpenMP (the pragmas ignored, the counts the
+    same): gcc's coverage does not report the lines of a parallel region that
+    is nested inside another loop.
     """
     if shutil.which("gcov") is None:
         raise OracleError("gcov not found")
     program = _prelude(0, [], False, "input.c") + c_source + _driver(function, param_types, [], 0, False)
-    openmp = openmp_available()
+    openmp = openmp_available() if openmp is None else openmp
     with tempfile.TemporaryDirectory(prefix="tripcount-gcov-") as tmp:
         with open(os.path.join(tmp, "input.c"), "w", encoding="utf-8") as f:
             f.write(c_source)

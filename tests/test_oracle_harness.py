@@ -368,7 +368,10 @@ def test_instrumented_counts_equal_gcov_on_the_corpus(path: Path):
         if not spans:
             continue
         mine = oracle.count_statements(text, fname, spans, ptypes, points, path=str(path))
-        ref = oracle.gcov_line_counts(text, fname, ptypes, points)
+        # without OpenMP where a parallel loop sits inside another loop: gcc's coverage leaves
+        # the lines of such a region out (the counts are the same either way)
+        nested_omp = re.search(r"for \([^)]*\)[^;{]*\n\s*#pragma omp parallel", text) is not None
+        ref = oracle.gcov_line_counts(text, fname, ptypes, points, openmp=False if nested_omp else None)
         for p, (row, lines) in enumerate(zip(mine, ref, strict=True)):
             for span, got in zip(spans, row, strict=True):
                 if span[0] in lines:

@@ -50,7 +50,6 @@ if TYPE_CHECKING:
     from tripcount.budget import Budget
 
 _dt = isl.dim_type
-DEFAULT_SIZE = 1024  # each size parameter, when no --at size is given
 MAX_TILE = 1024  # largest tile size searched per loop
 TIME_S = 2.0
 ASSUMPTIONS = ("model estimate: one tile at an interior position, its origin a multiple of the tile from the "
@@ -481,8 +480,11 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
     deps = result.extras.get("dependences")
     if options.gate or deps is None or not deps.complete or not nest.loops or not _exceeds(result):
         return
-    full = options.sizes(nest.params)
-    at = full if full is not None else {p: options.at.get(p, DEFAULT_SIZE) for p in nest.params}
+    # advice only where the user gave sizes: "exceeds a cache level" needs them (as TC401 does), and
+    # advice at invented sizes would be one more note on every nest
+    at = options.sizes(nest.params)
+    if at is None:
+        return
     caches = hierarchy(options)
     levels = [lv for lv in caches.levels if lv.name in ("L1", "L2")] or caches.levels[:2]
     time_s = TIME_S if budget is None else max(0.05, min(TIME_S, budget.remaining()))
