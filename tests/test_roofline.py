@@ -21,6 +21,19 @@ from tripcount.machine import Machine
 from tripcount.options import Options
 from tripcount.pipeline import analyze_text
 
+
+@pytest.fixture(autouse=True)
+def compulsory_only(monkeypatch, request):
+    """The hand figures here are those of the compulsory-bytes path: the traffic unit is left out
+    (a test marked `with_traffic` keeps it; the traffic path's own figures are in tests/test_traffic.py)."""
+    if request.node.get_closest_marker("with_traffic"):
+        return
+    from tripcount import pipeline
+    from tripcount.analysis import protocol
+
+    every = protocol.analyses
+    monkeypatch.setattr(pipeline, "analyses", lambda: [a for a in every() if a.name != "traffic"])
+
 BOX = Machine(peak_gflops_per_core=10.0, cores=2, memory_gbs=8.0,
               cache_gbs=(("L1", 100.0), ("L2", 40.0), ("L3", 20.0)), name="Velin test box")
 MATMUL = """void quay_loads(int N, double A[N][N], double B[N][N], double C[N][N]) {
@@ -141,3 +154,11 @@ def test_json_fields_and_rounding():
 @pytest.mark.parametrize("s, text", [(2.5, "2.5 s"), (0.0412, "41.2 ms"), (7.5e-6, "7.5 us"), (1.2e-8, "12 ns")])
 def test_fmt_seconds(s, text):
     assert roofline.fmt_seconds(s) == text
+
+
+@pytest.mark.with_traffic
+def test_memory_bytes_come_from_the_traffic_analysis():
+    """With the traffic unit in the pipeline, a streaming saxpy moves each line of x and y once from memory:
+    2N doubles = 16N bytes (the same as its compulsory bytes; what changes is where the figure comes from)."""
+    r = estimate(SAXPY, 1000)
+    assert r.memory_from == "traffic" and r.memory_bytes == 16000
