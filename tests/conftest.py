@@ -56,3 +56,16 @@ def private_cache(tmp_path_factory, monkeypatch):
     monkeypatch.delenv("PRE_COMMIT", raising=False)
     monkeypatch.delenv("PRE_COMMIT_FROM_REF", raising=False)
     return path
+
+
+@pytest.fixture
+def compulsory_only(monkeypatch, request):
+    """The pipeline without the traffic unit (memory bytes then come from the compulsory footprint), for
+    tests whose hand figures are those of that path; a test marked `with_traffic` keeps the unit."""
+    if request.node.get_closest_marker("with_traffic"):
+        return
+    from tripcount import pipeline
+    from tripcount.analysis import protocol
+
+    every = protocol.analyses
+    monkeypatch.setattr(pipeline, "analyses", lambda: [a for a in every() if a.name != "traffic"])

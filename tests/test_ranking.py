@@ -14,18 +14,7 @@ import pytest
 from tripcount.report.ranking import Entry, ranked, ranking_json, ranking_text
 from tripcount.report.schema import report_errors
 
-
-@pytest.fixture(autouse=True)
-def compulsory_only(monkeypatch, request):
-    """The hand figures here are those of the compulsory-bytes path: the traffic unit is left out
-    (a test marked `with_traffic` keeps it; the traffic path's own figures are in tests/test_traffic.py)."""
-    if request.node.get_closest_marker("with_traffic"):
-        return
-    from tripcount import pipeline
-    from tripcount.analysis import protocol
-
-    every = protocol.analyses
-    monkeypatch.setattr(pipeline, "analyses", lambda: [a for a in every() if a.name != "traffic"])
+pytestmark = pytest.mark.usefixtures("compulsory_only")
 
 HERE = Path(__file__).parent / "inputs" / "roofline"
 QUAYS, BOX = str(HERE / "quays.c"), str(HERE / "box.toml")

@@ -21,18 +21,7 @@ from tripcount.machine import Machine
 from tripcount.options import Options
 from tripcount.pipeline import analyze_text
 
-
-@pytest.fixture(autouse=True)
-def compulsory_only(monkeypatch, request):
-    """The hand figures here are those of the compulsory-bytes path: the traffic unit is left out
-    (a test marked `with_traffic` keeps it; the traffic path's own figures are in tests/test_traffic.py)."""
-    if request.node.get_closest_marker("with_traffic"):
-        return
-    from tripcount import pipeline
-    from tripcount.analysis import protocol
-
-    every = protocol.analyses
-    monkeypatch.setattr(pipeline, "analyses", lambda: [a for a in every() if a.name != "traffic"])
+pytestmark = pytest.mark.usefixtures("compulsory_only")
 
 BOX = Machine(peak_gflops_per_core=10.0, cores=2, memory_gbs=8.0,
               cache_gbs=(("L1", 100.0), ("L2", 40.0), ("L3", 20.0)), name="Velin test box")
