@@ -140,7 +140,7 @@ def test_json_fields_and_rounding():
     assert j["machine"]["name"] == "Velin test box" and any("vectorisation" in a for a in j["assumptions"])
 
 
-@pytest.mark.parametrize("s, text", [(2.5, "2.5 s"), (0.0412, "41.2 ms"), (7.5e-6, "7.5 us"), (1.2e-8, "12 ns")])
+@pytest.mark.parametrize("s, text", [(4910, "1.36 h"), (189, "3.15 min"), (2.5, "2.5 s"), (0.0412, "41.2 ms"), (7.5e-6, "7.5 us"), (1.2e-8, "12 ns")])
 def test_fmt_seconds(s, text):
     assert roofline.fmt_seconds(s) == text
 

@@ -157,10 +157,10 @@ class Roofline:
 
 
 def fmt_seconds(s: float | None) -> str:
-    """A time with a readable unit: 3.2 s, 41 ms, 7.5 us, 12 ns."""
+    """A time with a readable unit: 1.36 h, 82 min, 3.2 s, 41 ms, 7.5 us, 12 ns."""
     if s is None:
         return "-"
-    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("us", 1e-6)):
+    for unit, scale in (("h", 3600.0), ("min", 60.0), ("s", 1.0), ("ms", 1e-3), ("us", 1e-6)):
         if s >= scale:
             return f"{s / scale:.3g} {unit}"
     return f"{s / 1e-9:.3g} ns"
