@@ -135,8 +135,8 @@ class NestTraffic:
                 text += f"; intensity {flip}{float(ai):.3g} flop/B against this traffic"
             big = self.largest()
             if big is not None:
-                text += (f"; most bytes move into {big.level} (without a machine description the level that "
-                         "limits is named by bytes moved only)")
+                text += (f"; most bytes move into {big.level} (which level limits the time needs the bandwidths: "
+                         "the roofline line, given a machine description)")
             out.append(text)
         notes = sorted({a for lv in self.levels for a in lv.assumptions if a not in (MODEL, METHOD, KNOWN_WRONG)})
         out.extend(f"  note: {n}" for n in notes)
