@@ -5,7 +5,7 @@
 from __future__ import annotations
 
 import re
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from tripcount import ir
 from tripcount.affine.convert import Converter, NotAffine
@@ -34,7 +34,7 @@ from tripcount.affine.lin import (
     var,
 )
 from tripcount.affine.nests import ALoop
-from tripcount.affine.walkctx import _Ctx, _Resolver
+from tripcount.affine.walkctx import Builder, _Ctx, _Resolver
 from tripcount.affine.writes import write_target
 from tripcount.ctable import base_type, is_floating_type
 from tripcount.diagnostics import Diagnostic
@@ -52,11 +52,8 @@ from tripcount.diagnostics.model import (
 )
 from tripcount.ir import c_text
 
-if TYPE_CHECKING:
-    from tripcount.affine.build import _NestBuilder
 
-
-def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str, tuple[Any, ...]]) -> Diagnostic | None:
+def loop_header(b: Builder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str, tuple[Any, ...]]) -> Diagnostic | None:
     """Fill lp.constraint/step from the header; returns the refusal, if any."""
     label = loop_label(lp.display, lp.header)
     hdr = s.header
@@ -218,7 +215,7 @@ def loop_header(b: _NestBuilder, s: ir.For, lp: ALoop, ctx: _Ctx, env: dict[str,
     lp.constraint = conj(parts + extra)
     return None
 
-def bound_diag(b: _NestBuilder, err: NotAffine, label: str, part: str, whole: ir.Expr) -> Diagnostic:
+def bound_diag(b: Builder, err: NotAffine, label: str, part: str, whole: ir.Expr) -> Diagnostic:
     node = err.node if isinstance(err.node, ir.Expr) else whole
     span = err.node.span if err.node is not None else whole.span
     if err.kind == "array":

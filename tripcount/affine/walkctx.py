@@ -3,15 +3,29 @@
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import Any, Protocol
 
 from tripcount import ir
 from tripcount.affine.convert import NotAffine
 from tripcount.affine.lin import Cond, Lin, var
 from tripcount.diagnostics import Diagnostic
+from tripcount.ir import Span
 
-if TYPE_CHECKING:
-    from tripcount.affine.build import _NestBuilder
+
+class Builder(Protocol):
+    """What the walk needs of the nest builder (affine/build.py): diagnostics and symbol notes.
+
+    Declared here, below the builder, so that the helpers the builder calls
+    do not import it back.
+    """
+
+    symbols_noted: set[tuple[Any, ...]]
+    _pending_symbols: list[tuple[tuple[Any, ...], Span]]
+    info: Any  # the declarations of the function (affine/decls.py)
+
+    def diag(self, cls: type[Diagnostic], span: Span, **args: Any) -> Diagnostic: ...
+
+    def symbol(self, node: ir.Expr, text: str, res: _Resolver) -> Lin: ...
 
 
 @dataclass
@@ -36,7 +50,7 @@ class _Ctx:
 class _Resolver:
     """Name lookup for conversions inside a nest (or before it, for invariant locals)."""
 
-    def __init__(self, builder: _NestBuilder, env: dict[str, tuple[Any, ...]] | None, loop_ok: bool = True) -> None:
+    def __init__(self, builder: Builder, env: dict[str, tuple[Any, ...]] | None, loop_ok: bool = True) -> None:
         self.b = builder
         self.env = env or {}
         self.loop_ok = loop_ok

@@ -2,16 +2,23 @@
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import Protocol
 
 from tripcount import ir
+from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics import source as d
-from tripcount.frontend.lexer import Tok
+from tripcount.frontend.lexer import SourceMap, Tok
 from tripcount.frontend.scanner import skip_parens, split_commas
 from tripcount.frontend.vocab import OMP_DIRECTIVES, SCHEDULE_KINDS
 
-if TYPE_CHECKING:
-    from tripcount.frontend.parser import UnitParser
+
+class UnitParser(Protocol):
+    """What clause reading needs of the unit parser (parser.UnitParser), declared here so it is not imported back."""
+
+    smap: SourceMap
+    diags: list[Diagnostic]
+
+    def parse_expr(self, toks: list[Tok]) -> ir.Expr | None: ...
 
 
 def omp_clauses(up: UnitParser, p: Tok) -> ir.OmpClauses | None:

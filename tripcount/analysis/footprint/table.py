@@ -4,13 +4,26 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import TYPE_CHECKING
+from typing import Any, Protocol
 
 from tripcount.analysis.caches import CacheHierarchy, fmt_bytes
 from tripcount.analysis.results import Count
 
-if TYPE_CHECKING:
-    from tripcount.analysis.footprint.results import NestFootprint
+
+class NestFootprint(Protocol):
+    """The fields of a nest's footprint result (results.NestFootprint) that the table shows.
+
+    Declared here so that the result, which renders itself through this
+    module, is not imported back.
+    """
+
+    footprint: Any  # results.Footprint
+    levels: list[Any]  # results.WorkingSet per loop level
+    caches: CacheHierarchy
+    at: dict[str, int]
+    flops: Any  # flops.Flops or None
+    intensity: Any  # results.Intensity or None
+    sized: bool
 
 def _fmt_at(at: Mapping[str, int]) -> str:
     return ", ".join(f"{k}={v}" for k, v in at.items()) or "any size"

@@ -11,18 +11,38 @@ import itertools
 import math
 from collections.abc import Mapping, Sequence
 from fractions import Fraction
-from typing import TYPE_CHECKING, Any
+from typing import Any, Protocol
 
 import islpy as isl
 
 from tripcount import engine
 from tripcount.analysis.footprint.isets import _in_context, _outer_at, fix_params, points
 from tripcount.analysis.footprint.quantities import _Quantity
-from tripcount.analysis.footprint.results import Footprint, Worst
-from tripcount.model import Statement
+from tripcount.analysis.footprint.results import FCount, Footprint, Worst
+from tripcount.model import Nest, Statement
 
-if TYPE_CHECKING:
-    from tripcount.analysis.footprint.scopes import Analyzer
+
+class Analyzer(Protocol):
+    """What the worst-case search needs of the per-nest footprint analyzer (scopes.Analyzer).
+
+    Declared here so that the search, which the analyzer calls, does not import it back.
+    """
+
+    nest: Nest
+    at: dict[str, int]
+    has_at: bool
+    probes: list[dict[str, int]]
+
+    def _quantities(self, stmts: list[Statement], n: int, restrict: isl.Set | None,
+                    context: isl.Set | None, line_formulas: bool = True) -> dict[str, Any]: ...
+
+    def _totals(self, aq: dict[str, Any]) -> dict[str, _Quantity | None]: ...
+
+    def _count(self, q: _Quantity | None, fixed: tuple[str, ...], outer: isl.Set | None,
+               unknown: str = "element size unknown") -> FCount: ...
+
+    def _max(self, q: _Quantity, outer: isl.Set, fixed: tuple[str, ...],
+             sizes: Mapping[str, int]) -> tuple[int | Fraction, dict[str, int] | None] | None: ...
 
 # --- worst case over the fixed variables
 def worst_case(an: Analyzer, fp: Footprint, stmts: list[Statement], fixed: tuple[str, ...], outer: isl.Set,
