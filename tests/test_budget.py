@@ -186,3 +186,26 @@ def test_limit_seconds_is_usable():
     assert bd.limit_seconds(float("nan")) == bd.DEFAULT_TIME_LIMIT == 20
     assert bd.limit_seconds(float("inf")) == bd.MAX_TIME_LIMIT_S
     assert bd.limit_seconds(-1) == 20 and bd.limit_seconds("x") == 20 and bd.limit_seconds(3) == 3
+
+
+def test_whether_a_limit_was_a_matter_of_time_is_its_type_not_its_text():
+    from tripcount.budget import EnumerationLimit, LimitReached, TimeLimit, time_dependent
+
+    assert time_dependent(TimeLimit("share spent"))
+    assert time_dependent(EnumerationLimit("enumeration too long"))
+    # the words of a message decide nothing: a piece limit that mentions time is still a piece limit
+    assert not time_dependent(LimitReached("more than 64 pieces (time limit not reached)"))
+
+
+def test_no_decision_searches_a_message_of_ours_for_words():
+    # the only message texts read are isl's (its quota error), which has no other channel
+    import re
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parent.parent / "tripcount"
+    found = []
+    for p in root.rglob("*.py"):
+        for k, line in enumerate(p.read_text(encoding="utf-8").splitlines(), 1):
+            if re.search(r"""["'][a-z ]+["'] in (str\(exc\)|reason|message|.*\.message)\b""", line):
+                found.append(f"{p.relative_to(root)}:{k}: {line.strip()}")
+    assert not found, found

@@ -90,6 +90,12 @@ class EnumerationLimit(LimitReached):
     """An exact enumeration that cannot finish within the budget's remaining time."""
 
 
+def time_dependent(exc: BaseException) -> bool:
+    """Whether a limit was a matter of time (a less busy machine may do better: the result is
+    not cached), as opposed to the size of the problem (pieces, an unbounded set)."""
+    return isinstance(exc, TimeLimit | EnumerationLimit)
+
+
 def limit_seconds(value: Any) -> float:
     """A time limit made usable: NaN, non-numbers and non-positive values give the
     default, and at most MAX_TIME_LIMIT_S."""

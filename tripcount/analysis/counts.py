@@ -19,7 +19,7 @@ import islpy as isl
 
 from tripcount import engine
 from tripcount.analysis.results import Count, LoopResult, NestResult, StatementResult
-from tripcount.budget import Budget
+from tripcount.budget import Budget, TimeLimit, time_dependent
 from tripcount.diagnostics import Diagnostic
 from tripcount.diagnostics.engine import FormulaLimit, VerifyMismatch, VerifyPassed
 from tripcount.engine.islconv import val_int
@@ -90,7 +90,7 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
     try:
         limits = limits_of(options, budget)
         if limits.time_s < MIN_FORMULA_S:
-            raise engine.EngineLimit(f"time limit of {options.time_limit:g} s per nest spent before this count")
+            raise TimeLimit(f"time limit of {options.time_limit:g} s per nest spent before this count")
         formula = engine.count(s, context_for(s, nest.context), limits)
     except engine.EngineLimit as exc:
         v = None
@@ -101,9 +101,8 @@ def count_set(s: isl.Set, nest: Nest, options: Options, what: str, span: Span,
             fallback = "no value either"
         if v is None and not options.at:
             fallback = "give --at sizes for exact values"
-        # EngineLimit carries no kind yet: its text says whether a time limit stopped it
         diags.append(FormulaLimit(span, what=what, reason=str(exc), fallback=fallback,
-                                  time_bound="time" in str(exc)))
+                                  time_bound=time_dependent(exc)))
         return Count(value=v, formula=None, note="formula not available: " + str(exc))
     c = Count(value=value_at(formula, s, options), formula=formula)
     c.locate(options.sizes(params_of(s)))
@@ -174,7 +173,7 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
             try:
                 limits = limits_of(options, budget)
                 if limits.time_s < MIN_FORMULA_S:
-                    raise engine.EngineLimit("no time left")
+                    raise TimeLimit("no time left")
                 pw = engine.count(local, reach.coalesce(), limits)
                 per_entry = Count(value=None, formula=pw)
                 per_entry.locate(middle_point(reach, loop.depth, options))

@@ -27,7 +27,7 @@ from math import lcm
 
 import islpy as isl
 
-from tripcount.budget import Budget, LimitReached
+from tripcount.budget import Budget, LimitReached, TimeLimit
 from tripcount.engine.faulhaber import antidifference, sum_interval
 from tripcount.engine.islconv import aff_to_lin, bset_constraints, bset_divs, val_frac
 from tripcount.engine.qpoly import Floor, QPoly, atom_period, lin_scale, poly_period
@@ -64,7 +64,7 @@ class _State:
 
     def check(self, what: str) -> None:
         if time.monotonic() > self.deadline:
-            raise EngineLimit(f"time limit of {self.limits.time_s} s exceeded ({what})")
+            raise TimeLimit(f"time limit of {self.limits.time_s} s exceeded ({what})")
 
 
 def _names(s) -> list[str]:

@@ -25,7 +25,7 @@ from tripcount.analysis.footprint.isets import (
     points,
 )
 from tripcount.analysis.footprint.results import FCount
-from tripcount.budget import Budget
+from tripcount.budget import Budget, time_dependent
 from tripcount.model import Nest
 from tripcount.options import Options
 
@@ -36,6 +36,18 @@ ELEMENTS_TIME_S = 1.0  # per element-count formula
 LINES_TIME_S = 0.4  # per line-count formula (floors make these the hard ones)
 
 
+@dataclass(frozen=True, order=True)
+class Missing:
+    """Why a quantity has no formula; `time_bound` when a time limit, not the set, was the cause
+    (such a result is not cached: a less busy run may find the formula)."""
+
+    text: str
+    time_bound: bool = False
+
+    def __str__(self) -> str:
+        return self.text
+
+
 def formula_budget(nest_budget: Budget | None, options: Options) -> Budget:
     """The footprint formulas' share of the nest's budget: BUDGET_S at most (a budget of
     its own when the analysis runs outside the driver)."""
@@ -44,10 +56,10 @@ def formula_budget(nest_budget: Budget | None, options: Options) -> Budget:
 
 
 def _formula(s: isl.Set, context: isl.Set | None, options: Options, budget: Budget,
-             cap: float) -> tuple[Any, str | None]:
+             cap: float) -> tuple[Any, Missing | None]:
     """Engine count of `s` (formula, None) or (None, reason), within `cap` seconds and the budget."""
     left = budget.remaining()
-    spent = f"the footprint analysis's time budget ({budget.time_limit:g} s per nest) is used up"
+    spent = Missing(f"the footprint analysis's time budget ({budget.time_limit:g} s per nest) is used up", True)
     if left <= 0:
         return None, spent
     allowed = min(options.time_limit, left, cap)
@@ -57,9 +69,10 @@ def _formula(s: isl.Set, context: isl.Set | None, options: Options, budget: Budg
     except engine.EngineLimit as exc:
         if budget.remaining() <= 0:
             return None, spent
-        if allowed < options.time_limit and "time" in str(exc):
-            return None, f"no formula within the footprint analysis's time of {allowed:.2g} s per formula"
-        return None, str(exc)
+        timed = time_dependent(exc)
+        if allowed < options.time_limit and timed:
+            return None, Missing(f"no formula within the footprint analysis's time of {allowed:.2g} s per formula", True)
+        return None, Missing(str(exc), timed)
 
 
 def _eval(formula: Any, values: Mapping[str, int]) -> int | Fraction:
@@ -80,7 +93,7 @@ class _Quantity:
 
     sets: list[tuple[isl.Set, int]]
     formula: Any
-    reason: str | None = None
+    reason: Missing | None = None
     budget: Budget | None = field(default=None, compare=False)  # bounds the enumerations of `at`
 
     def at(self, values: Mapping[str, int]) -> int | Fraction | None:
@@ -109,9 +122,9 @@ def _sum(qs: list[_Quantity], zero: Any) -> _Quantity:
     reasons = [q.reason for q in qs if q.reason]
     budget = next((q.budget for q in qs if q.budget is not None), None)
     if any(q.formula is None for q in qs):
-        return _Quantity(sets, None, reasons[0] if reasons else "formula not available", budget)
+        return _Quantity(sets, None, reasons[0] if reasons else Missing("formula not available"), budget)
     if not qs:
-        return _Quantity([], zero, None if zero is not None else "counting engine not available")
+        return _Quantity([], zero, None if zero is not None else Missing("counting engine not available"))
     return _Quantity(sets, neutral_add_all([q.formula for q in qs]), None, budget)
 
 

@@ -151,6 +151,7 @@ class Footprint:
     quantities: dict[str, Any] = field(default_factory=dict, repr=False)  # totals, for evaluation
     typical_piece: int | None = None  # piece holding for most outer values at the --at sizes (text)
     lower_bound: bool = False  # references of the scope are left out (the notes say which)
+    time_limited: bool = False  # a formula is missing because a time limit stopped it (not cached)
 
     def to_json(self) -> dict[str, Any]:
         """The footprint shape of the JSON report."""

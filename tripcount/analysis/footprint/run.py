@@ -112,7 +112,9 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
         an._mark_lower_bound(nest_fp, "statements that could not be modelled are left out ("
                              + ", ".join(s.id for s in refused_stmts) + ")")
     limit_notes: list[str] = []
+    timed = False
     for fp in [nest_fp] + [w.whole for w in levels] + [w.per_iteration for w in levels if w.per_iteration]:
+        timed = timed or fp.time_limited
         for note in fp.notes:
             if note.startswith("formula not available") and note not in limit_notes:
                 limit_notes.append(note)
@@ -124,7 +126,7 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
             fallback = f"give --at sizes (for {', '.join(missing)}) for exact values"
         reason = limit_notes[0][len("formula not available ("):].rsplit("):", 1)[0]
         diags.append(FootprintLimit(nest.span, what="some working sets of this nest", reason=reason,
-                                    fallback=fallback, time_bound="time" in reason))
+                                    fallback=fallback, time_bound=timed))
     nf = NestFootprint(nest_fp, levels, an.caches, dict(an.at) if an.has_at else {}, total_flops,
                        sized=an.has_at or not nest.params)
     nf.intensity = intensity(total_flops, nest_fp, nest, options)

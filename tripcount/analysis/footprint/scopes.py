@@ -36,6 +36,7 @@ from tripcount.analysis.footprint.isets import (
 from tripcount.analysis.footprint.quantities import (
     ELEMENTS_TIME_S,
     LINES_TIME_S,
+    Missing,
     _formula,
     _Quantity,
     _scaled_count,
@@ -171,7 +172,7 @@ class Analyzer:
         return [s for s in self.nest.statements if loop.index in s.loops]
 
     # --- quantities
-    def _formula(self, s: isl.Set, context: isl.Set | None, cap: float) -> tuple[Any, str | None]:
+    def _formula(self, s: isl.Set, context: isl.Set | None, cap: float) -> tuple[Any, Missing | None]:
         """Engine count with a per-call time cap; identical sets are counted once per nest."""
         key = (str(s), str(context))
         if key not in self._formulas:
@@ -209,7 +210,7 @@ class Analyzer:
                 if line_formulas:
                     g, why2 = self._formula(lset, context, LINES_TIME_S)
                 else:
-                    g, why2 = None, "not computed for one iteration"
+                    g, why2 = None, Missing("not computed for one iteration")
                 lines = _Quantity([(lset, 1)], g, why2, self.limit)
             out[name] = (elems, lines, layout)
         return out
@@ -291,7 +292,8 @@ class Analyzer:
         if n and outer is not None and self.has_at:
             fp.typical_piece = self._typical_piece(tot_el.formula, outer, fixed, tot_el.worst_at)
         if reasons:
-            fp.notes.append("formula not available (" + "; ".join(reasons) + "): values at the --at sizes only")
+            fp.notes.append("formula not available (" + "; ".join(map(str, reasons)) + "): values at the --at sizes only")
+            fp.time_limited = any(r.time_bound for r in reasons)
         missing = self.left_out(stmts)
         if missing:
             self._mark_lower_bound(fp, "references that are not modelled are left out (" + ", ".join(missing)
