@@ -257,25 +257,31 @@ def test_use_cache_false_writes_nothing(cache_dir):
     assert not cache_dir.exists()
 
 
-def test_warm_path_imports_no_engine(tmp_path, cache_dir):
-    src = tmp_path / "tide.c"
-    src.write_text(TIDE)
+def _heavy_modules_after(argv: list[str], cache_dir: Path) -> str:
+    """Run `tripcount ARGV` in a fresh interpreter; prints its status, the heavy modules it
+    loaded and whether it wrote a report."""
     env = {**os.environ, "TRIPCOUNT_CACHE_DIR": str(cache_dir), "PYTHONPATH": str(ROOT)}
     probe = (
         "import sys, io\n"
         "from tripcount.cli import main\n"
-        f"status = main(['check', {str(src)!r}], stdout=io.StringIO(), stderr=io.StringIO())\n"
+        "out = io.StringIO()\n"
+        f"status = main({argv!r}, stdout=out, stderr=io.StringIO())\n"
         "heavy = [m for m in ('islpy', 'sympy', 'tripcount.engine', 'tripcount.model') if m in sys.modules]\n"
-        "print(status, heavy)\n"
+        "print(status, heavy, len(out.getvalue()) > 200)\n"
     )
-    cold = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
-    assert cold.stdout.startswith("0 ") and "islpy" in cold.stdout
-    warm = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
-    assert warm.stdout.strip() == "0 []", warm.stdout + warm.stderr
+    run = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
+    return run.stdout.strip() + run.stderr
+
+
+def test_warm_path_imports_no_engine(tmp_path, cache_dir):
+    src = tmp_path / "tide.c"
+    src.write_text(TIDE)
+    cold = _heavy_modules_after(["check", str(src)], cache_dir)
+    assert cold.startswith("0 ") and "islpy" in cold
+    assert _heavy_modules_after(["check", str(src)], cache_dir).startswith("0 [] ")
     # a comment edit: nests from the cache, still no engine
     src.write_text("/* edited */\n" + TIDE)
-    edited = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=300)
-    assert edited.stdout.strip() == "0 []", edited.stdout + edited.stderr
+    assert _heavy_modules_after(["check", str(src)], cache_dir).startswith("0 [] ")
 
 
 def test_file_with_errors_and_unicode(cache_dir):
@@ -387,3 +393,66 @@ def test_damaged_file_entries_are_misses(cache_dir, run_cli):
         entry.write_text(bad if isinstance(bad, str) else json.dumps(bad))
         status, out, _ = run_cli("check", "--format", "json", src)
         assert status == 0 and out == clean and "TC9" not in out
+
+
+# --------------------------------------------------------------------------
+# The text report of `analyze`, kept per file
+
+
+def _text_entries(cache_dir: Path) -> list[Path]:
+    return sorted((cache_dir / "v1" / "text").rglob("*.json"))
+
+
+def test_text_report_from_the_cache_equals_the_fresh_one(cache_dir, run_cli, tmp_path):
+    src = tmp_path / "tide.c"
+    src.write_text(TIDE)
+    fresh = run_cli("analyze", "--no-cache", "--at", "*=1000", str(src))
+    assert not cache_dir.exists()
+    cold = run_cli("analyze", "--at", "*=1000", str(src))
+    assert len(_text_entries(cache_dir)) == 1
+    warm = run_cli("analyze", "--at", "*=1000", str(src))
+    assert fresh == cold == warm and fresh[0] == 0 and "nest(s)" in fresh[1]
+    # another path with the same text is another report (every line names the path)
+    other = tmp_path / "tide_copy.c"
+    other.write_text(TIDE)
+    status, out, _ = run_cli("analyze", "--at", "*=1000", str(other))
+    assert status == 0 and str(other) in out and f"{src}:" not in out
+    # other options, another entry; --verify is never answered from the cache
+    run_cli("analyze", "--at", "*=500", str(src))
+    assert len(_text_entries(cache_dir)) == 3
+    run_cli("analyze", "--verify", "--at", "*=10", str(src))
+    assert len(_text_entries(cache_dir)) == 3
+
+
+def test_warm_text_report_imports_no_engine(tmp_path, cache_dir):
+    src = tmp_path / "tide.c"
+    src.write_text(TIDE)
+    argv = ["analyze", "--at", "*=100", str(src)]
+    cold = _heavy_modules_after(argv, cache_dir)
+    assert cold.startswith("0 ") and "islpy" in cold, cold
+    assert _heavy_modules_after(argv, cache_dir) == "0 [] True"
+
+
+TEXT_DAMAGE = {
+    "key only": lambda e: {"key": e["key"]},
+    "terminal escape in the text": lambda e: {**e, "report": {**e["report"], "text": "\x1b]0;owned\x07" + e["report"]["text"]}},
+    "nests not a number": lambda e: {**e, "report": {**e["report"], "nests": "3"}},
+    "codes not codes": lambda e: {**e, "report": {**e["report"], "codes": ["rm -rf"]}},
+    "ranking time a string": lambda e: {**e, "report": {**e["report"], "entries": [
+        {"line": 1, "function": "f", "roofline": {**{k: None for k in e["report"]["entries"][0]["roofline"]},
+                                                   "seconds": "soon"}}]}},
+    "loop line zero": lambda e: {**e, "report": {**e["report"], "loop_lines": [0]}},
+}
+
+
+@pytest.mark.parametrize("damage", sorted(TEXT_DAMAGE))
+def test_damaged_text_entries_are_misses(cache_dir, run_cli, tmp_path, damage):
+    src = tmp_path / "tide.c"
+    src.write_text(TIDE)
+    clean = run_cli("analyze", "--at", "*=100", str(src))
+    (entry,) = _text_entries(cache_dir)
+    e = json.loads(entry.read_text())
+    assert e["report"]["entries"], "the damage needs a ranking row to change"
+    entry.write_text(json.dumps(TEXT_DAMAGE[damage](e)))
+    again = run_cli("analyze", "--at", "*=100", str(src))
+    assert again == clean and "\x1b" not in again[1] and "TC9" not in again[1]

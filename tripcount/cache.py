@@ -9,7 +9,9 @@
 #     summary (analysis.summary.NestSummary.to_json: what the gate and the
 #     language server read) and its diagnostics;
 #   * "fn" / "out": diagnostics of the model that lie inside a function but
-#     outside its nests, or outside all functions.
+#     outside its nests, or outside all functions;
+#   * "text": a file's path and exact text -> its part of the text report
+#     (report.text.RenderedFile), for `analyze` in the terminal.
 # Every key includes the code fingerprint of this installation (version plus
 # the sizes and times of its source files) and Options.cache_key().
 #
@@ -35,7 +37,7 @@ from tripcount.cacheentry import valid_entry
 from tripcount.paths import cache_dir
 
 LAYOUT = "v1"
-KINDS = ("file", "nest", "fn", "out")
+KINDS = ("file", "nest", "fn", "out", "text")
 ENV_MAX = "TRIPCOUNT_CACHE_MAX_MB"  # size cap; the least recently used entries go first
 DEFAULT_MAX_MB = 512
 TOUCH_AFTER_S = 24 * 3600  # a hit refreshes an entry's time at most daily (one utime, not one per read)

@@ -7,7 +7,8 @@
 # every entry is present the file is assembled from them, with positions
 # moved to where the same tokens now are. Only then is anything computed, so
 # a warm run never imports islpy or the engine: pipeline is imported only on
-# a miss. `analyze`, `check` and the language server all read files here.
+# a miss. `analyze`, `check` and the language server all read files here;
+# the text report of `analyze` is kept per file (text_of_path).
 
 from __future__ import annotations
 
@@ -17,6 +18,7 @@ from tripcount import cachekeys as keys
 from tripcount.cache import Store
 from tripcount.compdb import source_inputs
 from tripcount.options import Options
+from tripcount.report.text import RenderedFile
 from tripcount.sources import decode_source, read_bytes
 
 
@@ -110,6 +112,36 @@ def _prune_once(store: Store) -> None:
         _PRUNED = True
         store.prune()
 
+
+
+def text_of_path(path: str, options: Options, use_cache: bool = True, store: Store | None = None) -> RenderedFile:
+    """The text report of the file at `path`, from the cache when the same path, text,
+    build inputs and options were reported before; else analysed (pipeline) and kept
+    unless a time limit cut a result short. --verify always runs afresh."""
+    from tripcount.report.text import RenderedFile
+
+    key = None
+    if use_cache and not options.verify:
+        store = store or Store()
+        try:
+            text, _bad = read_source(path)
+        except (OSError, ValueError):
+            text = None
+        if text is not None and store.enabled:
+            key = keys.text_key(path, text, options, source_inputs(path, text, options)[1])
+            hit = store.get("text", key)
+            if hit is not None:
+                return RenderedFile.from_json(hit["report"], path)
+    from tripcount.pipeline import analyze_file
+    from tripcount.report.text import render_file
+
+    fr = analyze_file(path, options)
+    rendered = render_file(fr)
+    if key is not None and store is not None and not any(keys.depends_on_time(d.to_dict())
+                                                         for d in fr.all_diagnostics()):
+        store.put("text", key, {"report": rendered.to_json()})
+        _prune_once(store)
+    return rendered
 
 
 def read_source(path: str) -> tuple[str, dict[str, Any] | None]:

@@ -16,6 +16,7 @@ from typing import Any
 
 from tripcount.analysis.summary import NestSummary
 from tripcount.diagnostics import from_dict
+from tripcount.report.text import RANKING_FIELDS
 
 MAX_DEPTH = 48  # the deepest entry the cache writes is about 12 levels
 MAX_NODES = 2_000_000
@@ -137,10 +138,37 @@ def valid_anchors(a: Any) -> bool:
     return isinstance(a, list) and len(a) % 2 == 0 and all(_pos(v) for v in a)
 
 
+_CONTROL = re.compile(r"[\x00-\x09\x0b-\x1f\x7f]")  # a stored report is printed to a terminal: no escapes
+
+
+def _strs(v: Any) -> bool:
+    return isinstance(v, list) and all(isinstance(x, str) for x in v)
+
+
+def _ranking_entry(e: Any) -> bool:
+    if not (isinstance(e, dict) and _pos(e.get("line")) and isinstance(e.get("function"), str)
+            and isinstance(e.get("roofline"), dict) and set(e["roofline"]) == set(RANKING_FIELDS)):
+        return False
+    return all(v is None or (isinstance(v, RANKING_FIELDS[k]) and not isinstance(v, bool))
+               for k, v in e["roofline"].items())
+
+
+def valid_rendering(d: Any) -> bool:
+    """A file's text report as RenderedFile.to_json writes it (and no terminal control characters)."""
+    return (isinstance(d, dict) and isinstance(d.get("path"), str) and isinstance(d.get("text"), str)
+            and _CONTROL.search(d["text"]) is None and _is_int(d.get("nests")) and d["nests"] >= 0
+            and all(_strs(d.get(k)) for k in ("codes", "params", "names"))
+            and all(_CODE.match(c) for c in d["codes"])
+            and isinstance(d.get("loop_lines"), list) and all(_pos(v) for v in d["loop_lines"])
+            and isinstance(d.get("entries"), list) and all(_ranking_entry(e) for e in d["entries"]))
+
+
 def valid_entry(kind: str, data: Any) -> bool:
     """True when `data` has the shape the cache writes for entries of `kind`."""
     if not isinstance(data, dict) or not bounded(data):
         return False
+    if kind == "text":
+        return valid_rendering(data.get("report"))
     if kind == "file":
         f = data.get("file")
         return (isinstance(f, dict) and isinstance(f.get("nests"), list) and isinstance(f.get("summaries"), list)

@@ -398,7 +398,13 @@ def sort_diags(diags: list[dict[str, Any]]) -> list[dict[str, Any]]:
 
 
 def file_key(text: str, options: Options, inputs_key: str) -> str:
+    """The key of a whole file's JSON: its exact text, build inputs and options."""
     return _digest(["file", code_fingerprint(), options.cache_key(), inputs_key, text])
+
+
+def text_key(path: str, text: str, options: Options, inputs_key: str) -> str:
+    """The key of a file's text report: as file_key, plus the path (every line of the report names it)."""
+    return _digest(["text", code_fingerprint(), options.cache_key(), inputs_key, path, text])
 
 
 

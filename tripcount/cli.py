@@ -11,7 +11,7 @@ import argparse
 import os
 import sys
 from collections.abc import Sequence
-from typing import Any, TextIO
+from typing import TextIO
 
 from tripcount import __version__
 from tripcount.config import (
@@ -153,7 +153,6 @@ def open_output(path: str | None) -> TextIO:
 def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr: TextIO) -> int:
     """`tripcount analyze`."""
     from tripcount.analysis.results import Report
-    from tripcount.pipeline import analyze_file, analyze_text
     from tripcount.report import get_reporter
 
     sources: list[tuple[str, str | None]] = []  # (path, text for snippets)
@@ -182,16 +181,20 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
     options = options_from(args, config)
     check_assumptions(options)
     results = []
-    for path, text in sources:
-        results.append(analyze_text(text or "", path, options, snippet=True))
+    if sources:
+        from tripcount.pipeline import analyze_text
+
+        results = [analyze_text(text or "", path, options, snippet=True) for path, text in sources]
     paths = source_paths(files, options)
     if files and not paths:
         stderr.write("tripcount: error: no .c or .h files under the given directories\n")
         return EXIT_USAGE
-    # The JSON and SARIF reports are renderings of the file JSON, which the result
-    # cache keeps per nest; the text report and the plot need the live formulas,
-    # and --verify is a fresh check by definition.
-    if args.format == "text" and not args.plot and not options.parallel_lines and len(paths) > 1:
+    # Every report comes from the result cache where it can: JSON and SARIF are
+    # renderings of the file JSON, which the cache keeps per nest; the text report
+    # is kept per file (its rendering for these options, cached.text_of_path).
+    # The plot and --parallel LINE read live results of all files together, and
+    # --verify is a fresh check by definition.
+    if args.format == "text" and not args.plot and not options.parallel_lines:
         return stream_text(results, len(sources), paths, options, args, stdout, stderr)
     from tripcount.report.progress import Progress
 
@@ -205,6 +208,8 @@ def run_analyze(args: argparse.Namespace, stdin: TextIO, stdout: TextIO, stderr:
 
             file_json.append(analyze_path_cached(path, options, use_cache=not args.no_cache))
         else:
+            from tripcount.pipeline import analyze_file
+
             results.append(analyze_file(path, options))
     progress.clear()
     loop_lines = {lr.loop.span.line for fr in results for nr in fr.nests for lr in nr.loops}
@@ -283,13 +288,11 @@ def stream_text(snippets: list, n_sources: int, paths: list[str], options: Optio
     nest is still a usage error with no report."""
     import io
 
-    from tripcount.pipeline import analyze_file
+    from tripcount.cached import text_of_path
     from tripcount.report.progress import Progress
-    from tripcount.report.ranking import entries_of
-    from tripcount.report.text import TextReporter
+    from tripcount.report.text import RenderedFile, TextReporter, render_file
 
     given_at = given_sizes(args)
-    at_text = ", ".join(f"{k}={v}" for k, v in options.at.items())
     held: io.StringIO | None = io.StringIO() if given_at else None
     out: TextIO | None = None if held is not None else (open_output(args.output) if args.output else stdout)
     reporter = TextReporter(held if held is not None else out, top=args.top)
@@ -300,16 +303,15 @@ def stream_text(snippets: list, n_sources: int, paths: list[str], options: Optio
     n_nests = n_diag = 0
     progress = Progress(stderr, len(paths))
 
-    def write(fr: Any) -> None:
+    def write(rf: RenderedFile) -> None:
         nonlocal n_nests, n_diag, held, out
-        diags = fr.all_diagnostics()
-        n_nests += len(fr.nests)
-        n_diag += len(diags)
-        codes.update(d.code for d in diags)
-        params.update(p for nr in fr.nests for p in nr.nest.params)
-        known.update(p for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names))
-        reporter.write_file(fr, at_text)
-        ranking.extend(entries_of(fr))
+        n_nests += rf.nests
+        n_diag += len(rf.codes)
+        codes.update(rf.codes)
+        params.update(rf.params)
+        known.update(rf.names)
+        reporter.stream.write(rf.text)
+        ranking.extend(rf.entries)
         if held is not None and not unknown_sizes(given_at, known)[1]:
             out = open_output(args.output) if args.output else stdout
             out.write(held.getvalue())
@@ -318,15 +320,15 @@ def stream_text(snippets: list, n_sources: int, paths: list[str], options: Optio
 
     try:
         for fr in snippets:
-            write(fr)
+            write(render_file(fr))
         not_c = bool(snippets) and all(not fr.nests for fr in snippets[:n_sources]) and _not_c(snippets[:n_sources])
         del snippets[:]
         for k, path in enumerate(paths):
             progress.step(k, path)
-            fr = analyze_file(path, options)
+            rf = text_of_path(path, options, use_cache=not args.no_cache)
             progress.clear()
-            write(fr)
-            del fr
+            write(rf)
+            del rf
         if at_unused(given_at, known, stderr):
             return EXIT_USAGE
         reporter.write_ranking(ranking)

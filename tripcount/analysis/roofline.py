@@ -19,12 +19,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from fractions import Fraction
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from tripcount.analysis.results import NestResult
-from tripcount.budget import Budget
 from tripcount.machine import Machine
 from tripcount.options import Options
+
+if TYPE_CHECKING:  # budget loads islpy; the ranking of a cached text report reads this module without it
+    from tripcount.budget import Budget
 
 MODEL = "roofline (Williams, Waterman & Patterson, CACM 2009)"
 HINT = ("no time estimate: no machine description (`tripcount machine --measure -o machine.toml`, then "

@@ -8,6 +8,8 @@
 
 from __future__ import annotations
 
+import io
+from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
@@ -60,6 +62,55 @@ def short_formula(c: Count) -> str:
     return expr
 
 
+# The roofline fields the ranking reads (report/ranking.py): all a stored rendering keeps.
+RANKING_FIELDS = {"seconds": (int, float), "flops": (int, float), "memory_bytes": (int, float),
+                  "intensity": (int, float), "degree": (int,), "memory_from": (str,), "binding": (str,)}
+
+
+@dataclass(frozen=True)
+class RenderedFile:
+    """One file's part of the text report, with what the closing lines and the exit status need.
+
+    What the result cache keeps for the text report (the report of one file
+    is a rendering of its results for given options; the ranking and the
+    totals come after all files).
+    """
+
+    path: str
+    text: str
+    nests: int
+    codes: tuple[str, ...]  # the diagnostics' codes, one per diagnostic
+    params: tuple[str, ...]  # size parameters of the nests
+    names: tuple[str, ...]  # every name an --at size may give (parameters and the C names behind them)
+    loop_lines: tuple[int, ...]
+    entries: tuple[Entry, ...]  # the ranking's rows
+
+    def to_json(self) -> dict[str, Any]:
+        """A plain JSON object (from_json reads it back)."""
+        return {"path": self.path, "text": self.text, "nests": self.nests, "codes": list(self.codes),
+                "params": list(self.params), "names": list(self.names), "loop_lines": list(self.loop_lines),
+                "entries": [{"line": e.line, "function": e.function,
+                             "roofline": {k: e.roofline.get(k) for k in RANKING_FIELDS}} for e in self.entries]}
+
+    @classmethod
+    def from_json(cls, d: dict[str, Any], path: str) -> RenderedFile:
+        """The rendering of `to_json`, for the file at `path` (the key includes the path)."""
+        return cls(path, d["text"], d["nests"], tuple(d["codes"]), tuple(d["params"]), tuple(d["names"]),
+                   tuple(d["loop_lines"]),
+                   tuple(Entry(path, e["line"], e["function"], dict(e["roofline"])) for e in d["entries"]))
+
+
+def render_file(fr: FileResult) -> RenderedFile:
+    """The text report of one file's live results, with its totals' inputs."""
+    out = io.StringIO()
+    TextReporter(out).write_file(fr)
+    return RenderedFile(
+        fr.path, out.getvalue(), len(fr.nests), tuple(d.code for d in fr.all_diagnostics()),
+        tuple(sorted({p for nr in fr.nests for p in nr.nest.params})),
+        tuple(sorted({p for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names)})),
+        tuple(sorted({lr.loop.span.line for nr in fr.nests for lr in nr.loops})), tuple(entries_of(fr)))
+
+
 class TextReporter(Reporter):
     """Human-readable report."""
 
@@ -67,11 +118,10 @@ class TextReporter(Reporter):
 
     def write(self, report: Report) -> None:
         """Render all files, then a one-line summary."""
-        at = ", ".join(f"{k}={v}" for k, v in report.at.items())
         n_nests = 0
         for fr in report.files:
             n_nests += len(fr.nests)
-            self.write_file(fr, at)
+            self.write_file(fr)
         n_diag = sum(len(f.all_diagnostics()) for f in report.files)
         params = {p for fr in report.files for nr in fr.nests for p in nr.nest.params}
         self.write_ranking([e for fr in report.files for e in entries_of(fr)])
@@ -95,7 +145,7 @@ class TextReporter(Reporter):
             f"; give --at {example} (or --at '*=1000') for values" if names else "")
         self.stream.write(f"{n_files} file(s), {n_nests} nest(s), {n_diag} diagnostic(s){hint}\n")
 
-    def write_file(self, fr: FileResult, at: str) -> None:
+    def write_file(self, fr: FileResult) -> None:
         """One file: its nests and diagnostics."""
         w = self.stream.write
         for nr in fr.nests:
