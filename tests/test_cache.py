@@ -441,7 +441,8 @@ TEXT_DAMAGE = {
     "ranking time a string": lambda e: {**e, "report": {**e["report"], "entries": [
         {"line": 1, "function": "f", "roofline": {**{k: None for k in e["report"]["entries"][0]["roofline"]},
                                                    "seconds": "soon"}}]}},
-    "loop line zero": lambda e: {**e, "report": {**e["report"], "loop_lines": [0]}},
+    "line of a ranking row zero": lambda e: {**e, "report": {**e["report"], "entries": [
+        {**e["report"]["entries"][0], "line": 0}]}},
 }
 
 

@@ -259,9 +259,9 @@ def test_many_files_stream_with_a_status_line_on_a_terminal_only(tmp_path):
     seen: list[int] = []  # how much had been written when each file was read
     real = pipeline.analyze_file
 
-    def spy(path, options):
+    def spy(path, options, data=None):
         seen.append(len(out.getvalue()))
-        return real(path, options)
+        return real(path, options, data)
 
     pipeline.analyze_file = spy
     try:

@@ -18,7 +18,7 @@ from tripcount import cachekeys as keys
 from tripcount.cache import Store
 from tripcount.compdb import source_inputs
 from tripcount.options import Options
-from tripcount.report.text import RenderedFile
+from tripcount.report.text import RenderedFile, render_file
 from tripcount.sources import decode_source, read_bytes
 
 
@@ -118,24 +118,23 @@ def text_of_path(path: str, options: Options, use_cache: bool = True, store: Sto
     """The text report of the file at `path`, from the cache when the same path, text,
     build inputs and options were reported before; else analysed (pipeline) and kept
     unless a time limit cut a result short. --verify always runs afresh."""
-    from tripcount.report.text import RenderedFile
-
-    key = None
-    if use_cache and not options.verify:
-        store = store or Store()
+    key = data = None
+    store = (store or Store()) if use_cache and not options.verify else None
+    if store is not None and store.enabled:
         try:
-            text, _bad = read_source(path)
+            data = read_bytes(path)
         except (OSError, ValueError):
-            text = None
-        if text is not None and store.enabled:
+            pass  # the pipeline reports it
+        if data is not None:
+            text, _bad = decode_source(data)
             key = keys.text_key(path, text, options, source_inputs(path, text, options)[1])
             hit = store.get("text", key)
             if hit is not None:
                 return RenderedFile.from_json(hit["report"], path)
+    # only on a miss: a hit loads neither islpy nor the engine
     from tripcount.pipeline import analyze_file
-    from tripcount.report.text import render_file
 
-    fr = analyze_file(path, options)
+    fr = analyze_file(path, options, data)
     rendered = render_file(fr)
     if key is not None and store is not None and not any(keys.depends_on_time(d.to_dict())
                                                          for d in fr.all_diagnostics()):

@@ -155,11 +155,10 @@ def _ranking_entry(e: Any) -> bool:
 
 def valid_rendering(d: Any) -> bool:
     """A file's text report as RenderedFile.to_json writes it (and no terminal control characters)."""
-    return (isinstance(d, dict) and isinstance(d.get("path"), str) and isinstance(d.get("text"), str)
+    return (isinstance(d, dict) and isinstance(d.get("text"), str)
             and _CONTROL.search(d["text"]) is None and _is_int(d.get("nests")) and d["nests"] >= 0
             and all(_strs(d.get(k)) for k in ("codes", "params", "names"))
             and all(_CODE.match(c) for c in d["codes"])
-            and isinstance(d.get("loop_lines"), list) and all(_pos(v) for v in d["loop_lines"])
             and isinstance(d.get("entries"), list) and all(_ranking_entry(e) for e in d["entries"]))
 
 

@@ -343,10 +343,11 @@ def _finish(result: FileResult, path: str) -> FileResult:
     return result
 
 
-def analyze_file(path: str, options: Options) -> FileResult:
-    """Analyze one file; an unreadable file gives a file-level diagnostic."""
+def analyze_file(path: str, options: Options, data: bytes | None = None) -> FileResult:
+    """Analyze one file (its bytes `data` when the caller has read them already);
+    an unreadable file gives a file-level diagnostic."""
     try:
-        data = read_bytes(path)
+        data = read_bytes(path) if data is None else data
     except (OSError, ValueError) as exc:
         r = FileResult(path=path)
         reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)

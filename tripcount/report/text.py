@@ -82,13 +82,12 @@ class RenderedFile:
     codes: tuple[str, ...]  # the diagnostics' codes, one per diagnostic
     params: tuple[str, ...]  # size parameters of the nests
     names: tuple[str, ...]  # every name an --at size may give (parameters and the C names behind them)
-    loop_lines: tuple[int, ...]
     entries: tuple[Entry, ...]  # the ranking's rows
 
     def to_json(self) -> dict[str, Any]:
-        """A plain JSON object (from_json reads it back)."""
-        return {"path": self.path, "text": self.text, "nests": self.nests, "codes": list(self.codes),
-                "params": list(self.params), "names": list(self.names), "loop_lines": list(self.loop_lines),
+        """A plain JSON object; from_json reads it back for the path it was stored under."""
+        return {"text": self.text, "nests": self.nests, "codes": list(self.codes),
+                "params": list(self.params), "names": list(self.names),
                 "entries": [{"line": e.line, "function": e.function,
                              "roofline": {k: e.roofline.get(k) for k in RANKING_FIELDS}} for e in self.entries]}
 
@@ -96,7 +95,6 @@ class RenderedFile:
     def from_json(cls, d: dict[str, Any], path: str) -> RenderedFile:
         """The rendering of `to_json`, for the file at `path` (the key includes the path)."""
         return cls(path, d["text"], d["nests"], tuple(d["codes"]), tuple(d["params"]), tuple(d["names"]),
-                   tuple(d["loop_lines"]),
                    tuple(Entry(path, e["line"], e["function"], dict(e["roofline"])) for e in d["entries"]))
 
 
@@ -107,8 +105,7 @@ def render_file(fr: FileResult) -> RenderedFile:
     return RenderedFile(
         fr.path, out.getvalue(), len(fr.nests), tuple(d.code for d in fr.all_diagnostics()),
         tuple(sorted({p for nr in fr.nests for p in nr.nest.params})),
-        tuple(sorted({p for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names)})),
-        tuple(sorted({lr.loop.span.line for nr in fr.nests for lr in nr.loops})), tuple(entries_of(fr)))
+        tuple(sorted({p for nr in fr.nests for p in (*nr.nest.params, *nr.nest.names)})), tuple(entries_of(fr)))
 
 
 class TextReporter(Reporter):
@@ -117,15 +114,13 @@ class TextReporter(Reporter):
     width = 100
 
     def write(self, report: Report) -> None:
-        """Render all files, then a one-line summary."""
-        n_nests = 0
-        for fr in report.files:
-            n_nests += len(fr.nests)
-            self.write_file(fr)
-        n_diag = sum(len(f.all_diagnostics()) for f in report.files)
-        params = {p for fr in report.files for nr in fr.nests for p in nr.nest.params}
-        self.write_ranking([e for fr in report.files for e in entries_of(fr)])
-        self.write_totals(len(report.files), n_nests, n_diag, params, report.at)
+        """Render all files, then the ranking and a one-line summary."""
+        files = [render_file(fr) for fr in report.files]
+        for rf in files:
+            self.stream.write(rf.text)
+        self.write_ranking([e for rf in files for e in rf.entries])
+        self.write_totals(len(files), sum(rf.nests for rf in files), sum(len(rf.codes) for rf in files),
+                          {p for rf in files for p in rf.params}, report.at)
 
     def write_ranking(self, entries: list[Entry]) -> None:
         """Where the time goes: the nests ranked by estimated time (report.ranking), before the totals."""
