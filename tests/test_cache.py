@@ -16,6 +16,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from unhurried import TIME_SHARES
 
 from tripcount import cache, cached, cachekeys
 from tripcount.ir import Span
@@ -26,7 +27,8 @@ INPUTS = Path(__file__).parent / "inputs" / "check"
 
 
 @pytest.fixture(autouse=True)
-def cache_dir(private_cache):
+def cache_dir(private_cache, unhurried):
+    # unhurried: whether a result is stored must not depend on how busy the machine is
     return private_cache
 
 
@@ -184,8 +186,8 @@ def test_keys_follow_code_not_layout():
     assert k2[0] == base[0] and k2[1] != base[1]
 
 
-def test_cached_equals_uncached_after_edits(cache_dir):
-    o = Options(at={"N": 8, "T": 3})
+def test_cached_equals_uncached_after_edits(cache_dir, unhurried):
+    o = Options(at={"N": 8, "T": 3}, time_limit=600)
     fresh = cached.analyze_file_uncached("t.c", TIDE, o)
     cold = cached.analyze_file_cached("t.c", TIDE, o)
     warm = cached.analyze_file_cached("t.c", TIDE, o)
@@ -233,8 +235,8 @@ def test_cached_diagnostics_keep_structured_args_and_move_with_the_code(cache_di
     assert brk["message"].startswith("'break' at 8:13 can leave loop 'for (i ...)' at 6:5 early")
 
 
-def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch):
-    o = Options(at={"N": 8, "T": 3})
+def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch, unhurried):
+    o = Options(at={"N": 8, "T": 3}, time_limit=600)
     cached.analyze_file_cached("t.c", TIDE, o)
     import tripcount.pipeline as pipeline
 
@@ -252,6 +254,36 @@ def test_one_changed_nest_is_the_only_one_analyzed(monkeypatch):
     assert got == cached.analyze_file_uncached("t.c", edited, o)
 
 
+@pytest.mark.parametrize("share", TIME_SHARES, ids=lambda s: f"{s[0].rsplit('.', 1)[1]}.{s[1]}")
+def test_nothing_cut_by_a_time_share_is_stored(monkeypatch, unhurried, share):
+    # A loaded machine runs out of one share (a threshold search, the exact values, the
+    # dependence pairs) long before the nest's limit: what it left out must not be kept,
+    # or the next run, with time to spare, reads the poorer result from the cache.
+    import importlib
+
+    from tripcount import engine
+
+    o = Options(at={"N": 8, "T": 3}, time_limit=600)
+    text = TIDE + STRIDED_TILE
+    afresh = cached.analyze_file_uncached("t.c", text, o)
+    with monkeypatch.context() as m:
+        m.setattr(importlib.import_module(share[0]), share[1], 1e-6)
+        engine.clear_memos()
+        cached.analyze_file_cached("t.c", text, o)
+    engine.clear_memos()
+    assert cached.analyze_file_cached("t.c", text, o) == afresh
+
+
+STRIDED_TILE = """
+void drift_blocks(int N, double D[restrict N][N])
+{
+    for (int i = 0; i < N; i += 3)
+        for (int j = i; j < N; j += 2)
+            D[i][j] = D[j][i] + 1.0;
+}
+"""
+
+
 def test_use_cache_false_writes_nothing(cache_dir):
     cached.analyze_file_cached("t.c", TIDE, Options(), use_cache=False)
     assert not cache_dir.exists()
@@ -260,9 +292,11 @@ def test_use_cache_false_writes_nothing(cache_dir):
 def _heavy_modules_after(argv: list[str], cache_dir: Path) -> str:
     """Run `tripcount ARGV` in a fresh interpreter; prints its status, the heavy modules it
     loaded and whether it wrote a report."""
-    env = {**os.environ, "TRIPCOUNT_CACHE_DIR": str(cache_dir), "PYTHONPATH": str(ROOT)}
+    env = {**os.environ, "TRIPCOUNT_CACHE_DIR": str(cache_dir),
+           "PYTHONPATH": os.pathsep.join([str(ROOT), str(ROOT / "tests")])}
     probe = (
         "import sys, io\n"
+        "import unhurried; unhurried.install()\n"
         "from tripcount.cli import main\n"
         "out = io.StringIO()\n"
         f"status = main({argv!r}, stdout=out, stderr=io.StringIO())\n"

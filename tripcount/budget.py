@@ -123,6 +123,10 @@ class Budget:
     max_ops: int
     parent: Budget | None = field(default=None, repr=False)
     tripped: str | None = None  # why it ended early: "time", "operations", "enumeration"
+    # On the root: some part of the nest's result was decided by the clock (a deadline passed,
+    # a time share ran out, an optional pass was skipped for lack of time). Such a result may
+    # differ on a less busy machine, so it is not cached. Set through `mark_time_cut()`.
+    time_cut: bool = False
     enumerations_refused: int = 0
     _owner_ops: bool = field(default=False, repr=False)
     _ctx: Any = field(default=None, repr=False)
@@ -153,13 +157,24 @@ class Budget:
             b = b.parent
         return b
 
+    def mark_time_cut(self) -> None:
+        """Record that a result of this nest was decided by the clock (see `time_cut`)."""
+        self.root().time_cut = True
+
     def remaining(self) -> float:
-        """Seconds left before the soft deadline (may be negative)."""
-        return self.deadline - time.monotonic()
+        """Seconds left before the soft deadline (may be negative; nothing left marks the
+        nest's result as cut by time)."""
+        left = self.deadline - time.monotonic()
+        if left <= 0:
+            self.mark_time_cut()
+        return left
 
     def expired(self) -> bool:
-        """True once the soft deadline has passed."""
-        return time.monotonic() > self.deadline
+        """True once the soft deadline has passed (which marks the result as cut by time)."""
+        if time.monotonic() > self.deadline:
+            self.mark_time_cut()
+            return True
+        return False
 
     def check(self, what: str = "analysis") -> None:
         """Raise when the deadline has passed (for cooperative loops): NestLimit for the
@@ -168,7 +183,7 @@ class Budget:
         if root.expired():
             root.tripped = root.tripped or "time"
             raise NestLimit(f"time limit of {root.time_limit:g} s per nest reached ({what})")
-        if self.expired():
+        if self.expired():  # marks the cut
             raise TimeLimit(f"time share of {self.time_limit:.2g} s spent ({what})")
 
     def check_hard(self, what: str = "analysis") -> None:
@@ -176,6 +191,7 @@ class Budget:
         if time.monotonic() > self.hard_deadline:
             root = self.root()
             root.tripped = root.tripped or "time"
+            root.time_cut = True
             raise NestLimit(f"time limit of {root.time_limit:g} s per nest reached ({what})")
 
     def ops_spent(self) -> bool:
@@ -417,6 +433,7 @@ def count_points(s: isl.Set | isl.BasicSet, budget: Budget | None) -> int:
         return _val_int(s.count_val())
     if rows > MAX_SCAN_POINTS_PER_SECOND * max(0.0, budget.hard_deadline - time.monotonic()) and _box_is_tight(s):
         budget.root().enumerations_refused += 1
+        budget.mark_time_cut()
         raise EnumerationLimit(f"enumeration of about {rows:.3g} rows cannot finish within the time left")
     return _count_in_child(s, budget)
 
@@ -477,6 +494,7 @@ def _count_in_child(s: Any, b: Budget) -> int:
     text = b"".join(chunks).decode()
     if not done or not text:
         root.enumerations_refused += 1
+        root.time_cut = True
         raise EnumerationLimit(f"exact enumeration did not finish within the {root.time_limit:g} s time limit "
                                "of this nest")
     return int(text)

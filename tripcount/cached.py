@@ -136,8 +136,8 @@ def text_of_path(path: str, options: Options, use_cache: bool = True, store: Sto
 
     fr = analyze_file(path, options, data)
     rendered = render_file(fr)
-    if key is not None and store is not None and not any(keys.depends_on_time(d.to_dict())
-                                                         for d in fr.all_diagnostics()):
+    if key is not None and store is not None and not fr.time_cut() and not any(
+            keys.depends_on_time(d.to_dict()) for d in fr.all_diagnostics()):
         store.put("text", key, {"report": rendered.to_json()})
         _prune_once(store)
     return rendered

@@ -123,6 +123,7 @@ def analyze_nest(nest: Nest, options: Options) -> NestResult:
             run.stopped.append("counts")
             run.counts_note = LIMIT_NOTE
     result = assemble(nest, run.outputs)
+    result.time_cut = budget.time_cut or budget.tripped == "time"
     if run.counts_note is not None:
         _complete_counts(result, run.counts_note)
     if run.stopped:
@@ -391,8 +392,9 @@ class _Render:
     def __init__(self, options: Options) -> None:
         self.options = options
 
-    def __call__(self, nr: Any) -> _Payload:
-        return (*nest_payload(nr, self.options), [d.to_dict() for d in nr.diagnostics])
+    def __call__(self, nr: Any) -> tuple[_Payload, bool]:
+        """The payload, and whether the result was cut by time (not to be stored)."""
+        return (*nest_payload(nr, self.options), [d.to_dict() for d in nr.diagnostics]), nr.time_cut
 
 
 def compute_missing(layout: keys.Layout, path: str, options: Options,
@@ -431,12 +433,12 @@ def compute_missing(layout: keys.Layout, path: str, options: Options,
             nj = keys.slices_in(keys.remap_json(cached["nest"], remap), toks)
             sj = keys.slices_in(keys.remap_json(cached["summary"], remap), toks)
         found.append((site, nj, sj, keys.remap_diags(cached.get("diagnostics", []), remap)))
-    for k, (nj, sj, nd) in run_nests(nests, todo, options, _Render(options)).items():
+    for k, ((nj, sj, nd), time_cut) in run_nests(nests, todo, options, _Render(options)).items():
         site = by_pos.get((nests[k].span.line, nests[k].span.column))
         found[k] = (site, nj, sj, nd)
         if site is None:
             cacheable = False  # a nest the front end did not show us: no key to store it under
-        elif not any(keys.depends_on_time(d) for d in nd):
+        elif not time_cut and not any(keys.depends_on_time(d) for d in nd):
             store.put("nest", site.key, {
                 "nest": keys.slices_out(nj, toks), "summary": keys.slices_out(sj, toks), "diagnostics": nd,
                 **keys.entry_anchors(toks, site.anchors, layout.outside, site.lo, site.stop, [nj, sj, nd])})

@@ -110,6 +110,7 @@ class Dependences:
     complete: bool  # False when a statement or access is not modelled (verdicts then say "unknown")
     note: str = ""
     summary: str = ""  # one line of the verdicts, with the loops' names (summary_text)
+    timed_out: bool = False  # the pairs were not all examined within the time given
 
     def to_json(self) -> dict[str, Any]:
         """Completeness, the method note, and the loop-independent dependences (the first few)."""
@@ -355,7 +356,7 @@ def dependences(nest: Nest, at: dict[str, int] | None = None, time_s: float = TI
         else:
             verdicts.append(LoopVerdict(lp.index, "sequential", tuple(deps)))
     note = "memory-based; a scalar declared in a loop is private to it"
-    return Dependences(tuple(verdicts), tuple(independent), complete and not timed_out, note)
+    return Dependences(tuple(verdicts), tuple(independent), complete and not timed_out, note, timed_out=timed_out)
 
 
 def _pairs(refs: Sequence[_Ref]) -> Iterator[tuple[_Ref, _Ref]]:
@@ -544,6 +545,8 @@ def analyze(result: NestResult, options: Options, budget: Budget | None = None) 
     time_s = TIME_S if budget is None else max(0.05, min(TIME_S, budget.remaining()))
     # a nest without size parameters has its examples at no sizes at all
     r = dependences(nest, at if at or not nest.params else None, time_s)
+    if r.timed_out and budget is not None:
+        budget.mark_time_cut()
     r = replace(r, summary=summary_text(nest, r))
     result.extras["dependences"] = r
     loops = {lr.loop.index: lr for lr in result.loops}

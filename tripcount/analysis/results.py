@@ -102,6 +102,9 @@ class NestResult:
     statements: list[StatementResult]
     extras: dict[str, Any] = field(default_factory=dict)
     diagnostics: list[Diagnostic] = field(default_factory=list)
+    # some part was decided by the clock (a time limit, a skipped optional pass): a less busy
+    # run may give more, so the result is not cached
+    time_cut: bool = False
 
     def summary(self) -> NestSummary:
         """The frozen, typed reading of this result (what the gate and the editor hold against budgets)."""
@@ -118,6 +121,10 @@ class FileResult:
     nests: list[NestResult] = field(default_factory=list)
     diagnostics: list[Diagnostic] = field(default_factory=list)
     source: str | None = None  # text for the snippet reporters; None for files on disk
+
+    def time_cut(self) -> bool:
+        """Whether some nest's result was decided by the clock (not to be cached)."""
+        return any(n.time_cut for n in self.nests)
 
     def all_diagnostics(self) -> list[Diagnostic]:
         """File-level and nest-level diagnostics, in source order."""

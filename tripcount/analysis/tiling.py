@@ -448,8 +448,9 @@ def advise(nest: Nest, deps: Dependences, options: Options, levels: Sequence[Cac
                     ra = c.count(asp)
                     assert ra is not None
                     fits.append(TileFit(lv.name, lv.size, asp, ra[0], ra[1], line, "aspect"))
-    except TimeoutError:
-        pass
+    except TimeoutError:  # the fits found so far stand; the result depends on the clock
+        if budget is not None:
+            budget.mark_time_cut()
     reason = "fully permutable: every dependence distance is non-negative in each of these loops"
     first = fits[0].sizes if fits else None
     pos = c.origins.get(first, {}) if first else {}

@@ -80,18 +80,22 @@ def sum_over(
     key = (s.to_str(), None if context is None else context.to_str(), weight, limits.max_pieces)
     found = _MEMO.get(key)
     if found is None:
-        found = _MEMO.keep(key, _sum_over(s, weight, context, limits))
+        st = _State(limits)
+        found = _sum_over(s, weight, context, st)
+        if not st.hurried:
+            _MEMO.keep(key, found)
     return found
 
 
 # Results by (set, context, weight) text: kernels repeat the same loop shapes
 # (and the footprint analysis counts the same images per level), and a result
-# is exact whatever the limits it was found under. Give-ups are not kept.
+# is exact whatever the limits it was found under. Give-ups are not kept, nor
+# results whose optional passes were skipped for lack of time (their form
+# depends on the clock).
 _MEMO: Memo[tuple, Piecewise] = Memo(4096)
 
 
-def _sum_over(s: isl.Set, weight: QPoly, context: isl.Set | None, limits: Limits) -> Piecewise:
-    st = _State(limits)
+def _sum_over(s: isl.Set, weight: QPoly, context: isl.Set | None, st: _State) -> Piecewise:
     prepared, rename = _prepare(s, context)
     params = _params(prepared)
     unknown = weight.variables() - set(rename) - set(params)

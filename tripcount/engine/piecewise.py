@@ -339,7 +339,10 @@ def _spare(st: _State | None, frac: float) -> bool:
     """True when more than `frac` of the time budget is left. The merging and
     readability passes are optional (the pieces are exact without them): they
     stop early instead of turning a finished count into a give-up."""
-    return st is None or st.deadline - time.monotonic() > frac * st.limits.time_s
+    if st is None or st.deadline - time.monotonic() > frac * st.limits.time_s:
+        return True
+    st.hurry()
+    return False
 
 
 def _overlay_pairwise(grouped: list[list], st: _State | None, limit: int) -> list[list]:
@@ -552,7 +555,7 @@ def _fix_constant_floors(r: isl.Set, f: QPoly, params: tuple[str, ...], st: _Sta
     fl = [a for a in f.atoms() if isinstance(a, Floor) and all(isinstance(b, str) for b, _ in a.terms)]
     if not fl:
         return f
-    if st is not None and st.deadline - time.monotonic() < 0.5 * st.limits.time_s:
+    if not _spare(st, 0.5):
         return f
     if r.is_empty():
         return f

@@ -61,9 +61,19 @@ class _State:
         # intermediate terms may exceed the final piece count; residue splits of
         # a modulus up to 64 in two variables should still pass
         self.max_terms = 64 * limits.max_pieces
+        # an optional pass was skipped for lack of time: the pieces are exact, but their
+        # form may differ on a less busy run (not memoized; the caller's result is cut by time)
+        self.hurried = False
+
+    def hurry(self) -> None:
+        """Record that the clock decided something of this count (see `hurried`)."""
+        self.hurried = True
+        if self.limits.budget is not None:
+            self.limits.budget.mark_time_cut()
 
     def check(self, what: str) -> None:
         if time.monotonic() > self.deadline:
+            self.hurry()
             raise TimeLimit(f"time limit of {self.limits.time_s} s exceeded ({what})")
 
 

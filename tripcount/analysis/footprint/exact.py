@@ -482,7 +482,11 @@ class ExactBudget:
     def spent(self) -> bool:
         """Whether the budget is used up."""
         running = time.monotonic() - self.started if self.started is not None else 0.0
-        return self.used + running > self.seconds
+        if self.used + running > self.seconds:
+            if self.limit is not None:
+                self.limit.mark_time_cut()
+            return True
+        return False
 
 
 @dataclass
